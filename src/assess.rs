@@ -1,0 +1,176 @@
+//! Assessment: fold scores, cross-validated score and its standard error,
+//! training score, and the choice by the spec's rule.
+//!
+//! The standard error of the cross-validated mean is the sample standard
+//! deviation of the fold scores divided by √F (F folds × repeats), as is common
+//! practice. With repeats the folds are not independent, so this understates
+//! the uncertainty somewhat; the report says so.
+
+use crate::spec::{Metric, Rule};
+
+/// Scores of one candidate setting.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SettingScore {
+    pub id: String,
+    pub effective_df: f64,
+    pub train_score: f64,
+    pub fold_scores: Vec<f64>,
+    pub cv_score: f64,
+    pub cv_se: f64,
+}
+
+impl SettingScore {
+    /// Summarises fold scores (in fold order, repeats concatenated).
+    pub fn new(id: String, effective_df: f64, train_score: f64, fold_scores: Vec<f64>) -> Self {
+        let (cv_score, cv_se) = mean_and_standard_error(&fold_scores);
+        SettingScore {
+            id,
+            effective_df,
+            train_score,
+            fold_scores,
+            cv_score,
+            cv_se,
+        }
+    }
+}
+
+/// Mean and standard error of the mean (sample SD / √n), summed in order.
+pub fn mean_and_standard_error(values: &[f64]) -> (f64, f64) {
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    if values.len() < 2 {
+        return (mean, f64::NAN);
+    }
+    let ss: f64 = values.iter().map(|v| (v - mean) * (v - mean)).sum();
+    (mean, (ss / (n - 1.0)).sqrt() / n.sqrt())
+}
+
+/// The outcome of a choice, with what a reviewer needs to follow it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Choice {
+    /// Index of the chosen setting.
+    pub chosen: usize,
+    /// Index of the setting with the best cross-validated score.
+    pub best: usize,
+    /// Scores no worse than this were eligible (one-se rule only).
+    pub threshold: Option<f64>,
+}
+
+/// Chooses among `scores` by `rule`. Ties on the score go to the earlier
+/// setting in spec order; ties on effective df under one-se go to the better
+/// score, then the earlier setting.
+pub fn choose(scores: &[SettingScore], metric: Metric, rule: Rule) -> Choice {
+    let mut best = 0;
+    for (i, s) in scores.iter().enumerate() {
+        if metric.better(s.cv_score, scores[best].cv_score) {
+            best = i;
+        }
+    }
+    match rule {
+        Rule::Lowest => Choice {
+            chosen: best,
+            best,
+            threshold: None,
+        },
+        Rule::OneSe => {
+            let se = if scores[best].cv_se.is_finite() {
+                scores[best].cv_se
+            } else {
+                0.0
+            };
+            let threshold = if metric.higher_is_better() {
+                scores[best].cv_score - se
+            } else {
+                scores[best].cv_score + se
+            };
+            let eligible = |s: &SettingScore| {
+                if metric.higher_is_better() {
+                    s.cv_score >= threshold
+                } else {
+                    s.cv_score <= threshold
+                }
+            };
+            let mut chosen = best;
+            for (i, s) in scores.iter().enumerate() {
+                if !eligible(s) {
+                    continue;
+                }
+                let current = &scores[chosen];
+                let simpler = s.effective_df < current.effective_df;
+                let as_simple_but_better = s.effective_df == current.effective_df
+                    && metric.better(s.cv_score, current.cv_score);
+                if simpler || as_simple_but_better {
+                    chosen = i;
+                }
+            }
+            Choice {
+                chosen,
+                best,
+                threshold: Some(threshold),
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn row(id: &str, df: f64, cv: f64, se: f64) -> SettingScore {
+        SettingScore {
+            id: id.into(),
+            effective_df: df,
+            train_score: 0.0,
+            fold_scores: vec![],
+            cv_score: cv,
+            cv_se: se,
+        }
+    }
+
+    /// A hand-made table: degree 4 is best (0.90 ± 0.05); degrees 2 and 3 lie
+    /// within one SE (≤ 0.95), degree 1 does not. The one-standard-error rule
+    /// (common practice) picks the least flexible eligible setting: degree 2.
+    fn table() -> Vec<SettingScore> {
+        vec![
+            row("p/degree=1", 2.0, 1.40, 0.08),
+            row("p/degree=2", 3.0, 0.95, 0.06),
+            row("p/degree=3", 4.0, 0.93, 0.05),
+            row("p/degree=4", 5.0, 0.90, 0.05),
+            row("p/degree=8", 9.0, 0.97, 0.07),
+            row("knn/k=3", 33.3, 0.92, 0.04),
+        ]
+    }
+
+    #[test]
+    fn one_se_picks_the_least_flexible_within_one_se() {
+        let choice = choose(&table(), Metric::Mse, Rule::OneSe);
+        assert_eq!(choice.best, 3);
+        assert_eq!(choice.chosen, 1);
+        assert_eq!(choice.threshold, Some(0.90 + 0.05));
+    }
+
+    #[test]
+    fn lowest_picks_the_minimum() {
+        let choice = choose(&table(), Metric::Mse, Rule::Lowest);
+        assert_eq!(choice.chosen, 3);
+    }
+
+    #[test]
+    fn higher_is_better_for_r2() {
+        let scores = vec![
+            row("a", 2.0, 0.60, 0.02),
+            row("b", 4.0, 0.71, 0.02),
+            row("c", 8.0, 0.72, 0.02),
+        ];
+        assert_eq!(choose(&scores, Metric::R2, Rule::Lowest).chosen, 2);
+        assert_eq!(choose(&scores, Metric::R2, Rule::OneSe).chosen, 1);
+    }
+
+    #[test]
+    fn standard_error_of_the_mean() {
+        // Sample SD of (1, 2, 3, 4) is sqrt(5/3); SE = that / 2 (definition).
+        let (mean, se) = mean_and_standard_error(&[1.0, 2.0, 3.0, 4.0]);
+        assert_eq!(mean, 2.5);
+        assert!((se - (5.0f64 / 3.0).sqrt() / 2.0).abs() < 1e-15);
+    }
+}

@@ -1,0 +1,275 @@
+//! Loading the data table: a CSV file with a header, read into numeric
+//! columns for the target and features plus text columns for row identity
+//! (key), groups and fold labels.
+//!
+//! Every problem is reported with the file, the line (as a text editor counts
+//! it, header = line 1), the column and the offending text.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use crate::error::DataError;
+use crate::spec::MissingPolicy;
+
+/// Which columns to read and how.
+#[derive(Debug, Clone)]
+pub struct TableRequest {
+    /// Columns that must hold finite numbers (target first, then features).
+    pub numeric: Vec<String>,
+    /// Columns read as text (key, group, fold labels).
+    pub text: Vec<String>,
+    pub missing: MissingPolicy,
+}
+
+/// A loaded table: only the requested columns, rows in file order.
+#[derive(Debug, Clone)]
+pub struct Table {
+    /// The path as the user gave it (relative to the spec's folder when relative).
+    pub path: PathBuf,
+    /// blake3 digest of the file's bytes, hex.
+    pub digest: String,
+    pub numeric: BTreeMap<String, Vec<f64>>,
+    pub text: BTreeMap<String, Vec<String>>,
+    /// File line of each kept row (header = 1).
+    pub lines: Vec<u64>,
+    /// 1-based position of each kept row among the file's data rows, counted
+    /// before any rows are dropped; the default row identity for splits.
+    pub row_numbers: Vec<u64>,
+    /// Rows dropped under `missing = "drop-rows"`.
+    pub dropped: usize,
+}
+
+impl Table {
+    pub fn len(&self) -> usize {
+        self.lines.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.lines.is_empty()
+    }
+
+    /// A numeric column that was requested.
+    pub fn column(&self, name: &str) -> &[f64] {
+        &self.numeric[name]
+    }
+
+    /// A text column that was requested.
+    pub fn text_column(&self, name: &str) -> &[String] {
+        &self.text[name]
+    }
+}
+
+/// Reads `path` (already resolved against the spec folder); `shown` is the
+/// path as messages should print it.
+pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, DataError> {
+    let bytes = std::fs::read(path).map_err(|source| DataError::Read {
+        path: shown.to_path_buf(),
+        source,
+    })?;
+    let digest = blake3::hash(&bytes).to_hex().to_string();
+    let table_error = |message: String| DataError::Table {
+        path: shown.to_path_buf(),
+        message,
+    };
+
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(false)
+        .from_reader(bytes.as_slice());
+    let header = reader
+        .headers()
+        .map_err(|e| table_error(format!("cannot read the header: {e}")))?
+        .clone();
+    let header: Vec<String> = header.iter().map(|h| h.trim().to_string()).collect();
+    if header.iter().all(|h| h.is_empty()) {
+        return Err(table_error("the file is empty: no header row".into()));
+    }
+
+    let position = |name: &str| -> Result<usize, DataError> {
+        header.iter().position(|h| h == name).ok_or_else(|| {
+            let allowed: Vec<&str> = header.iter().map(String::as_str).collect();
+            let hint = crate::spec::closest(name, &allowed)
+                .map(|w| format!(" (did you mean \"{w}\"?)"))
+                .unwrap_or_default();
+            table_error(format!(
+                "no column named \"{name}\"{hint}; the header has: {}",
+                header.join(", ")
+            ))
+        })
+    };
+    let numeric_at: Vec<(String, usize)> = request
+        .numeric
+        .iter()
+        .map(|name| Ok((name.clone(), position(name)?)))
+        .collect::<Result<_, DataError>>()?;
+    let text_at: Vec<(String, usize)> = request
+        .text
+        .iter()
+        .map(|name| Ok((name.clone(), position(name)?)))
+        .collect::<Result<_, DataError>>()?;
+
+    let mut numeric: BTreeMap<String, Vec<f64>> = request
+        .numeric
+        .iter()
+        .map(|n| (n.clone(), Vec::new()))
+        .collect();
+    let mut text: BTreeMap<String, Vec<String>> = request
+        .text
+        .iter()
+        .map(|n| (n.clone(), Vec::new()))
+        .collect();
+    let mut lines = Vec::new();
+    let mut row_numbers = Vec::new();
+    let mut dropped = 0;
+    let mut data_rows: u64 = 0;
+
+    for record in reader.records() {
+        let record = record.map_err(|e| match e.kind() {
+            csv::ErrorKind::UnequalLengths {
+                pos,
+                expected_len,
+                len,
+            } => table_error(format!(
+                "line {}: the row has {len} fields but the header has {expected_len}",
+                pos.as_ref().map_or(0, |p| p.line())
+            )),
+            _ => table_error(format!("cannot read the table: {e}")),
+        })?;
+        data_rows += 1;
+        let line = record.position().map_or(data_rows + 1, |p| p.line());
+        let cell_error = |column: &str, message: String| DataError::Cell {
+            path: shown.to_path_buf(),
+            line,
+            column: column.to_string(),
+            message,
+        };
+
+        let mut values = Vec::with_capacity(numeric_at.len());
+        let mut has_missing = false;
+        for (name, at) in &numeric_at {
+            let raw = record.get(*at).unwrap_or("");
+            let trimmed = raw.trim();
+            if trimmed.is_empty() {
+                if request.missing == MissingPolicy::DropRows {
+                    has_missing = true;
+                    continue;
+                }
+                return Err(cell_error(
+                    name,
+                    "the cell is empty; fill it, or set `missing = \"drop-rows\"` in [data]".into(),
+                ));
+            }
+            let value: f64 = trimmed
+                .parse()
+                .map_err(|_| cell_error(name, format!("cannot read \"{raw}\" as a number")))?;
+            if !value.is_finite() {
+                return Err(cell_error(
+                    name,
+                    format!("\"{raw}\" is not a finite number"),
+                ));
+            }
+            values.push(value);
+        }
+        let mut texts = Vec::with_capacity(text_at.len());
+        for (name, at) in &text_at {
+            let raw = record.get(*at).unwrap_or("").trim();
+            if raw.is_empty() {
+                if request.missing == MissingPolicy::DropRows {
+                    has_missing = true;
+                    continue;
+                }
+                return Err(cell_error(name, "the cell is empty".into()));
+            }
+            texts.push(raw.to_string());
+        }
+        if has_missing {
+            dropped += 1;
+            continue;
+        }
+        for ((name, _), value) in numeric_at.iter().zip(values) {
+            numeric.get_mut(name).expect("requested column").push(value);
+        }
+        for ((name, _), value) in text_at.iter().zip(texts) {
+            text.get_mut(name).expect("requested column").push(value);
+        }
+        lines.push(line);
+        row_numbers.push(data_rows);
+    }
+
+    if data_rows == 0 {
+        return Err(table_error("the table has a header but no rows".into()));
+    }
+    if lines.is_empty() {
+        return Err(table_error(format!(
+            "all {dropped} rows have an empty cell in a used column; none are left"
+        )));
+    }
+    Ok(Table {
+        path: shown.to_path_buf(),
+        digest,
+        numeric,
+        text,
+        lines,
+        row_numbers,
+        dropped,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn request() -> TableRequest {
+        TableRequest {
+            numeric: vec!["y".into(), "x".into()],
+            text: vec![],
+            missing: MissingPolicy::Error,
+        }
+    }
+
+    fn load_text(text: &str, request: &TableRequest) -> Result<Table, DataError> {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("t.csv");
+        std::fs::write(&path, text).unwrap();
+        load(&path, Path::new("t.csv"), request)
+    }
+
+    #[test]
+    fn reads_requested_columns_in_file_order() {
+        let table = load_text("x,y,z\n1,2,a\n3,4,b\n", &request()).unwrap();
+        assert_eq!(table.column("x"), &[1.0, 3.0]);
+        assert_eq!(table.column("y"), &[2.0, 4.0]);
+        assert_eq!(table.lines, vec![2, 3]);
+    }
+
+    #[test]
+    fn non_numeric_cell_names_line_column_and_text() {
+        let err = load_text("x,y\n1,2\n3,abc\n", &request())
+            .unwrap_err()
+            .to_string();
+        assert_eq!(
+            err,
+            "t.csv: line 3, column \"y\": cannot read \"abc\" as a number"
+        );
+    }
+
+    #[test]
+    fn drop_rows_counts_what_it_drops() {
+        let mut req = request();
+        req.missing = MissingPolicy::DropRows;
+        let table = load_text("x,y\n1,2\n ,4\n5,6\n", &req).unwrap();
+        assert_eq!(table.dropped, 1);
+        assert_eq!(table.column("x"), &[1.0, 5.0]);
+        assert_eq!(table.row_numbers, vec![1, 3]);
+    }
+
+    #[test]
+    fn nan_and_infinity_are_rejected() {
+        for bad in ["NaN", "inf", "-Infinity"] {
+            let err = load_text(&format!("x,y\n1,{bad}\n"), &request())
+                .unwrap_err()
+                .to_string();
+            assert!(err.contains("not a finite number"), "{err}");
+        }
+    }
+}

@@ -1,0 +1,115 @@
+//! Error kinds of heldout, one enum per concern, and how each maps to an exit code.
+//!
+//! Messages name what a person needs to fix the problem: the file, the spec key,
+//! the row and column, the offending text. `anyhow` is used only at the edge
+//! (`commands`, `main`), where these typed errors are wrapped with context.
+
+use std::path::PathBuf;
+
+/// Exit codes of the command-line interface (DESIGN.md §2.2).
+pub mod exit {
+    /// Everything went well.
+    pub const OK: u8 = 0;
+    /// `verify` found a difference.
+    pub const MISMATCH: u8 = 1;
+    /// Bad input: spec, data or arguments.
+    pub const BAD_INPUT: u8 = 2;
+    /// A bug or an environment failure that is not the user's input.
+    pub const INTERNAL: u8 = 3;
+}
+
+/// A spec that cannot be read, parsed or validated.
+#[derive(Debug, thiserror::Error)]
+pub enum SpecError {
+    #[error("{path}: cannot read the spec: {source}")]
+    Read {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("{path}: the spec must end in .toml, .yaml or .yml")]
+    UnknownFormat { path: PathBuf },
+    #[error("{location}: {message}{hint}")]
+    Parse {
+        location: String,
+        message: String,
+        hint: String,
+    },
+    #[error("{path}: {key}: {message}")]
+    Invalid {
+        path: PathBuf,
+        key: String,
+        message: String,
+    },
+}
+
+/// A data table that cannot be read or does not fit the spec.
+#[derive(Debug, thiserror::Error)]
+pub enum DataError {
+    #[error("{path}: cannot read the data table: {source}")]
+    Read {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("{path}: {message}")]
+    Table { path: PathBuf, message: String },
+    #[error("{path}: line {line}, column \"{column}\": {message}")]
+    Cell {
+        path: PathBuf,
+        line: u64,
+        column: String,
+        message: String,
+    },
+}
+
+/// A fit that cannot be carried out on the rows it was given.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum FitError {
+    #[error("{setting}: needs at least {needed} training rows, the fold has {available}")]
+    TooFewRows {
+        setting: String,
+        needed: usize,
+        available: usize,
+    },
+    #[error("feature \"{feature}\" is constant ({value}) in the training rows, so {why}")]
+    ConstantFeature {
+        feature: String,
+        value: f64,
+        why: &'static str,
+    },
+    #[error(
+        "{setting}: the design is rank-deficient (basis column {column} is a combination of the \
+         others); lower the degree or drop a feature"
+    )]
+    RankDeficient { setting: String, column: usize },
+}
+
+/// A `FitError` with the candidate and fold it happened in.
+#[derive(Debug, thiserror::Error)]
+#[error("candidate {candidate}, {fold}: {source}")]
+pub struct FitFailure {
+    pub candidate: String,
+    pub fold: String,
+    pub source: FitError,
+}
+
+/// Wrong use of the command line that clap cannot catch.
+#[derive(Debug, thiserror::Error)]
+#[error("{0}")]
+pub struct UsageError(pub String);
+
+/// Chooses the exit code for an error chain: bad input (2) when any link is one
+/// of the input error kinds above, internal (3) otherwise.
+pub fn exit_code_for(error: &anyhow::Error) -> u8 {
+    let bad_input = error.chain().any(|cause| {
+        cause.is::<SpecError>()
+            || cause.is::<DataError>()
+            || cause.is::<FitFailure>()
+            || cause.is::<FitError>()
+            || cause.is::<UsageError>()
+    });
+    if bad_input {
+        exit::BAD_INPUT
+    } else {
+        exit::INTERNAL
+    }
+}

@@ -1,0 +1,207 @@
+//! `linear`: ordinary least squares on the features as given.
+//!
+//! Columns are centred (with an intercept) and scaled to unit spread before
+//! one Householder QR; coefficients are mapped back to the raw units of the
+//! features. Centring and scaling keep collinear data such as Longley (1967)
+//! well inside double precision; the normal equations are never formed.
+
+use nalgebra::DMatrix;
+
+use super::double_double::DoubleDouble;
+use super::least_squares::{predict_leading, NestedLeastSquares, RawRefinement};
+use super::{mean_and_sd, require_spread, Family, Setting, SettingFit};
+use crate::error::FitError;
+
+/// Least squares on the features, with or without an intercept.
+#[derive(Debug, Clone)]
+pub struct Linear {
+    pub features: Vec<String>,
+    pub intercept: bool,
+}
+
+/// The affine map of one feature onto a well-scaled column.
+#[derive(Debug, Clone, Copy)]
+struct ColumnScale {
+    shift: f64,
+    scale: f64,
+}
+
+impl Linear {
+    fn scales(&self, x_train: &DMatrix<f64>) -> Vec<ColumnScale> {
+        x_train
+            .column_iter()
+            .map(|column| {
+                if self.intercept {
+                    let (mean, sd) = mean_and_sd(column.iter().copied());
+                    ColumnScale {
+                        shift: mean,
+                        scale: sd,
+                    }
+                } else {
+                    // No intercept: the model must stay a line through the
+                    // origin, so scale without shifting (by the root mean square).
+                    let n = column.len() as f64;
+                    let rms = (column.iter().map(|v| v * v).sum::<f64>() / n).sqrt();
+                    ColumnScale {
+                        shift: 0.0,
+                        scale: if rms > 0.0 { rms } else { 1.0 },
+                    }
+                }
+            })
+            .collect()
+    }
+
+    /// Raw-unit coefficients (intercept first) from coefficients on the
+    /// scaled columns; linear in `gamma`.
+    fn raw_coefficients(&self, gamma: &[f64], scales: &[ColumnScale]) -> Vec<f64> {
+        let offset = usize::from(self.intercept);
+        let slopes: Vec<f64> = scales
+            .iter()
+            .enumerate()
+            .map(|(j, s)| gamma[j + offset] / s.scale)
+            .collect();
+        let mut raw = Vec::with_capacity(slopes.len() + offset);
+        if self.intercept {
+            let shifted: f64 = slopes.iter().zip(scales).map(|(b, s)| b * s.shift).sum();
+            raw.push(gamma[0] - shifted);
+        }
+        raw.extend(slopes);
+        raw
+    }
+
+    fn coefficient_names(&self) -> Vec<String> {
+        let intercept = self.intercept.then(|| "intercept".to_string());
+        intercept
+            .into_iter()
+            .chain(self.features.iter().cloned())
+            .collect()
+    }
+
+    fn design(&self, x: &DMatrix<f64>, scales: &[ColumnScale]) -> DMatrix<f64> {
+        let offset = usize::from(self.intercept);
+        DMatrix::from_fn(x.nrows(), x.ncols() + offset, |i, j| {
+            if j < offset {
+                1.0
+            } else {
+                let s = scales[j - offset];
+                (x[(i, j - offset)] - s.shift) / s.scale
+            }
+        })
+    }
+}
+
+impl Family for Linear {
+    fn family(&self) -> &'static str {
+        "linear"
+    }
+
+    fn features(&self) -> &[String] {
+        &self.features
+    }
+
+    fn settings(&self) -> Vec<Setting> {
+        vec![Setting::none()]
+    }
+
+    fn fit_path(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+        x_eval: &DMatrix<f64>,
+        with_coefficients: bool,
+    ) -> Result<Vec<SettingFit>, FitError> {
+        let columns = self.features.len() + usize::from(self.intercept);
+        if x_train.nrows() < columns {
+            return Err(FitError::TooFewRows {
+                setting: "linear".into(),
+                needed: columns,
+                available: x_train.nrows(),
+            });
+        }
+        if self.intercept {
+            require_spread(
+                &self.features,
+                x_train,
+                "a linear fit cannot tell it from the intercept",
+            )?;
+        }
+        let scales = self.scales(x_train);
+        let design = self.design(x_train, &scales);
+        let solver = NestedLeastSquares::new(design.clone(), y_train);
+        let gamma = solver
+            .solve_leading(columns)
+            .map_err(|column| FitError::RankDeficient {
+                setting: "linear".into(),
+                column: column + 1,
+            })?;
+        let train_pred = predict_leading(&design, &gamma);
+        let eval_pred = predict_leading(&self.design(x_eval, &scales), &gamma);
+
+        let coefficients = with_coefficients.then(|| {
+            let to_raw = |g: &[f64]| self.raw_coefficients(g, &scales);
+            let raw: Vec<DoubleDouble> = (0..x_train.nrows())
+                .flat_map(|i| {
+                    let intercept = self.intercept.then_some(DoubleDouble::from_f64(1.0));
+                    intercept.into_iter().chain(
+                        (0..x_train.ncols()).map(move |j| DoubleDouble::from_f64(x_train[(i, j)])),
+                    )
+                })
+                .collect();
+            let raw_entry = |i: usize, k: usize| raw[i * columns + k];
+            let values = solver.refined_raw(
+                columns,
+                gamma.as_slice(),
+                &RawRefinement {
+                    to_raw: &to_raw,
+                    raw_entry: &raw_entry,
+                    rows: x_train.nrows(),
+                    y: y_train,
+                },
+            );
+            self.coefficient_names().into_iter().zip(values).collect()
+        });
+        Ok(vec![SettingFit {
+            train_pred,
+            eval_pred,
+            effective_df: columns as f64,
+            coefficients,
+        }])
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn recovers_an_exact_plane() {
+        // An exact plane is reproduced to rounding (property of least squares).
+        let x = DMatrix::from_fn(8, 2, |i, j| ((i * 7 + j * 3) % 11) as f64 + j as f64 * 0.5);
+        let y: Vec<f64> = (0..8)
+            .map(|i| 1.5 + 2.0 * x[(i, 0)] - 0.25 * x[(i, 1)])
+            .collect();
+        let linear = Linear {
+            features: vec!["a".into(), "b".into()],
+            intercept: true,
+        };
+        let fit = &linear.fit_path(&x, &y, &x, true).unwrap()[0];
+        let coefficients = fit.coefficients.as_ref().unwrap();
+        let expected = [1.5, 2.0, -0.25];
+        for ((_, got), want) in coefficients.iter().zip(expected) {
+            assert!((got - want).abs() < 1e-12, "{got} vs {want}");
+        }
+        assert_eq!(fit.effective_df, 3.0);
+    }
+
+    #[test]
+    fn constant_feature_is_named() {
+        let x = DMatrix::from_fn(5, 2, |i, j| if j == 1 { 4.0 } else { i as f64 });
+        let y = [1.0, 2.0, 3.0, 4.0, 6.0];
+        let linear = Linear {
+            features: vec!["a".into(), "wind".into()],
+            intercept: true,
+        };
+        let err = linear.fit_path(&x, &y, &x, true).unwrap_err();
+        assert!(matches!(err, FitError::ConstantFeature { ref feature, .. } if feature == "wind"));
+    }
+}

@@ -1,0 +1,153 @@
+//! Model families. The unit of work is one fit of a family's whole grid of
+//! settings on one training fold ([`Family::fit_path`]): path-aware fitting
+//! shares the expensive part (one QR, one neighbour search) across settings.
+//!
+//! Adding a family: a new file here, a variant of [`crate::spec::FamilySpec`],
+//! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
+
+mod double_double;
+mod least_squares;
+pub mod linear;
+pub mod nearest_neighbors;
+pub mod polynomial;
+
+use std::fmt;
+
+use nalgebra::DMatrix;
+
+use crate::error::FitError;
+use crate::spec::FamilySpec;
+
+/// The value of a family's tuning parameter.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum SettingValue {
+    Count(usize),
+}
+
+impl fmt::Display for SettingValue {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            SettingValue::Count(n) => write!(f, "{n}"),
+        }
+    }
+}
+
+/// One point of a family's grid; `None` for families without a tuning parameter.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Setting {
+    pub param: Option<(&'static str, SettingValue)>,
+}
+
+impl Setting {
+    pub fn none() -> Self {
+        Setting { param: None }
+    }
+
+    pub fn count(name: &'static str, value: usize) -> Self {
+        Setting {
+            param: Some((name, SettingValue::Count(value))),
+        }
+    }
+}
+
+impl fmt::Display for Setting {
+    /// `degree=3`, or empty for a family without a tuning parameter.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self.param {
+            Some((name, value)) => write!(f, "{name}={value}"),
+            None => Ok(()),
+        }
+    }
+}
+
+/// What one setting's fit yields.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SettingFit {
+    /// Predictions at the training rows, in their order.
+    pub train_pred: Vec<f64>,
+    /// Predictions at the evaluation rows, in their order.
+    pub eval_pred: Vec<f64>,
+    /// Effective degrees of freedom of this fit.
+    pub effective_df: f64,
+    /// Coefficients in the raw units of the features, intercept first, for
+    /// families that have them.
+    pub coefficients: Option<Vec<(String, f64)>>,
+}
+
+/// A model family with its grid of settings, bound to its features.
+pub trait Family: Send + Sync {
+    /// The family's name as written in specs (`"polynomial"`).
+    fn family(&self) -> &'static str;
+
+    /// Features this family uses, in design-column order.
+    fn features(&self) -> &[String];
+
+    /// The grid, in the order the spec lists it.
+    fn settings(&self) -> Vec<Setting>;
+
+    /// Version of the fitting algorithm; bump it when numbers may change.
+    fn algorithm_version(&self) -> u32 {
+        1
+    }
+
+    /// Fits every setting on `(x_train, y_train)` and predicts at `x_eval`
+    /// (both with one column per feature, in [`Family::features`] order).
+    /// Raw-unit coefficients are computed only when `with_coefficients` is set
+    /// (the final fit), since refining them costs more than the fit.
+    fn fit_path(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+        x_eval: &DMatrix<f64>,
+        with_coefficients: bool,
+    ) -> Result<Vec<SettingFit>, FitError>;
+}
+
+/// Turns one validated `[[candidate]]` into its family, bound to `features`.
+pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
+    match spec {
+        FamilySpec::Linear { intercept, .. } => Box::new(linear::Linear {
+            features,
+            intercept: *intercept,
+        }),
+        FamilySpec::Polynomial {
+            intercept, degree, ..
+        } => Box::new(polynomial::Polynomial {
+            features,
+            intercept: *intercept,
+            degrees: degree.clone(),
+        }),
+        FamilySpec::NearestNeighbors { k, .. } => Box::new(nearest_neighbors::NearestNeighbors {
+            features,
+            ks: k.clone(),
+        }),
+    }
+}
+
+/// Mean and population standard deviation of a column, summed in row order.
+pub(crate) fn mean_and_sd(values: impl ExactSizeIterator<Item = f64> + Clone) -> (f64, f64) {
+    let n = values.len() as f64;
+    let mean = values.clone().sum::<f64>() / n;
+    let var = values.map(|v| (v - mean) * (v - mean)).sum::<f64>() / n;
+    (mean, var.sqrt())
+}
+
+/// Fails with [`FitError::ConstantFeature`] when a training column has no spread.
+pub(crate) fn require_spread(
+    features: &[String],
+    x_train: &DMatrix<f64>,
+    why: &'static str,
+) -> Result<(), FitError> {
+    for (j, name) in features.iter().enumerate() {
+        let column = x_train.column(j);
+        let first = column[0];
+        if column.iter().all(|&v| v == first) {
+            return Err(FitError::ConstantFeature {
+                feature: name.clone(),
+                value: first,
+                why,
+            });
+        }
+    }
+    Ok(())
+}

@@ -1,0 +1,239 @@
+//! The resolved plan: a validated spec bound to its data. Columns are loaded,
+//! each candidate becomes a [`Family`] bound to its features, and rows are
+//! assigned to the test set and folds. Nothing is fitted here.
+
+use std::path::{Path, PathBuf};
+
+use nalgebra::DMatrix;
+
+use crate::data::{self, Table, TableRequest};
+use crate::error::DataError;
+use crate::models::{self, Family, Setting};
+use crate::spec::{FamilySpec, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
+use crate::split::{self, Assignment, FoldScheme};
+
+/// One candidate of the spec, ready to fit.
+pub struct CandidatePlan {
+    /// Family name, or the candidate's `label`; the first part of every id.
+    pub stem: String,
+    pub family: Box<dyn Family>,
+    pub settings: Vec<Setting>,
+}
+
+impl CandidatePlan {
+    /// `polynomial/degree=3`, or the stem alone for a family without settings.
+    pub fn id(&self, setting: &Setting) -> String {
+        match setting.param {
+            Some(_) => format!("{}/{setting}", self.stem),
+            None => self.stem.clone(),
+        }
+    }
+}
+
+/// Everything needed to execute an experiment.
+pub struct ExperimentPlan {
+    pub spec: LoadedSpec,
+    pub table: Table,
+    pub target: Vec<f64>,
+    pub assignment: Assignment,
+    pub candidates: Vec<CandidatePlan>,
+}
+
+impl ExperimentPlan {
+    /// The rows × features matrix of `rows` for one candidate's features.
+    pub fn design(&self, candidate: &CandidatePlan, rows: &[usize]) -> DMatrix<f64> {
+        let columns: Vec<&[f64]> = candidate
+            .family
+            .features()
+            .iter()
+            .map(|f| self.table.column(f))
+            .collect();
+        DMatrix::from_fn(rows.len(), columns.len(), |i, j| columns[j][rows[i]])
+    }
+
+    /// Target values of `rows`.
+    pub fn target_of(&self, rows: &[usize]) -> Vec<f64> {
+        rows.iter().map(|&r| self.target[r]).collect()
+    }
+}
+
+/// Loads the data and resolves the spec into a plan.
+pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
+    let data_spec = spec.data().clone();
+    let split_spec = spec.spec.split.clone();
+
+    let mut numeric = vec![data_spec.target.clone()];
+    let mut candidate_features = Vec::new();
+    for candidate in &spec.spec.candidates {
+        let features = candidate
+            .features_override()
+            .map(<[String]>::to_vec)
+            .unwrap_or_else(|| data_spec.features.clone());
+        for f in &features {
+            if !numeric.contains(f) {
+                numeric.push(f.clone());
+            }
+        }
+        candidate_features.push(features);
+    }
+    for f in &data_spec.features {
+        if !numeric.contains(f) {
+            numeric.push(f.clone());
+        }
+    }
+    let mut text = Vec::new();
+    for name in [&data_spec.key, &data_spec.group, &split_spec.column]
+        .into_iter()
+        .flatten()
+    {
+        if !text.contains(name) {
+            text.push(name.clone());
+        }
+    }
+    let request = TableRequest {
+        numeric,
+        text,
+        missing: data_spec.missing,
+    };
+    let shown = PathBuf::from(&data_spec.table);
+    let resolved = resolve_relative(spec.base_dir(), &shown);
+    let table = data::load(&resolved, &resolved, &request)?;
+    let target = table.column(&data_spec.target).to_vec();
+
+    let table_error = |message: String| DataError::Table {
+        path: table.path.clone(),
+        message,
+    };
+
+    // Units for splitting: groups when declared, otherwise rows.
+    let (identities, unit_of_row): (Vec<String>, Vec<usize>) =
+        match (&data_spec.group, &data_spec.key) {
+            (Some(group), _) => {
+                let labels = table.text_column(group);
+                let mut identities: Vec<String> = Vec::new();
+                let mut index = std::collections::BTreeMap::new();
+                let unit_of_row: Vec<usize> = labels
+                    .iter()
+                    .map(|label| {
+                        *index.entry(label.clone()).or_insert_with(|| {
+                            identities.push(label.clone());
+                            identities.len() - 1
+                        })
+                    })
+                    .collect();
+                (identities, unit_of_row)
+            }
+            (None, Some(key)) => {
+                let keys = table.text_column(key);
+                let mut first_line = std::collections::BTreeMap::new();
+                for (row, k) in keys.iter().enumerate() {
+                    if let Some(line) = first_line.insert(k.as_str(), table.lines[row]) {
+                        return Err(table_error(format!(
+                        "key column \"{key}\" holds \"{k}\" on line {line} and again on line {}; \
+                         a key must identify one row (use `group` for repeated ids)",
+                        table.lines[row]
+                    )));
+                    }
+                }
+                (keys.to_vec(), (0..table.len()).collect())
+            }
+            (None, None) => (
+                table.row_numbers.iter().map(u64::to_string).collect(),
+                (0..table.len()).collect(),
+            ),
+        };
+    let scheme = match split_spec.method {
+        SplitMethod::Kfold => FoldScheme::Kfold {
+            folds: split_spec.folds.unwrap_or(DEFAULT_FOLDS),
+            repeats: split_spec.repeats,
+        },
+        SplitMethod::LeaveOneOut => FoldScheme::LeaveOneOut,
+        SplitMethod::Column => FoldScheme::Column {
+            labels: table
+                .text_column(split_spec.column.as_deref().unwrap_or_default())
+                .to_vec(),
+        },
+        SplitMethod::Ordered => unreachable!("validation rejects ordered splits"),
+    };
+    let assignment = split::assign(
+        spec.spec.experiment.seed,
+        split_spec.holdout,
+        &scheme,
+        &identities,
+        &unit_of_row,
+    )
+    .map_err(|e| table_error(e.to_string()))?;
+
+    if spec.spec.choose.metric == crate::spec::Metric::R2 {
+        if let Some(fold) = assignment.folds.iter().find(|f| f.valid.len() < 2) {
+            return Err(table_error(format!(
+                "fold {} validates on {} row(s); R² needs at least 2 per fold \
+                 (choose another metric or fewer folds)",
+                fold.label,
+                fold.valid.len()
+            )));
+        }
+    }
+
+    let candidates: Vec<CandidatePlan> = spec
+        .spec
+        .candidates
+        .iter()
+        .zip(candidate_features)
+        .map(|(candidate, features)| {
+            let family = models::build(candidate, features);
+            CandidatePlan {
+                stem: candidate
+                    .label()
+                    .unwrap_or(candidate.family_name())
+                    .to_string(),
+                settings: family.settings(),
+                family,
+            }
+        })
+        .collect();
+
+    // A feature with no spread over the fitting rows breaks these fits; say so
+    // now, naming the column, rather than once per fold.
+    for (candidate, raw) in candidates.iter().zip(&spec.spec.candidates) {
+        let needs_spread = !matches!(
+            raw,
+            FamilySpec::Linear {
+                intercept: false,
+                ..
+            }
+        );
+        if !needs_spread {
+            continue;
+        }
+        for feature in candidate.family.features() {
+            let column = table.column(feature);
+            let first = column[assignment.train[0]];
+            if assignment.train.iter().all(|&r| column[r] == first) {
+                return Err(table_error(format!(
+                    "column \"{feature}\" is constant ({first}) over the {} rows used for \
+                     fitting, so candidate {} cannot use it; drop it from the features",
+                    assignment.train.len(),
+                    candidate.stem
+                )));
+            }
+        }
+    }
+
+    Ok(ExperimentPlan {
+        spec,
+        table,
+        target,
+        assignment,
+        candidates,
+    })
+}
+
+/// `path` resolved against the spec's folder when relative.
+fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
+    if path.is_absolute() {
+        path.to_path_buf()
+    } else {
+        base.join(path)
+    }
+}

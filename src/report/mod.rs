@@ -1,0 +1,117 @@
+//! Reports rendered from results: Markdown through minijinja templates, and a
+//! short table for the terminal. Renderers are pure (`&Results` → `String`);
+//! `output` owns the writing.
+
+pub mod markdown;
+pub mod terminal;
+
+use crate::results::Results;
+use crate::spec::Metric;
+
+/// The cautions every report carries (DESIGN.md §8).
+pub const CAUTIONS: [&str; 3] = [
+    "Cross-validated error assumes the rows are exchangeable, unless groups or a time order are \
+     declared in the spec; if rows are related in ways the spec does not declare, these scores \
+     are optimistic.",
+    "Predictions beyond the range of the data used here are extrapolation, which this evidence \
+     does not support.",
+    "A model chosen here still needs independent validation under its owner's model-risk policy \
+     and local regulations before it informs decisions about people, money or safety; defer to \
+     local rules and licensed practice.",
+];
+
+/// Human words for a metric.
+pub fn metric_label(metric: Metric) -> &'static str {
+    match metric {
+        Metric::Mse => "mean squared error (mse)",
+        Metric::Rmse => "root mean squared error (rmse)",
+        Metric::Mae => "mean absolute error (mae)",
+        Metric::R2 => "coefficient of determination (r2)",
+    }
+}
+
+/// How the split reads in a sentence.
+pub fn split_phrase(results: &Results) -> String {
+    use crate::spec::SplitMethod;
+    let s = &results.split;
+    match s.method {
+        SplitMethod::Kfold if s.repeats > 1 => format!(
+            "{}-fold cross-validation repeated {} times",
+            s.folds, s.repeats
+        ),
+        SplitMethod::Kfold => format!("{}-fold cross-validation", s.folds),
+        SplitMethod::LeaveOneOut => "leave-one-out cross-validation".to_string(),
+        SplitMethod::Column => format!(
+            "cross-validation over the {} folds given in the data",
+            s.folds
+        ),
+        SplitMethod::Ordered => "ordered cross-validation".to_string(),
+    }
+}
+
+/// A number for people: four significant digits, scientific when very large
+/// or small. Deterministic: uses only Rust's own float formatting.
+pub fn format_number(value: f64) -> String {
+    if value.is_nan() {
+        return "n/a".to_string();
+    }
+    if value == 0.0 {
+        return "0".to_string();
+    }
+    if value.is_infinite() {
+        return if value > 0.0 { "∞" } else { "-∞" }.to_string();
+    }
+    let scientific = format!("{value:.3e}");
+    let exponent: i32 = scientific
+        .rsplit('e')
+        .next()
+        .and_then(|e| e.parse().ok())
+        .unwrap_or(0);
+    if (-3..6).contains(&exponent) {
+        let decimals = (3 - exponent).max(0) as usize;
+        format!("{value:.decimals$}")
+    } else {
+        scientific
+    }
+}
+
+/// Escapes text from data or the spec for Markdown (including table cells).
+pub fn escape_markdown(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '\\' | '`' | '*' | '_' | '[' | ']' | '|' | '#' | '{' | '}' | '!' => {
+                out.push('\\');
+                out.push(c);
+            }
+            '\n' | '\r' => out.push(' '),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_read_well() {
+        assert_eq!(format_number(0.262_345), "0.2623");
+        assert_eq!(format_number(12.3456), "12.35");
+        assert_eq!(format_number(123456.0), "123456");
+        assert_eq!(format_number(1.5e-7), "1.500e-7");
+        assert_eq!(format_number(0.0), "0");
+    }
+
+    #[test]
+    fn markdown_escaping_neutralises_markup() {
+        assert_eq!(
+            escape_markdown("<script>alert(1)</script> & \"q\" |x|"),
+            "&lt;script&gt;alert(1)&lt;/script&gt; &amp; \"q\" \\|x\\|"
+        );
+    }
+}

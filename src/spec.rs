@@ -1,0 +1,679 @@
+//! The spec file: serde mirrors of its TOML/YAML text, and validation of the
+//! values as a whole before any data is read or any model is fitted.
+//!
+//! This module only reads and checks. Binding columns, expanding grids and
+//! assigning folds happen later, in `plan`; nothing downstream looks at the raw
+//! text again. Unknown keys are errors (`deny_unknown_fields`), reported with
+//! the file, line and column and a "did you mean" hint.
+
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use crate::error::SpecError;
+
+/// The whole spec file as written.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct SpecFile {
+    pub experiment: ExperimentSpec,
+    pub data: Option<DataSpec>,
+    /// Simulation specs are declared in the design but not built yet; the key is
+    /// recognised so that the error can say so plainly.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub simulate: Option<serde_json::Value>,
+    #[serde(default)]
+    pub split: SplitSpec,
+    #[serde(rename = "candidate")]
+    pub candidates: Vec<FamilySpec>,
+    #[serde(default)]
+    pub choose: ChooseSpec,
+    #[serde(default)]
+    pub report: ReportSpec,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct ExperimentSpec {
+    /// Names the output folder: lower-case letters, digits and `-`.
+    pub name: String,
+    #[serde(default)]
+    pub title: Option<String>,
+    /// Master seed: every random stream derives from it.
+    pub seed: u64,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct DataSpec {
+    /// CSV file, relative to the spec file.
+    pub table: String,
+    pub target: String,
+    pub features: Vec<String>,
+    /// Row identity used for split assignment (stable under row reordering).
+    #[serde(default)]
+    pub key: Option<String>,
+    /// Rows of one group never straddle folds or the test set.
+    #[serde(default)]
+    pub group: Option<String>,
+    /// Ordered (time) splits; declared in the design, not built yet.
+    #[serde(default)]
+    pub order: Option<String>,
+    #[serde(default)]
+    pub missing: MissingPolicy,
+}
+
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum MissingPolicy {
+    /// An empty cell in a used column is an error.
+    #[default]
+    Error,
+    /// Rows with an empty cell in a used column are dropped and counted.
+    DropRows,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct SplitSpec {
+    /// Fraction of rows locked away as the final test set; 0 = none.
+    #[serde(default = "default_holdout")]
+    pub holdout: f64,
+    #[serde(default)]
+    pub method: SplitMethod,
+    #[serde(default)]
+    pub folds: Option<usize>,
+    #[serde(default = "default_repeats")]
+    pub repeats: usize,
+    /// With `method = "column"`: the column holding each row's fold label.
+    #[serde(default)]
+    pub column: Option<String>,
+}
+
+fn default_holdout() -> f64 {
+    0.2
+}
+
+fn default_repeats() -> usize {
+    1
+}
+
+/// Folds used when `folds` is not given (common practice: 10-fold).
+pub const DEFAULT_FOLDS: usize = 10;
+
+impl Default for SplitSpec {
+    fn default() -> Self {
+        SplitSpec {
+            holdout: default_holdout(),
+            method: SplitMethod::default(),
+            folds: None,
+            repeats: default_repeats(),
+            column: None,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum SplitMethod {
+    #[default]
+    Kfold,
+    LeaveOneOut,
+    Column,
+    Ordered,
+}
+
+/// One `[[candidate]]` table: a model family and its grid of settings.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(tag = "family", rename_all = "kebab-case", deny_unknown_fields)]
+pub enum FamilySpec {
+    Linear {
+        #[serde(default)]
+        label: Option<String>,
+        #[serde(default)]
+        features: Option<Vec<String>>,
+        #[serde(default = "default_true")]
+        intercept: bool,
+    },
+    Polynomial {
+        #[serde(default)]
+        label: Option<String>,
+        #[serde(default)]
+        features: Option<Vec<String>>,
+        #[serde(default = "default_true")]
+        intercept: bool,
+        degree: Vec<usize>,
+    },
+    NearestNeighbors {
+        #[serde(default)]
+        label: Option<String>,
+        #[serde(default)]
+        features: Option<Vec<String>>,
+        k: Vec<usize>,
+    },
+}
+
+fn default_true() -> bool {
+    true
+}
+
+impl FamilySpec {
+    /// The family's name as written in the spec.
+    pub fn family_name(&self) -> &'static str {
+        match self {
+            FamilySpec::Linear { .. } => "linear",
+            FamilySpec::Polynomial { .. } => "polynomial",
+            FamilySpec::NearestNeighbors { .. } => "nearest-neighbors",
+        }
+    }
+
+    /// The optional label that replaces the family name in candidate ids.
+    pub fn label(&self) -> Option<&str> {
+        match self {
+            FamilySpec::Linear { label, .. }
+            | FamilySpec::Polynomial { label, .. }
+            | FamilySpec::NearestNeighbors { label, .. } => label.as_deref(),
+        }
+    }
+
+    /// The candidate's own feature list, when it overrides `[data] features`.
+    pub fn features_override(&self) -> Option<&[String]> {
+        match self {
+            FamilySpec::Linear { features, .. }
+            | FamilySpec::Polynomial { features, .. }
+            | FamilySpec::NearestNeighbors { features, .. } => features.as_deref(),
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(deny_unknown_fields)]
+pub struct ChooseSpec {
+    #[serde(default)]
+    pub metric: Metric,
+    #[serde(default)]
+    pub rule: Rule,
+}
+
+/// Scoring metric for regression targets.
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum Metric {
+    #[default]
+    Mse,
+    Rmse,
+    Mae,
+    R2,
+}
+
+/// How the winner is chosen from the cross-validated scores.
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum Rule {
+    /// The best cross-validated score.
+    Lowest,
+    /// The one-standard-error rule: the least flexible setting within one
+    /// standard error of the best.
+    #[default]
+    OneSe,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct ReportSpec {
+    #[serde(default = "default_formats")]
+    pub formats: Vec<ReportFormat>,
+}
+
+impl Default for ReportSpec {
+    fn default() -> Self {
+        ReportSpec {
+            formats: default_formats(),
+        }
+    }
+}
+
+fn default_formats() -> Vec<ReportFormat> {
+    vec![ReportFormat::Markdown]
+}
+
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReportFormat {
+    Markdown,
+    Html,
+}
+
+/// A spec read from disk, with the path it came from.
+#[derive(Debug, Clone)]
+pub struct LoadedSpec {
+    pub path: PathBuf,
+    pub spec: SpecFile,
+}
+
+impl LoadedSpec {
+    /// The folder relative paths in the spec are resolved against.
+    pub fn base_dir(&self) -> &Path {
+        self.path.parent().unwrap_or(Path::new(""))
+    }
+
+    /// The `[data]` table: present on every validated non-simulation spec.
+    pub fn data(&self) -> &DataSpec {
+        self.spec
+            .data
+            .as_ref()
+            .expect("validation guarantees a [data] table")
+    }
+}
+
+/// Reads, parses and validates a spec file (TOML or YAML, chosen by extension).
+pub fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
+    let text = std::fs::read_to_string(path).map_err(|source| SpecError::Read {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    let spec = parse(path, &text)?;
+    validate(path, &spec)?;
+    Ok(LoadedSpec {
+        path: path.to_path_buf(),
+        spec,
+    })
+}
+
+/// Parses spec text; the format follows the file extension.
+pub fn parse(path: &Path, text: &str) -> Result<SpecFile, SpecError> {
+    match path.extension().and_then(|e| e.to_str()) {
+        Some("toml") => parse_toml(path, text),
+        Some("yaml") | Some("yml") => parse_yaml(path, text),
+        _ => Err(SpecError::UnknownFormat {
+            path: path.to_path_buf(),
+        }),
+    }
+}
+
+fn parse_toml(path: &Path, text: &str) -> Result<SpecFile, SpecError> {
+    toml::from_str(text).map_err(|err| {
+        let (line, column) = match err.span() {
+            Some(span) => line_and_column(text, span.start),
+            None => (1, 1),
+        };
+        let message = err.message().trim().to_string();
+        SpecError::Parse {
+            location: format!("{}:{line}:{column}", path.display()),
+            hint: did_you_mean(&message),
+            message,
+        }
+    })
+}
+
+fn parse_yaml(path: &Path, text: &str) -> Result<SpecFile, SpecError> {
+    serde_yaml_ng::from_str(text).map_err(|err| {
+        let (line, column) = err
+            .location()
+            .map(|l| (l.line(), l.column()))
+            .unwrap_or((1, 1));
+        let mut message = err.to_string();
+        // The YAML library appends its own position; ours is in front already.
+        if let Some(cut) = message.find(" at line ") {
+            message.truncate(cut);
+        }
+        SpecError::Parse {
+            location: format!("{}:{line}:{column}", path.display()),
+            hint: did_you_mean(&message),
+            message,
+        }
+    })
+}
+
+/// 1-based line and column (in characters) of a byte offset.
+fn line_and_column(text: &str, offset: usize) -> (usize, usize) {
+    let before = &text[..offset.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+    let column = before[line_start..].chars().count() + 1;
+    (line, column)
+}
+
+/// Turns serde's "unknown field `x`, expected one of `a`, `b`" (or "unknown
+/// variant") into a hint naming the closest allowed word, when one is close.
+fn did_you_mean(message: &str) -> String {
+    let unknown = ["unknown field `", "unknown variant `"]
+        .iter()
+        .find_map(|prefix| message.find(prefix).map(|at| at + prefix.len()));
+    let Some(start) = unknown else {
+        return String::new();
+    };
+    let Some(len) = message[start..].find('`') else {
+        return String::new();
+    };
+    let typed = &message[start..start + len];
+    let rest = &message[start + len + 1..];
+    let allowed: Vec<&str> = rest.split('`').skip(1).step_by(2).collect();
+    closest(typed, &allowed)
+        .map(|word| format!(" (did you mean `{word}`?)"))
+        .unwrap_or_default()
+}
+
+/// The allowed word nearest to `typed`, if it is near enough to be a typo.
+pub fn closest<'a>(typed: &str, allowed: &[&'a str]) -> Option<&'a str> {
+    allowed
+        .iter()
+        .map(|word| (strsim::damerau_levenshtein(typed, word), *word))
+        .filter(|(distance, word)| *distance <= 2.max(word.len() / 3))
+        .min_by_key(|(distance, _)| *distance)
+        .map(|(_, word)| word)
+}
+
+/// Checks values that the types alone cannot: ranges, names, grids, and the
+/// combinations of keys. Fails on the first problem, naming the key.
+pub fn validate(path: &Path, spec: &SpecFile) -> Result<(), SpecError> {
+    let invalid = |key: &str, message: String| SpecError::Invalid {
+        path: path.to_path_buf(),
+        key: key.to_string(),
+        message,
+    };
+
+    let name = &spec.experiment.name;
+    if name.is_empty()
+        || !name
+            .chars()
+            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-')
+    {
+        return Err(invalid(
+            "experiment.name",
+            format!("\"{name}\" must use only a-z, 0-9 and '-' (it names the output folder)"),
+        ));
+    }
+
+    if spec.simulate.is_some() {
+        return Err(invalid(
+            "simulate",
+            "simulation specs are not supported by this version of heldout yet".into(),
+        ));
+    }
+    let Some(data) = &spec.data else {
+        return Err(invalid("data", "the spec needs a [data] table".into()));
+    };
+    validate_data(data, &invalid)?;
+    validate_split(&spec.split, &invalid)?;
+
+    if spec.candidates.is_empty() {
+        return Err(invalid(
+            "candidate",
+            "declare at least one [[candidate]]".into(),
+        ));
+    }
+    let mut ids = BTreeSet::new();
+    for (index, candidate) in spec.candidates.iter().enumerate() {
+        let key = format!("candidate[{}] ({})", index + 1, candidate.family_name());
+        validate_candidate(candidate, &data.features, &key, &invalid)?;
+        let stem = candidate.label().unwrap_or(candidate.family_name());
+        if !ids.insert(stem.to_string()) {
+            return Err(invalid(
+                &key,
+                format!(
+                    "a second candidate named \"{stem}\" would give duplicate ids; \
+                     add `label = \"...\"` to tell them apart"
+                ),
+            ));
+        }
+    }
+
+    if spec.report.formats.contains(&ReportFormat::Html) {
+        return Err(invalid(
+            "report.formats",
+            "\"html\" reports are not built yet; use [\"markdown\"]".into(),
+        ));
+    }
+    Ok(())
+}
+
+fn validate_data(
+    data: &DataSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if data.table.trim().is_empty() {
+        return Err(invalid("data.table", "the table path is empty".into()));
+    }
+    validate_feature_list(&data.features, "data.features", invalid)?;
+    if data.features.contains(&data.target) {
+        return Err(invalid(
+            "data.features",
+            format!("the target \"{}\" cannot also be a feature", data.target),
+        ));
+    }
+    if data.order.is_some() {
+        return Err(invalid(
+            "data.order",
+            "ordered (time) splits are not built yet".into(),
+        ));
+    }
+    Ok(())
+}
+
+fn validate_feature_list(
+    features: &[String],
+    key: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if features.is_empty() {
+        return Err(invalid(key, "name at least one feature".into()));
+    }
+    let mut seen = BTreeSet::new();
+    for feature in features {
+        if !seen.insert(feature) {
+            return Err(invalid(key, format!("\"{feature}\" is listed twice")));
+        }
+    }
+    Ok(())
+}
+
+fn validate_split(
+    split: &SplitSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if !(0.0..0.9).contains(&split.holdout) || !split.holdout.is_finite() {
+        return Err(invalid(
+            "split.holdout",
+            format!(
+                "{} is outside [0, 0.9): it is the fraction of rows locked away for the final test",
+                split.holdout
+            ),
+        ));
+    }
+    if split.repeats == 0 {
+        return Err(invalid("split.repeats", "must be at least 1".into()));
+    }
+    match split.method {
+        SplitMethod::Kfold => {
+            if let Some(folds) = split.folds {
+                if folds < 2 {
+                    return Err(invalid(
+                        "split.folds",
+                        format!("{folds} folds: k-fold cross-validation needs at least 2"),
+                    ));
+                }
+            }
+            if split.column.is_some() {
+                return Err(invalid(
+                    "split.column",
+                    "only used with method = \"column\"".into(),
+                ));
+            }
+        }
+        SplitMethod::LeaveOneOut | SplitMethod::Column => {
+            if split.repeats != 1 {
+                return Err(invalid(
+                    "split.repeats",
+                    format!(
+                        "{} repeats: this method has no randomness to repeat",
+                        split.repeats
+                    ),
+                ));
+            }
+            if split.folds.is_some() {
+                return Err(invalid(
+                    "split.folds",
+                    "the fold count follows from the method; remove `folds`".into(),
+                ));
+            }
+            let needs_column = split.method == SplitMethod::Column;
+            if needs_column && split.column.is_none() {
+                return Err(invalid(
+                    "split.column",
+                    "method = \"column\" needs `column = \"<fold column>\"`".into(),
+                ));
+            }
+            if !needs_column && split.column.is_some() {
+                return Err(invalid(
+                    "split.column",
+                    "only used with method = \"column\"".into(),
+                ));
+            }
+        }
+        SplitMethod::Ordered => {
+            return Err(invalid(
+                "split.method",
+                "\"ordered\" (time-ordered) splits are not built yet".into(),
+            ));
+        }
+    }
+    Ok(())
+}
+
+fn validate_candidate(
+    candidate: &FamilySpec,
+    data_features: &[String],
+    key: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if let Some(label) = candidate.label() {
+        let ok = !label.is_empty()
+            && label
+                .chars()
+                .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-');
+        if !ok {
+            return Err(invalid(
+                &format!("{key}.label"),
+                format!("\"{label}\" must use only a-z, 0-9 and '-'"),
+            ));
+        }
+    }
+    if let Some(features) = candidate.features_override() {
+        validate_feature_list(features, &format!("{key}.features"), invalid)?;
+    }
+    let _ = data_features;
+    match candidate {
+        FamilySpec::Linear { .. } => Ok(()),
+        FamilySpec::Polynomial { degree, .. } => {
+            check_grid(degree, 1, 30, &format!("{key}.degree"), "degree", invalid)
+        }
+        FamilySpec::NearestNeighbors { k, .. } => {
+            check_grid(k, 1, usize::MAX, &format!("{key}.k"), "k", invalid)
+        }
+    }
+}
+
+/// A grid must be non-empty, within bounds and free of repeats.
+fn check_grid(
+    values: &[usize],
+    min: usize,
+    max: usize,
+    key: &str,
+    what: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if values.is_empty() {
+        return Err(invalid(key, format!("list at least one {what}")));
+    }
+    let mut seen = BTreeSet::new();
+    for &value in values {
+        if value < min || value > max {
+            return Err(invalid(
+                key,
+                format!("{what} = {value} is outside [{min}, {max}]"),
+            ));
+        }
+        if !seen.insert(value) {
+            return Err(invalid(key, format!("{what} = {value} is listed twice")));
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const MINIMAL: &str = r#"
+[experiment]
+name = "t"
+seed = 1
+
+[data]
+table = "d.csv"
+target = "y"
+features = ["x"]
+
+[[candidate]]
+family = "polynomial"
+degree = [1, 2]
+"#;
+
+    #[test]
+    fn minimal_spec_takes_defaults() {
+        let spec = parse(Path::new("s.toml"), MINIMAL).unwrap();
+        validate(Path::new("s.toml"), &spec).unwrap();
+        assert_eq!(spec.split.holdout, 0.2);
+        assert_eq!(spec.split.method, SplitMethod::Kfold);
+        assert_eq!(spec.choose.rule, Rule::OneSe);
+        assert_eq!(spec.choose.metric, Metric::Mse);
+    }
+
+    #[test]
+    fn unknown_candidate_key_suggests_the_near_one() {
+        let text = MINIMAL.replace("degree = [1, 2]", "degre = [1, 2]");
+        let err = parse(Path::new("s.toml"), &text).unwrap_err().to_string();
+        assert!(err.contains("did you mean `degree`"), "{err}");
+        assert!(err.starts_with("s.toml:"), "{err}");
+    }
+
+    #[test]
+    fn unknown_top_level_key_has_line_and_column() {
+        let text = MINIMAL.replace("seed = 1", "seed = 1\nsed = 2");
+        let err = parse(Path::new("s.toml"), &text).unwrap_err().to_string();
+        assert!(err.starts_with("s.toml:5:1:"), "{err}");
+        assert!(err.contains("did you mean `seed`"), "{err}");
+    }
+
+    #[test]
+    fn yaml_and_toml_parse_to_the_same_spec() {
+        let yaml = r#"
+experiment: {name: t, seed: 1}
+data: {table: d.csv, target: y, features: [x]}
+candidate:
+  - {family: polynomial, degree: [1, 2]}
+"#;
+        let from_yaml = parse(Path::new("s.yaml"), yaml).unwrap();
+        let from_toml = parse(Path::new("s.toml"), MINIMAL).unwrap();
+        assert_eq!(from_yaml, from_toml);
+    }
+
+    #[test]
+    fn bad_values_name_their_key() {
+        let text = MINIMAL.replace("degree = [1, 2]", "degree = [0, 2]");
+        let spec = parse(Path::new("s.toml"), &text).unwrap();
+        let err = validate(Path::new("s.toml"), &spec)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("candidate[1] (polynomial).degree"), "{err}");
+        assert!(err.contains("degree = 0"), "{err}");
+    }
+
+    #[test]
+    fn closest_ignores_far_words() {
+        assert_eq!(closest("folds", &["folds", "fold"]), Some("folds"));
+        assert_eq!(closest("zzzzzz", &["holdout", "method"]), None);
+    }
+}

@@ -1,0 +1,8 @@
+//! Integration tests that run the `heldout` binary as a user would.
+//!
+//! One crate, one module per concern; each test works in its own temporary
+//! directory (see `util`).
+
+mod cv_reference;
+mod nist;
+mod util;

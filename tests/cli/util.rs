@@ -1,0 +1,63 @@
+//! Helpers shared by the integration tests: run the binary, read outputs.
+
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// A command for the `heldout` binary built by this crate.
+pub fn heldout() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_heldout"))
+}
+
+/// The crate root (where `Cargo.toml` lives).
+pub fn crate_root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// The shared reference folder beside the repository (`../shared/reference`).
+pub fn shared_reference() -> PathBuf {
+    crate_root().join("..").join("shared").join("reference")
+}
+
+/// Runs `heldout` with `args` in `dir`; returns the finished process output.
+pub fn run_in(dir: &Path, args: &[&str]) -> Output {
+    heldout()
+        .current_dir(dir)
+        .args(args)
+        .output()
+        .expect("the heldout binary could not be started")
+}
+
+/// Stderr of a finished process as text.
+pub fn stderr_of(output: &Output) -> String {
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
+/// Stdout of a finished process as text.
+pub fn stdout_of(output: &Output) -> String {
+    String::from_utf8_lossy(&output.stdout).into_owned()
+}
+
+/// Reads and parses a JSON file.
+pub fn read_json(path: &Path) -> serde_json::Value {
+    let text = std::fs::read_to_string(path)
+        .unwrap_or_else(|e| panic!("cannot read {}: {e}", path.display()));
+    serde_json::from_str(&text).unwrap_or_else(|e| panic!("{} is not JSON: {e}", path.display()))
+}
+
+/// Log relative error (digits of agreement) of `computed` against `certified`,
+/// following McCullough (1998): absolute error when the certified value is 0,
+/// capped at 15 digits and floored at 0.
+pub fn log_relative_error(computed: f64, certified: f64) -> f64 {
+    let err = if certified == 0.0 {
+        computed.abs()
+    } else {
+        (computed - certified).abs() / certified.abs()
+    };
+    if err == 0.0 {
+        15.0
+    } else {
+        (-err.log10()).clamp(0.0, 15.0)
+    }
+}
