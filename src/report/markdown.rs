@@ -18,7 +18,7 @@ pub fn render(results: &Results, inputs: &ReportInputs<'_>) -> Result<String, mi
     let mut env = Environment::new();
     env.set_trim_blocks(true);
     env.add_filter("num", |v: f64| super::format_number(v));
-    env.add_filter("full", |v: f64| format!("{v:e}"));
+    env.add_filter("exact", |v: f64| super::format_exact(v));
     env.add_filter("md", |v: String| super::escape_markdown(&v));
     env.add_template("report.md", TEMPLATE)?;
 

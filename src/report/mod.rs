@@ -75,6 +75,17 @@ pub fn format_number(value: f64) -> String {
     }
 }
 
+/// A number with every digit that round-trips: plain decimals for ordinary
+/// magnitudes, scientific notation for very large or small ones.
+pub fn format_exact(value: f64) -> String {
+    let magnitude = value.abs();
+    if value == 0.0 || (1e-4..1e15).contains(&magnitude) {
+        format!("{value}")
+    } else {
+        format!("{value:e}")
+    }
+}
+
 /// Escapes text from data or the spec for Markdown (including table cells).
 pub fn escape_markdown(text: &str) -> String {
     let mut out = String::with_capacity(text.len());

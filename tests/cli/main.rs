@@ -4,5 +4,6 @@
 //! directory (see `util`).
 
 mod cv_reference;
+mod demo;
 mod nist;
 mod util;
