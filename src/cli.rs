@@ -11,9 +11,9 @@ use clap::{Args, Parser, Subcommand};
     version,
     about = "Choose how flexible a model should be, on data each fit never saw, with evidence a \
              reviewer can regenerate.",
-    long_about = None,
     after_help = "Exit codes: 0 ok, 1 verification mismatch, 2 bad input (spec, data, arguments), \
-                  3 internal error.\n\nExample:\n  heldout run specs/heat-demand.toml"
+                  3 internal error.\n\nExample:\n  heldout run specs/heat-demand.toml\n  \
+                  heldout verify specs/heat-demand.toml"
 )]
 pub struct Cli {
     #[command(subcommand)]
@@ -22,20 +22,48 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Fit every candidate on every fold, choose by the spec's rule, and write
-    /// results.json, the report and a terminal summary.
+    /// Fit every candidate on every fold (reusing cached fits), choose by the
+    /// spec's rule, write results.json and reports, and the receipt beside the spec.
     #[command(
         after_help = "Example:\n  heldout run specs/heat-demand.toml --out out\n\n\
-        Writes out/<experiment name>/results.json and report.md."
+        Writes out/<experiment name>/results.json and report.md, and\n\
+        specs/heat-demand.receipt.toml. With --shard I/N only the I-th of N\n\
+        slices of the fits is computed into the cache; a final run without\n\
+        --shard assembles the outputs."
     )]
     Run(RunArgs),
+    /// Recompute everything without trusting the cache and compare with the
+    /// receipt bit for bit; exit 1 on any difference, naming the first.
+    #[command(
+        after_help = "Example (in CI):\n  heldout verify specs/heat-demand.toml\n\n\
+        Never rewrites the receipt or the outputs. With --trust-cache, cached\n\
+        fits are used (faster, but a tampered cache would go unnoticed)."
+    )]
+    Verify(VerifyArgs),
+    /// Dry run: rows, folds, fits, and which fits are cached, without fitting.
+    #[command(after_help = "Example:\n  heldout plan specs/heat-demand.toml")]
+    Plan(PlanArgs),
     /// Print which rows are locked as the test set and which fold every other
     /// row validates in, as CSV (an audit trail for reviewers).
     #[command(
         after_help = "Example:\n  heldout folds specs/heat-demand.toml > folds.csv\n\n\
-        Columns: row (1-based data row), key (when declared), repeat, fold (or `test`)."
+        Columns: row (1-based data row), key (when declared), repeat, fold (or\n\
+        `test`). The algorithm is written out in docs/splits.md."
     )]
     Folds(FoldsArgs),
+}
+
+/// Where fitted grids are cached.
+#[derive(Debug, Args)]
+pub struct CacheArgs {
+    /// Cache folder, shared safely between concurrent runs.
+    #[arg(
+        long,
+        value_name = "DIR",
+        env = "HELDOUT_CACHE",
+        default_value = ".heldout/cache"
+    )]
+    pub cache: PathBuf,
 }
 
 #[derive(Debug, Args)]
@@ -46,12 +74,47 @@ pub struct RunArgs {
     /// Folder for outputs; each experiment writes into <OUT>/<name>/.
     #[arg(long, value_name = "DIR", default_value = "out")]
     pub out: PathBuf,
+    #[command(flatten)]
+    pub cache: CacheArgs,
     /// Worker threads for fitting (default: one per core).
     #[arg(long, value_name = "N")]
     pub jobs: Option<usize>,
-    /// Print nothing but errors.
+    /// Compute only slice I of N of the fits into the cache (1 ≤ I ≤ N).
+    #[arg(long, value_name = "I/N")]
+    pub shard: Option<String>,
+    /// Print nothing but errors and warnings.
     #[arg(long, short)]
     pub quiet: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct VerifyArgs {
+    /// Spec files whose receipts to check.
+    #[arg(required = true, value_name = "SPEC")]
+    pub specs: Vec<PathBuf>,
+    /// Folder where `run` wrote outputs; used to name the numbers that differ.
+    #[arg(long, value_name = "DIR", default_value = "out")]
+    pub out: PathBuf,
+    #[command(flatten)]
+    pub cache: CacheArgs,
+    /// Use cached fits instead of recomputing them.
+    #[arg(long)]
+    pub trust_cache: bool,
+    /// Worker threads for fitting (default: one per core).
+    #[arg(long, value_name = "N")]
+    pub jobs: Option<usize>,
+    /// Print nothing but differences and errors.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct PlanArgs {
+    /// The spec to plan.
+    #[arg(value_name = "SPEC")]
+    pub spec: PathBuf,
+    #[command(flatten)]
+    pub cache: CacheArgs,
 }
 
 #[derive(Debug, Args)]

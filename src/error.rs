@@ -92,6 +92,25 @@ pub struct FitFailure {
     pub source: FitError,
 }
 
+/// A cache folder that cannot be written.
+#[derive(Debug, thiserror::Error)]
+pub enum CacheError {
+    #[error("cache folder {path}: {source}")]
+    Io {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("cannot encode a cache entry: {0}")]
+    Encode(String),
+}
+
+/// `verify` found differences (exit code 1).
+#[derive(Debug, thiserror::Error)]
+#[error("verification failed for {}", specs.join(", "))]
+pub struct VerifyMismatch {
+    pub specs: Vec<String>,
+}
+
 /// Wrong use of the command line that clap cannot catch.
 #[derive(Debug, thiserror::Error)]
 #[error("{0}")]
@@ -100,6 +119,12 @@ pub struct UsageError(pub String);
 /// Chooses the exit code for an error chain: bad input (2) when any link is one
 /// of the input error kinds above, internal (3) otherwise.
 pub fn exit_code_for(error: &anyhow::Error) -> u8 {
+    if error.is::<VerifyMismatch>() {
+        return exit::MISMATCH;
+    }
+    if let Some(crate::execute::ExecuteError::Fit(_)) = error.downcast_ref() {
+        return exit::BAD_INPUT;
+    }
     let bad_input = error.chain().any(|cause| {
         cause.is::<SpecError>()
             || cause.is::<DataError>()

@@ -7,6 +7,7 @@
 //! `report` / `output`. Model families live in `models`, one file each.
 
 pub mod assess;
+pub mod cache;
 pub mod cli;
 pub mod commands;
 pub mod data;
@@ -16,6 +17,7 @@ pub mod metrics;
 pub mod models;
 pub mod output;
 pub mod plan;
+pub mod receipt;
 pub mod report;
 pub mod results;
 pub mod spec;

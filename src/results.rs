@@ -17,6 +17,8 @@ pub struct Results {
     pub schema: &'static str,
     pub experiment: String,
     pub title: Option<String>,
+    /// Digests of what produced these numbers (also in the receipt).
+    pub inputs: Inputs,
     pub metric: Metric,
     pub rule: Rule,
     pub rows: RowCounts,
@@ -28,6 +30,14 @@ pub struct Results {
     pub test_score: Option<f64>,
     #[serde(rename = "final")]
     pub final_fit: FinalFit,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct Inputs {
+    pub tool: String,
+    /// blake3 of the spec's meaning (see `receipt::spec_digest`).
+    pub spec: String,
+    pub templates: String,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -194,6 +204,11 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
         schema: SCHEMA,
         experiment: spec.experiment.name.clone(),
         title: spec.experiment.title.clone(),
+        inputs: Inputs {
+            tool: crate::receipt::tool_version(),
+            spec: crate::receipt::spec_digest(spec),
+            templates: crate::report::templates_digest(),
+        },
         metric,
         rule: spec.choose.rule,
         rows: RowCounts {

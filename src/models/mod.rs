@@ -61,7 +61,7 @@ impl fmt::Display for Setting {
 }
 
 /// What one setting's fit yields.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct SettingFit {
     /// Predictions at the training rows, in their order.
     pub train_pred: Vec<f64>,
@@ -75,7 +75,7 @@ pub struct SettingFit {
 }
 
 /// A model family with its grid of settings, bound to its features.
-pub trait Family: Send + Sync {
+pub trait Family: Send + Sync + std::fmt::Debug {
     /// The family's name as written in specs (`"polynomial"`).
     fn family(&self) -> &'static str;
 

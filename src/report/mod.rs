@@ -5,8 +5,33 @@
 pub mod markdown;
 pub mod terminal;
 
-use crate::results::Results;
-use crate::spec::Metric;
+use crate::results::{self, Results};
+use crate::spec::{Metric, ReportFormat};
+
+/// Digest of every template that shapes an output.
+pub fn templates_digest() -> String {
+    blake3::hash(markdown::TEMPLATE.as_bytes())
+        .to_hex()
+        .to_string()
+}
+
+/// Every output file of a run, as (name inside the output folder, bytes), in
+/// a fixed order: `results.json` first, then the reports asked for.
+pub fn render_outputs(
+    results: &Results,
+    formats: &[ReportFormat],
+    regenerate: &str,
+) -> Result<Vec<(String, Vec<u8>)>, minijinja::Error> {
+    let mut outputs = vec![(
+        "results.json".to_string(),
+        results::to_json(results).into_bytes(),
+    )];
+    if formats.contains(&ReportFormat::Markdown) {
+        let text = markdown::render(results, &markdown::ReportInputs { regenerate })?;
+        outputs.push(("report.md".to_string(), text.into_bytes()));
+    }
+    Ok(outputs)
+}
 
 /// The cautions every report carries (DESIGN.md §8).
 pub const CAUTIONS: [&str; 3] = [

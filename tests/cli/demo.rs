@@ -5,24 +5,34 @@ use std::path::Path;
 
 use crate::util;
 
-/// Runs the demo spec from the repository into a temporary output folder.
-fn run_demo(out: &Path) -> serde_json::Value {
-    let spec = util::crate_root().join("specs").join("heat-demand.toml");
-    let output = util::heldout()
-        .args(["run", "--quiet", "--out"])
-        .arg(out)
-        .arg(&spec)
-        .output()
-        .expect("heldout starts");
+/// Copies the demo spec, its committed receipt and its data into `dir`, with
+/// the repository's relative layout, so tests never write into the tree.
+pub fn copy_demo(dir: &Path) {
+    let root = util::crate_root();
+    for file in [
+        "specs/heat-demand.toml",
+        "specs/heat-demand.receipt.toml",
+        "demo-data/heat-demand.csv",
+    ] {
+        let to = dir.join(file);
+        std::fs::create_dir_all(to.parent().unwrap()).unwrap();
+        std::fs::copy(root.join(file), &to).unwrap();
+    }
+}
+
+/// Runs a copy of the demo spec in `dir`; outputs go to `dir/out`.
+fn run_demo(dir: &Path) -> serde_json::Value {
+    copy_demo(dir);
+    let output = util::run_in(dir, &["run", "--quiet", "specs/heat-demand.toml"]);
     assert!(output.status.success(), "{}", util::stderr_of(&output));
-    util::read_json(&out.join("heat-demand").join("results.json"))
+    util::read_json(&dir.join("out").join("heat-demand").join("results.json"))
 }
 
 #[test]
 fn demo_report_markdown_is_pinned() {
     let dir = tempfile::tempdir().unwrap();
     run_demo(dir.path());
-    let report = std::fs::read_to_string(dir.path().join("heat-demand").join("report.md")).unwrap();
+    let report = std::fs::read_to_string(dir.path().join("out/heat-demand/report.md")).unwrap();
     insta::assert_snapshot!("demo_report_md", report);
 }
 
@@ -39,14 +49,42 @@ fn demo_polynomial_curve_is_u_shaped() {
         .iter()
         .filter(|c| c["family"] == "polynomial")
         .collect();
-    let cv: Vec<f64> = polynomial.iter().map(|c| c["cv_score"].as_f64().unwrap()).collect();
-    let train: Vec<f64> = polynomial.iter().map(|c| c["train_score"].as_f64().unwrap()).collect();
+    let cv: Vec<f64> = polynomial
+        .iter()
+        .map(|c| c["cv_score"].as_f64().unwrap())
+        .collect();
+    let train: Vec<f64> = polynomial
+        .iter()
+        .map(|c| c["train_score"].as_f64().unwrap())
+        .collect();
     let (lowest, _) = cv
         .iter()
         .enumerate()
         .min_by(|a, b| a.1.total_cmp(b.1))
         .unwrap();
-    assert!(lowest > 0 && lowest < cv.len() - 1, "minimum inside the grid: {cv:?}");
+    assert!(
+        lowest > 0 && lowest < cv.len() - 1,
+        "minimum inside the grid: {cv:?}"
+    );
     assert!(cv[0] > cv[lowest] && cv[cv.len() - 1] > cv[lowest]);
-    assert!(train.windows(2).all(|w| w[1] <= w[0]), "training error only falls: {train:?}");
+    assert!(
+        train.windows(2).all(|w| w[1] <= w[0]),
+        "training error only falls: {train:?}"
+    );
+}
+
+#[test]
+fn committed_demo_receipt_verifies() {
+    // The receipt in version control must match a fresh computation on this
+    // machine, bit for bit; this is what a user's CI runs.
+    let dir = tempfile::tempdir().unwrap();
+    copy_demo(dir.path());
+    let output = util::run_in(dir.path(), &["verify", "specs/heat-demand.toml"]);
+    assert_eq!(
+        output.status.code(),
+        Some(0),
+        "{}{}",
+        util::stdout_of(&output),
+        util::stderr_of(&output)
+    );
 }

@@ -3,6 +3,7 @@
 //! One crate, one module per concern; each test works in its own temporary
 //! directory (see `util`).
 
+mod bad_input;
 mod cv_reference;
 mod demo;
 mod nist;

@@ -1,0 +1,124 @@
+//! What each command does, from parsed arguments to files and printed text.
+//! Shared here: the evaluation pipeline that `run` and `verify` both use.
+
+mod inspect;
+mod run;
+mod verify;
+
+use std::io::IsTerminal;
+use std::path::Path;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+use anyhow::Context;
+
+use crate::cli::Command;
+use crate::error::UsageError;
+use crate::execute::{self, CachePolicy, CandidateFits, Shard, Summary};
+use crate::plan::{self, ExperimentPlan};
+use crate::receipt::{self, Receipt};
+use crate::results::{self, Results};
+use crate::{report, spec};
+
+/// Runs one parsed command.
+pub fn dispatch(command: Command) -> anyhow::Result<()> {
+    match command {
+        Command::Run(args) => run::run(&args),
+        Command::Verify(args) => verify::verify(&args),
+        Command::Plan(args) => inspect::plan(&args),
+        Command::Folds(args) => inspect::folds(&args),
+    }
+}
+
+/// A rayon pool with `jobs` threads (default: one per core).
+fn thread_pool(jobs: Option<usize>) -> anyhow::Result<rayon::ThreadPool> {
+    let threads = match jobs {
+        Some(0) => return Err(UsageError("--jobs must be at least 1".into()).into()),
+        Some(n) => n,
+        None => 0,
+    };
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .context("cannot start the worker threads")
+}
+
+/// Everything one evaluation of a spec produced.
+struct Evaluation {
+    plan: ExperimentPlan,
+    results: Results,
+    /// (name inside the output folder, bytes), in a fixed order.
+    outputs: Vec<(String, Vec<u8>)>,
+    receipt: Receipt,
+    summary: Summary,
+}
+
+/// Loads and plans a spec.
+fn load_plan(spec_path: &Path) -> anyhow::Result<ExperimentPlan> {
+    let loaded = spec::load(spec_path)?;
+    Ok(plan::resolve(loaded)?)
+}
+
+/// Fits (through the cache policy) and renders a planned spec, or only fills
+/// the cache for a shard (then returns `Ok(None)` with the summary).
+fn evaluate(
+    plan: ExperimentPlan,
+    spec_path: &Path,
+    policy: CachePolicy<'_>,
+    shard: Option<Shard>,
+    show_progress: bool,
+) -> anyhow::Result<Result<Evaluation, Summary>> {
+    let total = execute::tasks(&plan)
+        .iter()
+        .enumerate()
+        .filter(|(n, _)| shard.is_none_or(|s| s.owns(*n)))
+        .count();
+    let done = AtomicUsize::new(0);
+    let progress = || {
+        let finished = done.fetch_add(1, Ordering::Relaxed) + 1;
+        if show_progress {
+            eprint!("\rfitting: {finished}/{total} tasks");
+        }
+    };
+    let (fits, summary) = execute::run(&plan, policy, shard, &progress)?;
+    if show_progress {
+        eprintln!();
+    }
+    for why in &summary.corrupt {
+        eprintln!("warning: cache entry ignored and recomputed: {why}");
+    }
+    let Some(fits) = fits else {
+        return Ok(Err(summary));
+    };
+    Ok(Ok(finish(plan, spec_path, &fits, summary)?))
+}
+
+fn finish(
+    plan: ExperimentPlan,
+    spec_path: &Path,
+    fits: &[CandidateFits],
+    summary: Summary,
+) -> anyhow::Result<Evaluation> {
+    let results = results::assemble(&plan, fits);
+    let stem = spec_path
+        .file_stem()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    // The same spec in YAML gives the same bytes, so the command names the
+    // TOML form; the report says a YAML twin works alike.
+    let regenerate = format!("heldout verify {stem}.toml\nheldout run {stem}.toml");
+    let outputs = report::render_outputs(&results, &plan.spec.spec.report.formats, &regenerate)
+        .context("cannot render the reports")?;
+    let receipt = receipt::build(&plan, &results, &outputs);
+    Ok(Evaluation {
+        plan,
+        results,
+        outputs,
+        receipt,
+        summary,
+    })
+}
+
+/// Whether progress may be drawn on stderr.
+fn progress_wanted(quiet: bool) -> bool {
+    !quiet && std::io::stderr().is_terminal()
+}

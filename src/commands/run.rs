@@ -1,0 +1,117 @@
+//! `heldout run`: evaluate specs through the cache and write outputs and receipts.
+
+use std::path::Path;
+
+use crate::cache::Cache;
+use crate::cli::RunArgs;
+use crate::error::UsageError;
+use crate::execute::{CachePolicy, Shard};
+use crate::{output, receipt, report};
+
+pub fn run(args: &RunArgs) -> anyhow::Result<()> {
+    let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    let pool = super::thread_pool(args.jobs)?;
+    let cache = Cache::new(&args.cache.cache);
+    for spec_path in &args.specs {
+        pool.install(|| run_one(spec_path, args, &cache, shard))?;
+    }
+    Ok(())
+}
+
+/// Parses `I/N` (1-based I) into a 0-based shard.
+fn parse_shard(text: &str) -> Result<Shard, UsageError> {
+    let bad = || {
+        UsageError(format!(
+            "--shard {text}: expected I/N with 1 ≤ I ≤ N, e.g. 2/3"
+        ))
+    };
+    let (i, n) = text.split_once('/').ok_or_else(bad)?;
+    let index: usize = i.trim().parse().map_err(|_| bad())?;
+    let count: usize = n.trim().parse().map_err(|_| bad())?;
+    if count == 0 || index == 0 || index > count {
+        return Err(bad());
+    }
+    Ok(Shard {
+        index: index - 1,
+        count,
+    })
+}
+
+fn run_one(
+    spec_path: &Path,
+    args: &RunArgs,
+    cache: &Cache,
+    shard: Option<Shard>,
+) -> anyhow::Result<()> {
+    let plan = super::load_plan(spec_path)?;
+    let dropped = plan.table.dropped;
+    let policy = CachePolicy {
+        read: Some(cache),
+        write: Some(cache),
+    };
+    let evaluation = super::evaluate(
+        plan,
+        spec_path,
+        policy,
+        shard,
+        super::progress_wanted(args.quiet),
+    )?;
+    let evaluation = match evaluation {
+        Ok(evaluation) => evaluation,
+        Err(summary) => {
+            let shard = shard.expect("only shards skip assembly");
+            if !args.quiet {
+                eprintln!(
+                    "shard {}/{}: {} fits computed, {} reused (cache {}); run without --shard \
+                     to assemble the outputs",
+                    shard.index + 1,
+                    shard.count,
+                    summary.computed,
+                    summary.reused,
+                    cache.root().display()
+                );
+            }
+            return Ok(());
+        }
+    };
+
+    let dir = output::experiment_dir(&args.out, &evaluation.results.experiment);
+    for (name, bytes) in &evaluation.outputs {
+        output::write_atomic(&dir.join(name), bytes)?;
+    }
+    let receipt_path = receipt::path_for(spec_path);
+    output::write_atomic(
+        &receipt_path,
+        receipt::to_toml(&evaluation.receipt).as_bytes(),
+    )?;
+
+    if !args.quiet {
+        if dropped > 0 {
+            eprintln!("note: dropped {dropped} rows with empty cells (missing = \"drop-rows\")");
+        }
+        eprintln!(
+            "fits: {} computed, {} reused from the cache",
+            evaluation.summary.computed, evaluation.summary.reused
+        );
+        print!("{}", report::terminal::render(&evaluation.results));
+        println!(
+            "outputs in {}; receipt {}",
+            dir.display(),
+            receipt_path.display()
+        );
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn shards_parse_one_based() {
+        assert_eq!(parse_shard("2/3").unwrap(), Shard { index: 1, count: 3 });
+        for bad in ["0/3", "4/3", "3", "a/b", "1/0"] {
+            assert!(parse_shard(bad).is_err(), "{bad}");
+        }
+    }
+}

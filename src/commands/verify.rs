@@ -1,0 +1,244 @@
+//! `heldout verify`: recompute a spec from scratch and compare with its
+//! receipt bit for bit, naming the first difference.
+
+use std::path::Path;
+
+use crate::cache::Cache;
+use crate::cli::VerifyArgs;
+use crate::error::{SpecError, VerifyMismatch};
+use crate::execute::CachePolicy;
+use crate::plan::ExperimentPlan;
+use crate::receipt::{self, FileDigest, Receipt};
+use crate::results::Results;
+
+pub fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
+    let pool = super::thread_pool(args.jobs)?;
+    let cache = Cache::new(&args.cache.cache);
+    let mut failed = Vec::new();
+    for spec_path in &args.specs {
+        let differences = pool.install(|| verify_one(spec_path, args, &cache))?;
+        if differences.is_empty() {
+            if !args.quiet {
+                println!("verified {}: identical to its receipt", spec_path.display());
+            }
+        } else {
+            println!("MISMATCH {}", spec_path.display());
+            println!("  first difference: {}", differences[0]);
+            for other in &differences[1..] {
+                println!("  also: {other}");
+            }
+            failed.push(spec_path.display().to_string());
+        }
+    }
+    if failed.is_empty() {
+        Ok(())
+    } else {
+        Err(VerifyMismatch { specs: failed }.into())
+    }
+}
+
+fn verify_one(spec_path: &Path, args: &VerifyArgs, cache: &Cache) -> anyhow::Result<Vec<String>> {
+    let receipt_path = receipt::path_for(spec_path);
+    if !receipt_path.is_file() {
+        return Err(SpecError::Invalid {
+            path: spec_path.to_path_buf(),
+            key: "receipt".into(),
+            message: format!(
+                "no receipt at {}; run `heldout run {}` first and commit the receipt",
+                receipt_path.display(),
+                spec_path.display()
+            ),
+        }
+        .into());
+    }
+    let recorded = receipt::read(&receipt_path)?;
+    let plan = super::load_plan(spec_path)?;
+    let policy = CachePolicy {
+        read: args.trust_cache.then_some(cache),
+        write: None,
+    };
+    let evaluation = super::evaluate(
+        plan,
+        spec_path,
+        policy,
+        None,
+        super::progress_wanted(args.quiet),
+    )?
+    .expect("verify never shards");
+    let stored = stored_results(&args.out.join(&recorded.experiment), &recorded);
+    Ok(differences(
+        &recorded,
+        &evaluation.receipt,
+        stored.as_ref(),
+        &evaluation.results,
+        &evaluation.plan,
+        spec_path,
+    ))
+}
+
+/// The results.json a run left, if it is the one the receipt describes.
+fn stored_results(dir: &Path, recorded: &Receipt) -> Option<serde_json::Value> {
+    let bytes = std::fs::read(dir.join("results.json")).ok()?;
+    let digest = blake3::hash(&bytes).to_hex().to_string();
+    let matches = recorded
+        .outputs
+        .iter()
+        .any(|o| o.path == "results.json" && o.blake3 == digest);
+    if !matches {
+        return None;
+    }
+    serde_json::from_slice(&bytes).ok()
+}
+
+/// Every difference between the recorded and the recomputed receipt, inputs
+/// first, then numbers, then outputs.
+fn differences(
+    recorded: &Receipt,
+    now: &Receipt,
+    stored: Option<&serde_json::Value>,
+    results: &Results,
+    plan: &ExperimentPlan,
+    spec_path: &Path,
+) -> Vec<String> {
+    let mut found = Vec::new();
+    let short = |digest: &str| digest.chars().take(16).collect::<String>();
+    if recorded.tool != now.tool {
+        found.push(format!(
+            "tool version: receipt {}, now {}",
+            recorded.tool, now.tool
+        ));
+    }
+    if recorded.spec != now.spec {
+        found.push(format!(
+            "spec {} changed meaning: blake3 {} in the receipt, {} now",
+            spec_path.display(),
+            short(&recorded.spec),
+            short(&now.spec)
+        ));
+    }
+    if recorded.templates != now.templates {
+        found.push(format!(
+            "report templates changed: blake3 {} in the receipt, {} now",
+            short(&recorded.templates),
+            short(&now.templates)
+        ));
+    }
+    compare_files("data file", &recorded.data, &now.data, &mut found);
+    if recorded.folds != now.folds {
+        found.push(format!(
+            "fold assignment changed: blake3 {} in the receipt, {} now",
+            short(&recorded.folds),
+            short(&now.folds)
+        ));
+    }
+    for old in &recorded.candidates {
+        match now.candidates.iter().find(|c| c.id == old.id) {
+            None => found.push(format!(
+                "candidate {} is in the receipt but not computed now",
+                old.id
+            )),
+            Some(new) if new.blake3 != old.blake3 => found.push(
+                number_difference(&old.id, stored, results, plan).unwrap_or_else(|| {
+                    format!(
+                        "candidate {}: numbers differ (blake3 {} in the receipt, {} now; \
+                         the run's results.json was not found to name the number)",
+                        old.id,
+                        short(&old.blake3),
+                        short(&new.blake3)
+                    )
+                }),
+            ),
+            Some(_) => {}
+        }
+    }
+    for new in &now.candidates {
+        if !recorded.candidates.iter().any(|c| c.id == new.id) {
+            found.push(format!(
+                "candidate {} is computed now but not in the receipt",
+                new.id
+            ));
+        }
+    }
+    compare_files("output", &recorded.outputs, &now.outputs, &mut found);
+    if recorded.experiment != now.experiment || recorded.schema != now.schema {
+        found.push(format!(
+            "receipt header: experiment {} / {} in the receipt, {} / {} now",
+            recorded.experiment, recorded.schema, now.experiment, now.schema
+        ));
+    }
+    found
+}
+
+fn compare_files(what: &str, recorded: &[FileDigest], now: &[FileDigest], found: &mut Vec<String>) {
+    for old in recorded {
+        match now.iter().find(|f| f.path == old.path) {
+            None => found.push(format!(
+                "{what} {} is in the receipt but not used now",
+                old.path
+            )),
+            Some(new) if new.blake3 != old.blake3 => found.push(format!(
+                "{what} {} changed: blake3 {} in the receipt, {} now",
+                old.path, old.blake3, new.blake3
+            )),
+            Some(_) => {}
+        }
+    }
+    for new in now {
+        if !recorded.iter().any(|f| f.path == new.path) {
+            found.push(format!(
+                "{what} {} is used now but not in the receipt",
+                new.path
+            ));
+        }
+    }
+}
+
+/// Names the first number of a candidate that moved, from the stored results.
+fn number_difference(
+    id: &str,
+    stored: Option<&serde_json::Value>,
+    results: &Results,
+    plan: &ExperimentPlan,
+) -> Option<String> {
+    let old = stored?["candidates"]
+        .as_array()?
+        .iter()
+        .find(|c| c["id"] == id)?;
+    let new = results.candidates.iter().find(|c| c.id == id)?;
+    let scalars = [
+        ("effective_df", new.effective_df),
+        ("train_score", new.train_score),
+        ("cv_score", new.cv_score),
+        ("cv_se", new.cv_se),
+    ];
+    let describe = |what: String, before: f64, after: f64| {
+        format!(
+            "candidate {id}, {what}: {before:?} in the receipt's results, {after:?} now \
+             ({} ulps apart)",
+            receipt::ulps_apart(before, after)
+        )
+    };
+    for (name, after) in scalars {
+        let before = old[name].as_f64().unwrap_or(f64::NAN);
+        if before.to_bits() != after.to_bits() {
+            return Some(describe(name.to_string(), before, after));
+        }
+    }
+    let old_folds = old["fold_scores"].as_array()?;
+    for (i, after) in new.fold_scores.iter().enumerate() {
+        let before = old_folds
+            .get(i)
+            .and_then(|v| v.as_f64())
+            .unwrap_or(f64::NAN);
+        if before.to_bits() != after.to_bits() {
+            let fold = &plan.assignment.folds[i];
+            let place = if plan.assignment.repeats > 1 {
+                format!("fold {} of repeat {}", fold.label, fold.repeat + 1)
+            } else {
+                format!("fold {}", fold.label)
+            };
+            return Some(describe(format!("score on {place}"), before, *after));
+        }
+    }
+    None
+}
