@@ -16,8 +16,6 @@
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
 
-use nalgebra::DMatrix;
-
 use crate::error::CacheError;
 use crate::models::{Family, SettingFit};
 
@@ -34,13 +32,15 @@ impl CacheKey {
     }
 }
 
-/// Computes the key of one fit of `family`'s grid.
+/// Computes the key of one fit of `family`'s grid from digests of what it
+/// reads: its feature columns and the target (each digested once per run, see
+/// [`digest_values`]) and its training and evaluation rows ([`digest_rows`]).
 pub fn key(
     family: &dyn Family,
-    x_train: &DMatrix<f64>,
-    y_train: &[f64],
-    x_eval: &DMatrix<f64>,
-    with_coefficients: bool,
+    final_fit: bool,
+    feature_digests: &[[u8; 32]],
+    target_digest: &[u8; 32],
+    rows_digest: &[u8; 32],
 ) -> CacheKey {
     let mut hasher = blake3::Hasher::new();
     hasher.update(FORMAT.as_bytes());
@@ -50,26 +50,48 @@ pub fn key(
         family.family(),
         family.algorithm_version(),
         family,
-        with_coefficients
+        final_fit
     );
-    hash_len_prefixed(&mut hasher, identity.as_bytes());
-    for matrix in [x_train, x_eval] {
-        hasher.update(&(matrix.nrows() as u64).to_le_bytes());
-        hasher.update(&(matrix.ncols() as u64).to_le_bytes());
-        for value in matrix.iter() {
-            hasher.update(&value.to_bits().to_le_bytes());
-        }
+    hasher.update(&(identity.len() as u64).to_le_bytes());
+    hasher.update(identity.as_bytes());
+    hasher.update(&(feature_digests.len() as u64).to_le_bytes());
+    for digest in feature_digests {
+        hasher.update(digest);
     }
-    hasher.update(&(y_train.len() as u64).to_le_bytes());
-    for value in y_train {
-        hasher.update(&value.to_bits().to_le_bytes());
-    }
+    hasher.update(target_digest);
+    hasher.update(rows_digest);
     CacheKey(*hasher.finalize().as_bytes())
 }
 
-fn hash_len_prefixed(hasher: &mut blake3::Hasher, bytes: &[u8]) {
-    hasher.update(&(bytes.len() as u64).to_le_bytes());
-    hasher.update(bytes);
+/// Digest of a column of values (their little-endian bits, with the length),
+/// fed to the hasher in large blocks: one `update` per value would cost more
+/// than the hashing itself.
+pub fn digest_values(values: &[f64]) -> [u8; 32] {
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(&(values.len() as u64).to_le_bytes());
+    let mut block = Vec::with_capacity(8 * 4096);
+    for chunk in values.chunks(4096) {
+        block.clear();
+        for value in chunk {
+            block.extend_from_slice(&value.to_bits().to_le_bytes());
+        }
+        hasher.update(&block);
+    }
+    *hasher.finalize().as_bytes()
+}
+
+/// Digest of a task's training and evaluation rows (indices into the table).
+pub fn digest_rows(train: &[usize], eval: &[usize]) -> [u8; 32] {
+    let mut hasher = blake3::Hasher::new();
+    let mut block = Vec::with_capacity(8 * (train.len() + eval.len() + 2));
+    for rows in [train, eval] {
+        block.extend_from_slice(&(rows.len() as u64).to_le_bytes());
+        for &row in rows {
+            block.extend_from_slice(&(row as u64).to_le_bytes());
+        }
+    }
+    hasher.update(&block);
+    *hasher.finalize().as_bytes()
 }
 
 /// What a lookup found.
@@ -134,9 +156,9 @@ impl Cache {
     pub fn put(&self, key: &CacheKey, fits: &[SettingFit]) -> Result<(), CacheError> {
         let path = self.path_of(key);
         let dir = path.parent().expect("entries live in a sub-folder");
-        let io = |source| CacheError::Io {
+        let io = |error| CacheError::Io {
             path: dir.to_path_buf(),
-            source,
+            error,
         };
         std::fs::create_dir_all(dir).map_err(io)?;
         let payload = postcard::to_allocvec(fits).map_err(|e| CacheError::Encode(e.to_string()))?;
@@ -203,15 +225,16 @@ mod tests {
             intercept: true,
             degrees,
         };
-        let x = DMatrix::from_fn(4, 1, |i, _| i as f64);
-        let y = [1.0, 2.0, 0.0, 5.0];
-        let base = key(&family(vec![1, 2]), &x, &y, &x, false);
-        assert_eq!(base, key(&family(vec![1, 2]), &x, &y, &x, false));
-        assert_ne!(base, key(&family(vec![1, 3]), &x, &y, &x, false));
-        assert_ne!(
-            base,
-            key(&family(vec![1, 2]), &x, &[1.0, 2.0, 0.0, 5.5], &x, false)
-        );
-        assert_ne!(base, key(&family(vec![1, 2]), &x, &y, &x, true));
+        let x = [digest_values(&[0.0, 1.0, 2.0, 3.0])];
+        let y = digest_values(&[1.0, 2.0, 0.0, 5.0]);
+        let rows = digest_rows(&[0, 1, 2], &[3]);
+        let base = key(&family(vec![1, 2]), false, &x, &y, &rows);
+        assert_eq!(base, key(&family(vec![1, 2]), false, &x, &y, &rows));
+        assert_ne!(base, key(&family(vec![1, 3]), false, &x, &y, &rows));
+        let other_y = digest_values(&[1.0, 2.0, 0.0, 5.5]);
+        assert_ne!(base, key(&family(vec![1, 2]), false, &x, &other_y, &rows));
+        let other_rows = digest_rows(&[0, 1], &[2, 3]);
+        assert_ne!(base, key(&family(vec![1, 2]), false, &x, &y, &other_rows));
+        assert_ne!(base, key(&family(vec![1, 2]), true, &x, &y, &rows));
     }
 }

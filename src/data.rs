@@ -62,9 +62,9 @@ impl Table {
 /// Reads `path` (already resolved against the spec folder); `shown` is the
 /// path as messages should print it.
 pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, DataError> {
-    let bytes = std::fs::read(path).map_err(|source| DataError::Read {
+    let bytes = std::fs::read(path).map_err(|error| DataError::Read {
         path: shown.to_path_buf(),
-        source,
+        error,
     })?;
     let digest = blake3::hash(&bytes).to_hex().to_string();
     let table_error = |message: String| DataError::Table {
@@ -123,18 +123,26 @@ pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, 
     let mut dropped = 0;
     let mut data_rows: u64 = 0;
 
-    for record in reader.records() {
-        let record = record.map_err(|e| match e.kind() {
-            csv::ErrorKind::UnequalLengths {
-                pos,
-                expected_len,
-                len,
-            } => table_error(format!(
-                "line {}: the row has {len} fields but the header has {expected_len}",
-                pos.as_ref().map_or(0, |p| p.line())
-            )),
-            _ => table_error(format!("cannot read the table: {e}")),
-        })?;
+    // Byte records: only the cells that are used are checked as UTF-8.
+    let mut record = csv::ByteRecord::new();
+    loop {
+        let more = reader
+            .read_byte_record(&mut record)
+            .map_err(|e| match e.kind() {
+                csv::ErrorKind::UnequalLengths {
+                    pos,
+                    expected_len,
+                    len,
+                } => table_error(format!(
+                    "line {}: the row has {len} field{} but the header has {expected_len}",
+                    pos.as_ref().map_or(0, |p| p.line()),
+                    if *len == 1 { "" } else { "s" }
+                )),
+                _ => table_error(format!("cannot read the table: {e}")),
+            })?;
+        if !more {
+            break;
+        }
         data_rows += 1;
         let line = record.position().map_or(data_rows + 1, |p| p.line());
         let cell_error = |column: &str, message: String| DataError::Cell {
@@ -147,7 +155,7 @@ pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, 
         let mut values = Vec::with_capacity(numeric_at.len());
         let mut has_missing = false;
         for (name, at) in &numeric_at {
-            let raw = record.get(*at).unwrap_or("");
+            let raw = cell_text(&record, *at).map_err(|m| cell_error(name, m))?;
             let trimmed = raw.trim();
             if trimmed.is_empty() {
                 if request.missing == MissingPolicy::DropRows {
@@ -172,7 +180,9 @@ pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, 
         }
         let mut texts = Vec::with_capacity(text_at.len());
         for (name, at) in &text_at {
-            let raw = record.get(*at).unwrap_or("").trim();
+            let raw = cell_text(&record, *at)
+                .map_err(|m| cell_error(name, m))?
+                .trim();
             if raw.is_empty() {
                 if request.missing == MissingPolicy::DropRows {
                     has_missing = true;
@@ -213,6 +223,12 @@ pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, 
         row_numbers,
         dropped,
     })
+}
+
+/// The text of one cell, which must be UTF-8.
+fn cell_text(record: &csv::ByteRecord, at: usize) -> Result<&str, String> {
+    std::str::from_utf8(record.get(at).unwrap_or_default())
+        .map_err(|_| "the cell is not valid UTF-8 text".to_string())
 }
 
 #[cfg(test)]

@@ -21,10 +21,10 @@ pub mod exit {
 /// A spec that cannot be read, parsed or validated.
 #[derive(Debug, thiserror::Error)]
 pub enum SpecError {
-    #[error("{path}: cannot read the spec: {source}")]
+    #[error("{path}: cannot read the spec: {error}")]
     Read {
         path: PathBuf,
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("{path}: the spec must end in .toml, .yaml or .yml")]
     UnknownFormat { path: PathBuf },
@@ -45,10 +45,10 @@ pub enum SpecError {
 /// A data table that cannot be read or does not fit the spec.
 #[derive(Debug, thiserror::Error)]
 pub enum DataError {
-    #[error("{path}: cannot read the data table: {source}")]
+    #[error("{path}: cannot read the data table: {error}")]
     Read {
         path: PathBuf,
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("{path}: {message}")]
     Table { path: PathBuf, message: String },
@@ -95,10 +95,10 @@ pub struct FitFailure {
 /// A cache folder that cannot be written.
 #[derive(Debug, thiserror::Error)]
 pub enum CacheError {
-    #[error("cache folder {path}: {source}")]
+    #[error("cache folder {path}: {error}")]
     Io {
         path: PathBuf,
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("cannot encode a cache entry: {0}")]
     Encode(String),

@@ -97,13 +97,7 @@ struct TaskData {
 
 fn task_data(plan: &ExperimentPlan, task: Task) -> TaskData {
     let candidate = &plan.candidates[task.candidate];
-    let (train, eval) = match task.rows {
-        TaskRows::Fold(f) => {
-            let fold = &plan.assignment.folds[f];
-            (&fold.train, &fold.valid)
-        }
-        TaskRows::Full => (&plan.assignment.train, &plan.assignment.test),
-    };
+    let (train, eval) = task_rows(plan, task.rows);
     TaskData {
         x_train: plan.design(candidate, train),
         y_train: plan.target_of(train),
@@ -111,20 +105,50 @@ fn task_data(plan: &ExperimentPlan, task: Task) -> TaskData {
     }
 }
 
-/// The cache key of a task.
-pub fn task_key(plan: &ExperimentPlan, task: Task) -> CacheKey {
-    let data = task_data(plan, task);
-    key_of(plan, task, &data)
+/// The training and evaluation rows of a task.
+fn task_rows(plan: &ExperimentPlan, rows: TaskRows) -> (&[usize], &[usize]) {
+    match rows {
+        TaskRows::Fold(f) => {
+            let fold = &plan.assignment.folds[f];
+            (&fold.train, &fold.valid)
+        }
+        TaskRows::Full => (&plan.assignment.train, &plan.assignment.test),
+    }
 }
 
-fn key_of(plan: &ExperimentPlan, task: Task, data: &TaskData) -> CacheKey {
-    cache::key(
-        plan.candidates[task.candidate].family.as_ref(),
-        &data.x_train,
-        &data.y_train,
-        &data.x_eval,
-        task.rows == TaskRows::Full,
-    )
+/// The cache key of every task, in [`tasks`] order. Row digests are computed
+/// once per fold and shared by all candidates.
+pub fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
+    let folds = plan.assignment.folds.len();
+    let row_digests: Vec<[u8; 32]> = (0..=folds)
+        .into_par_iter()
+        .map(|f| {
+            let rows = if f < folds {
+                TaskRows::Fold(f)
+            } else {
+                TaskRows::Full
+            };
+            let (train, eval) = task_rows(plan, rows);
+            cache::digest_rows(train, eval)
+        })
+        .collect();
+    let target = &plan.column_digests[&plan.spec.data().target];
+    tasks
+        .iter()
+        .map(|task| {
+            let family = plan.candidates[task.candidate].family.as_ref();
+            let features: Vec<[u8; 32]> = family
+                .features()
+                .iter()
+                .map(|f| plan.column_digests[f])
+                .collect();
+            let rows = match task.rows {
+                TaskRows::Fold(f) => &row_digests[f],
+                TaskRows::Full => &row_digests[folds],
+            };
+            cache::key(family, task.rows == TaskRows::Full, &features, target, rows)
+        })
+        .collect()
 }
 
 fn describe_rows(plan: &ExperimentPlan, rows: TaskRows) -> String {
@@ -151,12 +175,11 @@ struct TaskOutcome {
 fn run_task(
     plan: &ExperimentPlan,
     task: Task,
+    key: Option<&CacheKey>,
     policy: CachePolicy<'_>,
 ) -> Result<TaskOutcome, ExecuteError> {
-    let data = task_data(plan, task);
-    let key = (policy.read.is_some() || policy.write.is_some()).then(|| key_of(plan, task, &data));
     let mut corrupt = None;
-    if let (Some(cache), Some(key)) = (policy.read, &key) {
+    if let (Some(cache), Some(key)) = (policy.read, key) {
         match cache.get(key) {
             Lookup::Hit(fits) => {
                 return Ok(TaskOutcome {
@@ -169,6 +192,7 @@ fn run_task(
             Lookup::Corrupt(why) => corrupt = Some(why),
         }
     }
+    let data = task_data(plan, task);
     let candidate = &plan.candidates[task.candidate];
     let mut fits = candidate
         .family
@@ -189,7 +213,7 @@ fn run_task(
             fit.train_pred = Vec::new();
         }
     }
-    if let (Some(cache), Some(key)) = (policy.write, &key) {
+    if let (Some(cache), Some(key)) = (policy.write, key) {
         cache.put(key, &fits)?;
     }
     Ok(TaskOutcome {
@@ -216,10 +240,14 @@ pub fn run(
         .collect();
     // Under a shard, fits are not kept in memory: they go to the cache.
     let keep = shard.is_none();
+    let keys =
+        (policy.read.is_some() || policy.write.is_some()).then(|| task_keys(plan, &selected));
     let outcomes: Vec<Result<TaskOutcome, ExecuteError>> = selected
         .par_iter()
-        .map(|&task| {
-            let outcome = run_task(plan, task, policy).map(|mut o| {
+        .enumerate()
+        .map(|(number, &task)| {
+            let key = keys.as_ref().map(|k| &k[number]);
+            let outcome = run_task(plan, task, key, policy).map(|mut o| {
                 if !keep {
                     o.fits = Vec::new();
                 }

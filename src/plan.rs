@@ -37,6 +37,8 @@ pub struct ExperimentPlan {
     pub target: Vec<f64>,
     pub assignment: Assignment,
     pub candidates: Vec<CandidatePlan>,
+    /// Digest of every numeric column read (for cache keys).
+    pub column_digests: std::collections::BTreeMap<String, [u8; 32]>,
 }
 
 impl ExperimentPlan {
@@ -64,7 +66,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
 
     let mut numeric = vec![data_spec.target.clone()];
     let mut candidate_features = Vec::new();
-    for candidate in &spec.spec.candidates {
+    for candidate in &spec.families {
         let features = candidate
             .features_override()
             .map(<[String]>::to_vec)
@@ -125,15 +127,16 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
             }
             (None, Some(key)) => {
                 let keys = table.text_column(key);
-                let mut first_line = std::collections::BTreeMap::new();
-                for (row, k) in keys.iter().enumerate() {
-                    if let Some(line) = first_line.insert(k.as_str(), table.lines[row]) {
-                        return Err(table_error(format!(
-                        "key column \"{key}\" holds \"{k}\" on line {line} and again on line {}; \
-                         a key must identify one row (use `group` for repeated ids)",
-                        table.lines[row]
+                let mut sorted: Vec<(&str, usize)> =
+                    keys.iter().map(String::as_str).zip(0..).collect();
+                sorted.sort_unstable();
+                if let Some(pair) = sorted.windows(2).find(|w| w[0].0 == w[1].0) {
+                    let (k, first, again) = (pair[0].0, pair[0].1, pair[1].1);
+                    return Err(table_error(format!(
+                        "key column \"{key}\" holds \"{k}\" on line {} and again on line {}; \
+                     a key must identify one row (use `group` for repeated ids)",
+                        table.lines[first], table.lines[again]
                     )));
-                    }
                 }
                 (keys.to_vec(), (0..table.len()).collect())
             }
@@ -176,8 +179,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     }
 
     let candidates: Vec<CandidatePlan> = spec
-        .spec
-        .candidates
+        .families
         .iter()
         .zip(candidate_features)
         .map(|(candidate, features)| {
@@ -195,7 +197,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
 
     // A feature with no spread over the fitting rows breaks these fits; say so
     // now, naming the column, rather than once per fold.
-    for (candidate, raw) in candidates.iter().zip(&spec.spec.candidates) {
+    for (candidate, raw) in candidates.iter().zip(&spec.families) {
         let needs_spread = !matches!(
             raw,
             FamilySpec::Linear {
@@ -220,7 +222,13 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
         }
     }
 
+    let column_digests = table
+        .numeric
+        .iter()
+        .map(|(name, values)| (name.clone(), crate::cache::digest_values(values)))
+        .collect();
     Ok(ExperimentPlan {
+        column_digests,
         spec,
         table,
         target,

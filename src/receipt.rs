@@ -68,7 +68,15 @@ pub fn path_for(spec: &Path) -> PathBuf {
 
 /// Digest of a spec's meaning.
 pub fn spec_digest(spec: &SpecFile) -> String {
-    let canonical = serde_json::to_vec(spec).expect("specs always serialise");
+    // Spell out the candidates' defaults so that writing them or not is the
+    // same meaning.
+    let mut normal = spec.clone();
+    for candidate in &mut normal.candidates {
+        if candidate.family != crate::spec::FamilyName::NearestNeighbors {
+            candidate.intercept.get_or_insert(true);
+        }
+    }
+    let canonical = serde_json::to_vec(&normal).expect("specs always serialise");
     blake3::hash(&canonical).to_hex().to_string()
 }
 
@@ -152,9 +160,9 @@ pub fn to_toml(receipt: &Receipt) -> String {
 
 /// Reads a receipt file.
 pub fn read(path: &Path) -> Result<Receipt, crate::error::SpecError> {
-    let text = std::fs::read_to_string(path).map_err(|source| crate::error::SpecError::Read {
+    let text = std::fs::read_to_string(path).map_err(|error| crate::error::SpecError::Read {
         path: path.to_path_buf(),
-        source,
+        error,
     })?;
     toml::from_str(&text).map_err(|e| crate::error::SpecError::Invalid {
         path: path.to_path_buf(),

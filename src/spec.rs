@@ -26,7 +26,7 @@ pub struct SpecFile {
     #[serde(default)]
     pub split: SplitSpec,
     #[serde(rename = "candidate")]
-    pub candidates: Vec<FamilySpec>,
+    pub candidates: Vec<CandidateSpec>,
     #[serde(default)]
     pub choose: ChooseSpec,
     #[serde(default)]
@@ -124,48 +124,144 @@ pub enum SplitMethod {
     Ordered,
 }
 
-/// One `[[candidate]]` table: a model family and its grid of settings.
+/// One `[[candidate]]` table as written: a model family and its grid.
+///
+/// The table is read flat (every family's keys in one struct) so that an
+/// unknown key is reported at its own line and column; [`validate`] then
+/// checks that each key belongs to the family and builds a [`FamilySpec`].
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
-#[serde(tag = "family", rename_all = "kebab-case", deny_unknown_fields)]
+#[serde(deny_unknown_fields)]
+pub struct CandidateSpec {
+    pub family: FamilyName,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub features: Option<Vec<String>>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub intercept: Option<bool>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub degree: Option<Vec<usize>>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub k: Option<Vec<usize>>,
+}
+
+/// The model families a candidate may name.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum FamilyName {
+    Linear,
+    Polynomial,
+    NearestNeighbors,
+}
+
+/// A validated candidate: one variant per family, with its own settings.
+#[derive(Debug, Clone, PartialEq)]
 pub enum FamilySpec {
     Linear {
-        #[serde(default)]
         label: Option<String>,
-        #[serde(default)]
         features: Option<Vec<String>>,
-        #[serde(default = "default_true")]
         intercept: bool,
     },
     Polynomial {
-        #[serde(default)]
         label: Option<String>,
-        #[serde(default)]
         features: Option<Vec<String>>,
-        #[serde(default = "default_true")]
         intercept: bool,
         degree: Vec<usize>,
     },
     NearestNeighbors {
-        #[serde(default)]
         label: Option<String>,
-        #[serde(default)]
         features: Option<Vec<String>>,
         k: Vec<usize>,
     },
 }
 
-fn default_true() -> bool {
-    true
+impl CandidateSpec {
+    /// The keys given that only some families take, by name.
+    fn family_keys(&self) -> Vec<&'static str> {
+        let given = [
+            ("intercept", self.intercept.is_some()),
+            ("degree", self.degree.is_some()),
+            ("k", self.k.is_some()),
+        ];
+        given
+            .into_iter()
+            .filter(|(_, present)| *present)
+            .map(|(name, _)| name)
+            .collect()
+    }
+
+    /// Checks that every key belongs to the family and builds its [`FamilySpec`].
+    fn to_family(&self) -> Result<FamilySpec, (String, String)> {
+        let allowed: &[&str] = match self.family {
+            FamilyName::Linear => &["intercept"],
+            FamilyName::Polynomial => &["intercept", "degree"],
+            FamilyName::NearestNeighbors => &["k"],
+        };
+        let family = FamilySpec::name_of(self.family);
+        if let Some(stray) = self
+            .family_keys()
+            .into_iter()
+            .find(|k| !allowed.contains(k))
+        {
+            return Err((
+                stray.to_string(),
+                format!(
+                    "`{stray}` is not a setting of family \"{family}\" (it takes: {})",
+                    if allowed.is_empty() {
+                        "none".to_string()
+                    } else {
+                        allowed.join(", ")
+                    }
+                ),
+            ));
+        }
+        let required = |grid: &Option<Vec<usize>>, key: &str| {
+            grid.clone().ok_or_else(|| {
+                (
+                    key.to_string(),
+                    format!("family \"{family}\" needs a grid: `{key} = [...]`"),
+                )
+            })
+        };
+        let label = self.label.clone();
+        let features = self.features.clone();
+        Ok(match self.family {
+            FamilyName::Linear => FamilySpec::Linear {
+                label,
+                features,
+                intercept: self.intercept.unwrap_or(true),
+            },
+            FamilyName::Polynomial => FamilySpec::Polynomial {
+                label,
+                features,
+                intercept: self.intercept.unwrap_or(true),
+                degree: required(&self.degree, "degree")?,
+            },
+            FamilyName::NearestNeighbors => FamilySpec::NearestNeighbors {
+                label,
+                features,
+                k: required(&self.k, "k")?,
+            },
+        })
+    }
 }
 
 impl FamilySpec {
+    fn name_of(family: FamilyName) -> &'static str {
+        match family {
+            FamilyName::Linear => "linear",
+            FamilyName::Polynomial => "polynomial",
+            FamilyName::NearestNeighbors => "nearest-neighbors",
+        }
+    }
+
     /// The family's name as written in the spec.
     pub fn family_name(&self) -> &'static str {
-        match self {
-            FamilySpec::Linear { .. } => "linear",
-            FamilySpec::Polynomial { .. } => "polynomial",
-            FamilySpec::NearestNeighbors { .. } => "nearest-neighbors",
-        }
+        Self::name_of(match self {
+            FamilySpec::Linear { .. } => FamilyName::Linear,
+            FamilySpec::Polynomial { .. } => FamilyName::Polynomial,
+            FamilySpec::NearestNeighbors { .. } => FamilyName::NearestNeighbors,
+        })
     }
 
     /// The optional label that replaces the family name in candidate ids.
@@ -250,6 +346,8 @@ pub enum ReportFormat {
 pub struct LoadedSpec {
     pub path: PathBuf,
     pub spec: SpecFile,
+    /// The validated candidates, in spec order.
+    pub families: Vec<FamilySpec>,
 }
 
 impl LoadedSpec {
@@ -269,15 +367,16 @@ impl LoadedSpec {
 
 /// Reads, parses and validates a spec file (TOML or YAML, chosen by extension).
 pub fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
-    let text = std::fs::read_to_string(path).map_err(|source| SpecError::Read {
+    let text = std::fs::read_to_string(path).map_err(|error| SpecError::Read {
         path: path.to_path_buf(),
-        source,
+        error,
     })?;
     let spec = parse(path, &text)?;
-    validate(path, &spec)?;
+    let families = validate(path, &spec)?;
     Ok(LoadedSpec {
         path: path.to_path_buf(),
         spec,
+        families,
     })
 }
 
@@ -360,14 +459,15 @@ pub fn closest<'a>(typed: &str, allowed: &[&'a str]) -> Option<&'a str> {
     allowed
         .iter()
         .map(|word| (strsim::damerau_levenshtein(typed, word), *word))
-        .filter(|(distance, word)| *distance <= 2.max(word.len() / 3))
+        .filter(|(distance, word)| *distance <= 1.max(typed.len().max(word.len()) / 4))
         .min_by_key(|(distance, _)| *distance)
         .map(|(_, word)| word)
 }
 
 /// Checks values that the types alone cannot: ranges, names, grids, and the
-/// combinations of keys. Fails on the first problem, naming the key.
-pub fn validate(path: &Path, spec: &SpecFile) -> Result<(), SpecError> {
+/// combinations of keys. Fails on the first problem, naming the key. Returns
+/// the candidates as validated family specs.
+pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecError> {
     let invalid = |key: &str, message: String| SpecError::Invalid {
         path: path.to_path_buf(),
         key: key.to_string(),
@@ -405,9 +505,17 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<(), SpecError> {
         ));
     }
     let mut ids = BTreeSet::new();
-    for (index, candidate) in spec.candidates.iter().enumerate() {
-        let key = format!("candidate[{}] ({})", index + 1, candidate.family_name());
-        validate_candidate(candidate, &data.features, &key, &invalid)?;
+    let mut families = Vec::with_capacity(spec.candidates.len());
+    for (index, raw) in spec.candidates.iter().enumerate() {
+        let key = format!(
+            "candidate[{}] ({})",
+            index + 1,
+            FamilySpec::name_of(raw.family)
+        );
+        let candidate = raw
+            .to_family()
+            .map_err(|(sub, message)| invalid(&format!("{key}.{sub}"), message))?;
+        validate_candidate(&candidate, &key, &invalid)?;
         let stem = candidate.label().unwrap_or(candidate.family_name());
         if !ids.insert(stem.to_string()) {
             return Err(invalid(
@@ -418,6 +526,7 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<(), SpecError> {
                 ),
             ));
         }
+        families.push(candidate);
     }
 
     if spec.report.formats.contains(&ReportFormat::Html) {
@@ -426,7 +535,7 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<(), SpecError> {
             "\"html\" reports are not built yet; use [\"markdown\"]".into(),
         ));
     }
-    Ok(())
+    Ok(families)
 }
 
 fn validate_data(
@@ -544,7 +653,6 @@ fn validate_split(
 
 fn validate_candidate(
     candidate: &FamilySpec,
-    data_features: &[String],
     key: &str,
     invalid: &impl Fn(&str, String) -> SpecError,
 ) -> Result<(), SpecError> {
@@ -563,7 +671,6 @@ fn validate_candidate(
     if let Some(features) = candidate.features_override() {
         validate_feature_list(features, &format!("{key}.features"), invalid)?;
     }
-    let _ = data_features;
     match candidate {
         FamilySpec::Linear { .. } => Ok(()),
         FamilySpec::Polynomial { degree, .. } => {

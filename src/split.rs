@@ -14,6 +14,8 @@
 
 use std::collections::BTreeMap;
 
+use rayon::prelude::*;
+
 /// Where one row ended up in one repeat.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Placement {
@@ -80,7 +82,7 @@ pub enum FoldScheme {
 /// Why rows cannot be split as asked.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 pub enum SplitError {
-    #[error("{units} {what} remain after the test set, fewer than the {folds} folds asked for")]
+    #[error("{units} {what} remain after the test set, fewer than the {folds} folds asked for ([split] folds, or leave-one-out)")]
     FewerUnitsThanFolds {
         units: usize,
         folds: usize,
@@ -112,7 +114,7 @@ pub fn priority(key: &[u8; 32], identity: &str) -> u64 {
 /// Units (indices into `identities`) sorted by (priority, identity).
 fn shuffled(key: &[u8; 32], identities: &[String], units: &[usize]) -> Vec<usize> {
     let mut ranked: Vec<(u64, &str, usize)> = units
-        .iter()
+        .par_iter()
         .map(|&u| (priority(key, &identities[u]), identities[u].as_str(), u))
         .collect();
     ranked.sort_unstable();
@@ -182,29 +184,25 @@ pub fn assign(
                 {
                     fold_of_unit[unit] = position % k;
                 }
-                for index in 0..*k {
-                    folds.push(make_fold(
-                        repeat,
-                        index,
-                        (index + 1).to_string(),
-                        &train,
-                        |r| fold_of_unit[unit_of_row[r]] == index,
-                    ));
-                }
+                folds.extend(deal(repeat, *k, &train, |r| fold_of_unit[unit_of_row[r]]));
             }
             *repeats
         }
         FoldScheme::LeaveOneOut => {
-            if train.len() < 2 {
+            // One fold per training unit: a row, or a whole group (leave one
+            // group out), in order of the unit's first row.
+            if train_units.len() < 2 {
                 return Err(SplitError::FewerUnitsThanFolds {
-                    units: train.len(),
+                    units: train_units.len(),
                     folds: 2,
-                    what: "rows",
+                    what,
                 });
             }
-            for (index, &row) in train.iter().enumerate() {
+            let mut order: Vec<usize> = train_units.clone();
+            order.sort_by_key(|&u| rows_of_unit[u][0]);
+            for (index, unit) in order.into_iter().enumerate() {
                 folds.push(make_fold(0, index, (index + 1).to_string(), &train, |r| {
-                    r == row
+                    unit_of_row[r] == unit
                 }));
             }
             1
@@ -230,6 +228,35 @@ pub fn assign(
         folds,
         repeats,
     })
+}
+
+/// Splits `train_rows` into `k` folds in one pass; `fold_of(row)` is 0-based.
+fn deal(
+    repeat: usize,
+    k: usize,
+    train_rows: &[usize],
+    fold_of: impl Fn(usize) -> usize,
+) -> Vec<Fold> {
+    let placed: Vec<usize> = train_rows.iter().map(|&r| fold_of(r)).collect();
+    (0..k)
+        .map(|index| {
+            let mut fold = Fold {
+                repeat,
+                index,
+                label: (index + 1).to_string(),
+                train: Vec::with_capacity(train_rows.len()),
+                valid: Vec::new(),
+            };
+            for (&row, &f) in train_rows.iter().zip(&placed) {
+                if f == index {
+                    fold.valid.push(row);
+                } else {
+                    fold.train.push(row);
+                }
+            }
+            fold
+        })
+        .collect()
 }
 
 fn make_fold(

@@ -39,13 +39,18 @@ pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
         "candidate", "settings", "fits", "cached", "to fit", "row-settings"
     );
     let tasks = execute::tasks(&plan);
+    let keys = execute::task_keys(&plan, &tasks);
     let (mut all_fits, mut all_cached, mut all_work) = (0, 0, 0u64);
     for (index, candidate) in plan.candidates.iter().enumerate() {
-        let mine: Vec<_> = tasks.iter().filter(|t| t.candidate == index).collect();
+        let mine: Vec<_> = tasks
+            .iter()
+            .zip(&keys)
+            .filter(|(t, _)| t.candidate == index)
+            .collect();
         let mut cached = 0;
         let mut work = 0u64;
-        for task in &mine {
-            if cache.contains(&execute::task_key(&plan, **task)) {
+        for (task, key) in &mine {
+            if cache.contains(key) {
                 cached += 1;
             } else {
                 let rows = match task.rows {

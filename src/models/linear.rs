@@ -108,7 +108,7 @@ impl Family for Linear {
         x_train: &DMatrix<f64>,
         y_train: &[f64],
         x_eval: &DMatrix<f64>,
-        with_coefficients: bool,
+        final_fit: bool,
     ) -> Result<Vec<SettingFit>, FitError> {
         let columns = self.features.len() + usize::from(self.intercept);
         if x_train.nrows() < columns {
@@ -134,10 +134,14 @@ impl Family for Linear {
                 setting: "linear".into(),
                 column: column + 1,
             })?;
-        let train_pred = predict_leading(&design, &gamma);
+        let train_pred = if final_fit {
+            predict_leading(&design, &gamma)
+        } else {
+            Vec::new()
+        };
         let eval_pred = predict_leading(&self.design(x_eval, &scales), &gamma);
 
-        let coefficients = with_coefficients.then(|| {
+        let coefficients = final_fit.then(|| {
             let to_raw = |g: &[f64]| self.raw_coefficients(g, &scales);
             let raw: Vec<DoubleDouble> = (0..x_train.nrows())
                 .flat_map(|i| {

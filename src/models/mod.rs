@@ -92,14 +92,16 @@ pub trait Family: Send + Sync + std::fmt::Debug {
 
     /// Fits every setting on `(x_train, y_train)` and predicts at `x_eval`
     /// (both with one column per feature, in [`Family::features`] order).
-    /// Raw-unit coefficients are computed only when `with_coefficients` is set
-    /// (the final fit), since refining them costs more than the fit.
+    /// Training predictions and raw-unit coefficients are needed only for the
+    /// final fit on all non-test rows (`final_fit`); cross-validation folds
+    /// use only the evaluation predictions, so families may leave
+    /// `train_pred` empty and `coefficients` unset when `final_fit` is false.
     fn fit_path(
         &self,
         x_train: &DMatrix<f64>,
         y_train: &[f64],
         x_eval: &DMatrix<f64>,
-        with_coefficients: bool,
+        final_fit: bool,
     ) -> Result<Vec<SettingFit>, FitError>;
 }
 

@@ -6,6 +6,11 @@
 //! found once and sorted by (distance, training row); prefix sums of their
 //! targets then give every k at once. Ties in distance go to the earlier
 //! training row, so results never depend on a search order.
+//!
+//! With one feature the search walks outwards from the query's place in the
+//! sorted training values (O(log n + k) per query); with several it scans all
+//! training rows and selects the k nearest (O(n) per query). Both give exactly
+//! the same neighbours, boundary ties included.
 
 use nalgebra::DMatrix;
 
@@ -25,6 +30,13 @@ struct Standardised {
     dims: usize,
     means: Vec<f64>,
     sds: Vec<f64>,
+    /// With one feature: (value, row) sorted, for the outward walk.
+    sorted: Option<Vec<(f64, usize)>>,
+}
+
+/// Order of neighbours: squared distance, then training row.
+fn by_distance_then_row(a: &(f64, usize), b: &(f64, usize)) -> std::cmp::Ordering {
+    a.0.total_cmp(&b.0).then(a.1.cmp(&b.1))
 }
 
 impl Standardised {
@@ -38,8 +50,14 @@ impl Standardised {
             dims: x.ncols(),
             means,
             sds,
+            sorted: None,
         };
         s.points = s.transform(x);
+        if s.dims == 1 {
+            let mut sorted: Vec<(f64, usize)> = s.points.iter().copied().zip(0..).collect();
+            sorted.sort_unstable_by(by_distance_then_row);
+            s.sorted = Some(sorted);
+        }
         s
     }
 
@@ -53,6 +71,60 @@ impl Standardised {
         out
     }
 
+    /// The `k_max` nearest training rows of `query` (plus any rows tied with
+    /// the last of them), in `scratch`, in no particular order.
+    fn gather_candidates(&self, query: &[f64], k_max: usize, scratch: &mut Vec<(f64, usize)>) {
+        scratch.clear();
+        let Some(sorted) = &self.sorted else {
+            scratch.extend(
+                self.points
+                    .chunks_exact(self.dims)
+                    .enumerate()
+                    .map(|(row, p)| {
+                        let d2: f64 = p.iter().zip(query).map(|(a, b)| (a - b) * (a - b)).sum();
+                        (d2, row)
+                    }),
+            );
+            return;
+        };
+        let q = query[0];
+        let distance = |i: usize| {
+            let (v, row) = sorted[i];
+            ((v - q) * (v - q), row)
+        };
+        let start = sorted.partition_point(|(v, _)| *v < q);
+        let (mut below, mut above) = (start, start);
+        let mut kth = f64::INFINITY;
+        loop {
+            let left = (below > 0).then(|| distance(below - 1));
+            let right = (above < sorted.len()).then(|| distance(above));
+            let next = match (left, right) {
+                (Some(l), Some(r)) if l.0 <= r.0 => {
+                    below -= 1;
+                    l
+                }
+                (_, Some(r)) => {
+                    above += 1;
+                    r
+                }
+                (Some(l), None) => {
+                    below -= 1;
+                    l
+                }
+                (None, None) => break,
+            };
+            // Distances come in non-decreasing order; stop past the k-th,
+            // once every row tied with it is in.
+            if scratch.len() >= k_max && next.0 > kth {
+                break;
+            }
+            scratch.push(next);
+            if scratch.len() == k_max {
+                kth = next.0;
+            }
+        }
+    }
+
     /// Prefix sums of the targets of the `k_max` nearest training rows of `query`.
     fn neighbour_prefix_sums(
         &self,
@@ -61,18 +133,7 @@ impl Standardised {
         k_max: usize,
         scratch: &mut Vec<(f64, usize)>,
     ) -> Vec<f64> {
-        scratch.clear();
-        scratch.extend(
-            self.points
-                .chunks_exact(self.dims)
-                .enumerate()
-                .map(|(row, p)| {
-                    let d2: f64 = p.iter().zip(query).map(|(a, b)| (a - b) * (a - b)).sum();
-                    (d2, row)
-                }),
-        );
-        let by_distance_then_row =
-            |a: &(f64, usize), b: &(f64, usize)| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1));
+        self.gather_candidates(query, k_max, scratch);
         if k_max < scratch.len() {
             scratch.select_nth_unstable_by(k_max - 1, by_distance_then_row);
             scratch.truncate(k_max);
@@ -107,7 +168,7 @@ impl Family for NearestNeighbors {
         x_train: &DMatrix<f64>,
         y_train: &[f64],
         x_eval: &DMatrix<f64>,
-        _with_coefficients: bool,
+        final_fit: bool,
     ) -> Result<Vec<SettingFit>, FitError> {
         let n = x_train.nrows();
         let k_max = self.ks.iter().copied().max().unwrap_or(1);
@@ -131,7 +192,11 @@ impl Family for NearestNeighbors {
                 .map(|q| space.neighbour_prefix_sums(q, y_train, k_max, &mut scratch))
                 .collect()
         };
-        let train_sums = predict_all(&space.points);
+        let train_sums = if final_fit {
+            predict_all(&space.points)
+        } else {
+            Vec::new()
+        };
         let eval_sums = predict_all(&space.transform(x_eval));
         Ok(self
             .ks
@@ -166,7 +231,7 @@ mod tests {
             features: vec!["a".into(), "b".into()],
             ks: vec![1],
         };
-        let fit = &knn.fit_path(&x, &y, &x, false).unwrap()[0];
+        let fit = &knn.fit_path(&x, &y, &x, true).unwrap()[0];
         assert_eq!(fit.train_pred, y);
     }
 
@@ -178,7 +243,7 @@ mod tests {
             features: vec!["a".into(), "b".into()],
             ks: vec![10],
         };
-        let fit = &knn.fit_path(&x, &y, &x, false).unwrap()[0];
+        let fit = &knn.fit_path(&x, &y, &x, true).unwrap()[0];
         let mean = y.iter().sum::<f64>() / 10.0;
         for p in &fit.eval_pred {
             assert!((p - mean).abs() < 1e-12);
@@ -193,16 +258,43 @@ mod tests {
             features: vec!["a".into(), "b".into()],
             ks: vec![1, 3, 7],
         }
-        .fit_path(&x, &y, &x, false)
+        .fit_path(&x, &y, &x, true)
         .unwrap();
         for (i, k) in [1, 3, 7].into_iter().enumerate() {
             let alone = NearestNeighbors {
                 features: vec!["a".into(), "b".into()],
                 ks: vec![k],
             }
-            .fit_path(&x, &y, &x, false)
+            .fit_path(&x, &y, &x, true)
             .unwrap();
             assert_eq!(together[i], alone[0]);
+        }
+    }
+}
+
+#[cfg(test)]
+mod search_tests {
+    use super::*;
+
+    #[test]
+    fn sorted_walk_equals_full_scan_with_ties() {
+        // Many repeated values: the walk must pick the same rows as a scan,
+        // ties broken by row.
+        let x = DMatrix::from_fn(40, 1, |i, _| ((i * 7) % 9) as f64);
+        let y: Vec<f64> = (0..40).map(|i| i as f64).collect();
+        let walk = Standardised::fit(&x);
+        let mut scan = Standardised::fit(&x);
+        scan.sorted = None;
+        let queries = DMatrix::from_fn(15, 1, |i, _| i as f64 * 0.6 - 0.5);
+        let (mut a, mut b) = (Vec::new(), Vec::new());
+        for q in walk.transform(&queries) {
+            for k in [1, 3, 5, 12, 40] {
+                assert_eq!(
+                    walk.neighbour_prefix_sums(&[q], &y, k, &mut a),
+                    scan.neighbour_prefix_sums(&[q], &y, k, &mut b),
+                    "query {q}, k {k}"
+                );
+            }
         }
     }
 }

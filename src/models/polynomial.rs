@@ -242,7 +242,7 @@ impl Family for Polynomial {
         x_train: &DMatrix<f64>,
         y_train: &[f64],
         x_eval: &DMatrix<f64>,
-        with_coefficients: bool,
+        final_fit: bool,
     ) -> Result<Vec<SettingFit>, FitError> {
         let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
         let columns = self.columns_for(max_degree);
@@ -274,10 +274,14 @@ impl Family for Polynomial {
                         column: column + 1,
                     })?;
                 Ok(SettingFit {
-                    train_pred: predict_leading(&design, &gamma),
+                    train_pred: if final_fit {
+                        predict_leading(&design, &gamma)
+                    } else {
+                        Vec::new()
+                    },
                     eval_pred: predict_leading(&eval_design, &gamma),
                     effective_df: m as f64,
-                    coefficients: with_coefficients.then(|| {
+                    coefficients: final_fit.then(|| {
                         self.refined_coefficients(
                             &solver,
                             gamma.as_slice(),

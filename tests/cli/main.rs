@@ -7,4 +7,6 @@ mod bad_input;
 mod cv_reference;
 mod demo;
 mod nist;
+mod reproducible;
+mod split_reference;
 mod util;
