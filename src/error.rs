@@ -81,6 +81,13 @@ pub enum FitError {
          others); lower the degree or drop a feature"
     )]
     RankDeficient { setting: String, column: usize },
+    #[error(
+        "{setting}: training row {row} has leverage 1 (it alone determines its own fit), so \
+         its leave-one-out prediction is undefined; use k-fold instead"
+    )]
+    FullLeverage { setting: String, row: usize },
+    #[error("family \"{family}\" is not built in this version of heldout yet")]
+    NotBuilt { family: &'static str },
 }
 
 /// A `FitError` with the candidate and fold it happened in.

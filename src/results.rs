@@ -255,6 +255,7 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
 fn setting_value_json(value: crate::models::SettingValue) -> serde_json::Value {
     match value {
         crate::models::SettingValue::Count(n) => serde_json::Value::from(n),
+        crate::models::SettingValue::Real(v) => serde_json::Value::from(v),
     }
 }
 

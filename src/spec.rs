@@ -143,6 +143,16 @@ pub struct CandidateSpec {
     pub degree: Option<Vec<usize>>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub k: Option<Vec<usize>>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub penalty: Option<Vec<f64>>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub df: Option<Vec<f64>>,
+    /// thin-plate: knots of the low-rank fit used above `exact_limit` rows.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub knots: Option<usize>,
+    /// thin-plate: largest training fold fitted exactly.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub exact_limit: Option<usize>,
 }
 
 /// The model families a candidate may name.
@@ -152,7 +162,25 @@ pub enum FamilyName {
     Linear,
     Polynomial,
     NearestNeighbors,
+    SmoothingSpline,
+    Spline,
+    ThinPlate,
+    Ridge,
+    Lasso,
 }
+
+/// The grid of a penalised smoother: penalties, or target degrees of freedom
+/// (each turned into a penalty by root finding on the smoother's trace).
+#[derive(Debug, Clone, PartialEq)]
+pub enum SmootherGrid {
+    Penalty(Vec<f64>),
+    Df(Vec<f64>),
+}
+
+/// Thin-plate defaults: exact up to this many training rows, then low rank.
+pub const THIN_PLATE_EXACT_LIMIT: usize = 2000;
+/// Thin-plate defaults: knots of the low-rank fit.
+pub const THIN_PLATE_KNOTS: usize = 300;
 
 /// A validated candidate: one variant per family, with its own settings.
 #[derive(Debug, Clone, PartialEq)]
@@ -173,6 +201,33 @@ pub enum FamilySpec {
         features: Option<Vec<String>>,
         k: Vec<usize>,
     },
+    SmoothingSpline {
+        label: Option<String>,
+        features: Option<Vec<String>>,
+        grid: SmootherGrid,
+    },
+    Spline {
+        label: Option<String>,
+        features: Option<Vec<String>>,
+        df: Vec<usize>,
+    },
+    ThinPlate {
+        label: Option<String>,
+        features: Option<Vec<String>>,
+        grid: SmootherGrid,
+        knots: usize,
+        exact_limit: usize,
+    },
+    Ridge {
+        label: Option<String>,
+        features: Option<Vec<String>>,
+        penalty: Vec<f64>,
+    },
+    Lasso {
+        label: Option<String>,
+        features: Option<Vec<String>>,
+        penalty: Vec<f64>,
+    },
 }
 
 impl CandidateSpec {
@@ -182,6 +237,10 @@ impl CandidateSpec {
             ("intercept", self.intercept.is_some()),
             ("degree", self.degree.is_some()),
             ("k", self.k.is_some()),
+            ("penalty", self.penalty.is_some()),
+            ("df", self.df.is_some()),
+            ("knots", self.knots.is_some()),
+            ("exact_limit", self.exact_limit.is_some()),
         ];
         given
             .into_iter()
@@ -196,6 +255,10 @@ impl CandidateSpec {
             FamilyName::Linear => &["intercept"],
             FamilyName::Polynomial => &["intercept", "degree"],
             FamilyName::NearestNeighbors => &["k"],
+            FamilyName::SmoothingSpline => &["penalty", "df"],
+            FamilyName::Spline => &["df"],
+            FamilyName::ThinPlate => &["penalty", "df", "knots", "exact_limit"],
+            FamilyName::Ridge | FamilyName::Lasso => &["penalty"],
         };
         let family = FamilySpec::name_of(self.family);
         if let Some(stray) = self
@@ -223,6 +286,24 @@ impl CandidateSpec {
                 )
             })
         };
+        let required_reals = |grid: &Option<Vec<f64>>, key: &str| {
+            grid.clone().ok_or_else(|| {
+                (
+                    key.to_string(),
+                    format!("family \"{family}\" needs a grid: `{key} = [...]`"),
+                )
+            })
+        };
+        let smoother_grid = || match (&self.penalty, &self.df) {
+            (Some(p), None) => Ok(SmootherGrid::Penalty(p.clone())),
+            (None, Some(d)) => Ok(SmootherGrid::Df(d.clone())),
+            _ => Err((
+                "penalty".to_string(),
+                format!(
+                    "family \"{family}\" needs exactly one grid: `penalty = [...]` or `df = [...]`"
+                ),
+            )),
+        };
         let label = self.label.clone();
         let features = self.features.clone();
         Ok(match self.family {
@@ -242,6 +323,46 @@ impl CandidateSpec {
                 features,
                 k: required(&self.k, "k")?,
             },
+            FamilyName::SmoothingSpline => FamilySpec::SmoothingSpline {
+                label,
+                features,
+                grid: smoother_grid()?,
+            },
+            FamilyName::Spline => {
+                let df = required_reals(&self.df, "df")?;
+                let whole: Option<Vec<usize>> = df
+                    .iter()
+                    .map(|&d| (d.fract() == 0.0 && d >= 1.0).then_some(d as usize))
+                    .collect();
+                FamilySpec::Spline {
+                    label,
+                    features,
+                    df: whole.ok_or_else(|| {
+                        (
+                            "df".to_string(),
+                            "spline df must be whole numbers ≥ 1 (basis columns per feature)"
+                                .to_string(),
+                        )
+                    })?,
+                }
+            }
+            FamilyName::ThinPlate => FamilySpec::ThinPlate {
+                label,
+                features,
+                grid: smoother_grid()?,
+                knots: self.knots.unwrap_or(THIN_PLATE_KNOTS),
+                exact_limit: self.exact_limit.unwrap_or(THIN_PLATE_EXACT_LIMIT),
+            },
+            FamilyName::Ridge => FamilySpec::Ridge {
+                label,
+                features,
+                penalty: required_reals(&self.penalty, "penalty")?,
+            },
+            FamilyName::Lasso => FamilySpec::Lasso {
+                label,
+                features,
+                penalty: required_reals(&self.penalty, "penalty")?,
+            },
         })
     }
 }
@@ -252,16 +373,30 @@ impl FamilySpec {
             FamilyName::Linear => "linear",
             FamilyName::Polynomial => "polynomial",
             FamilyName::NearestNeighbors => "nearest-neighbors",
+            FamilyName::SmoothingSpline => "smoothing-spline",
+            FamilyName::Spline => "spline",
+            FamilyName::ThinPlate => "thin-plate",
+            FamilyName::Ridge => "ridge",
+            FamilyName::Lasso => "lasso",
+        }
+    }
+
+    fn family(&self) -> FamilyName {
+        match self {
+            FamilySpec::Linear { .. } => FamilyName::Linear,
+            FamilySpec::Polynomial { .. } => FamilyName::Polynomial,
+            FamilySpec::NearestNeighbors { .. } => FamilyName::NearestNeighbors,
+            FamilySpec::SmoothingSpline { .. } => FamilyName::SmoothingSpline,
+            FamilySpec::Spline { .. } => FamilyName::Spline,
+            FamilySpec::ThinPlate { .. } => FamilyName::ThinPlate,
+            FamilySpec::Ridge { .. } => FamilyName::Ridge,
+            FamilySpec::Lasso { .. } => FamilyName::Lasso,
         }
     }
 
     /// The family's name as written in the spec.
     pub fn family_name(&self) -> &'static str {
-        Self::name_of(match self {
-            FamilySpec::Linear { .. } => FamilyName::Linear,
-            FamilySpec::Polynomial { .. } => FamilyName::Polynomial,
-            FamilySpec::NearestNeighbors { .. } => FamilyName::NearestNeighbors,
-        })
+        Self::name_of(self.family())
     }
 
     /// The optional label that replaces the family name in candidate ids.
@@ -269,7 +404,12 @@ impl FamilySpec {
         match self {
             FamilySpec::Linear { label, .. }
             | FamilySpec::Polynomial { label, .. }
-            | FamilySpec::NearestNeighbors { label, .. } => label.as_deref(),
+            | FamilySpec::NearestNeighbors { label, .. }
+            | FamilySpec::SmoothingSpline { label, .. }
+            | FamilySpec::Spline { label, .. }
+            | FamilySpec::ThinPlate { label, .. }
+            | FamilySpec::Ridge { label, .. }
+            | FamilySpec::Lasso { label, .. } => label.as_deref(),
         }
     }
 
@@ -278,7 +418,12 @@ impl FamilySpec {
         match self {
             FamilySpec::Linear { features, .. }
             | FamilySpec::Polynomial { features, .. }
-            | FamilySpec::NearestNeighbors { features, .. } => features.as_deref(),
+            | FamilySpec::NearestNeighbors { features, .. }
+            | FamilySpec::SmoothingSpline { features, .. }
+            | FamilySpec::Spline { features, .. }
+            | FamilySpec::ThinPlate { features, .. }
+            | FamilySpec::Ridge { features, .. }
+            | FamilySpec::Lasso { features, .. } => features.as_deref(),
         }
     }
 }
@@ -516,6 +661,23 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
             .to_family()
             .map_err(|(sub, message)| invalid(&format!("{key}.{sub}"), message))?;
         validate_candidate(&candidate, &key, &invalid)?;
+        let wanted = match candidate {
+            FamilySpec::SmoothingSpline { .. } => Some(1),
+            FamilySpec::ThinPlate { .. } => Some(2),
+            _ => None,
+        };
+        let features = candidate.features_override().unwrap_or(&data.features);
+        if let Some(wanted) = wanted.filter(|&w| w != features.len()) {
+            return Err(invalid(
+                &format!("{key}.features"),
+                format!(
+                    "{} takes exactly {wanted} feature(s), got {} ({}); set `features = [...]` on the candidate",
+                    candidate.family_name(),
+                    features.len(),
+                    features.join(", ")
+                ),
+            ));
+        }
         let stem = candidate.label().unwrap_or(candidate.family_name());
         if !ids.insert(stem.to_string()) {
             return Err(invalid(
@@ -679,7 +841,43 @@ fn validate_candidate(
         FamilySpec::NearestNeighbors { k, .. } => {
             check_grid(k, 1, usize::MAX, &format!("{key}.k"), "k", invalid)
         }
+        FamilySpec::Spline { df, .. } => check_grid(df, 1, 50, &format!("{key}.df"), "df", invalid),
+        FamilySpec::SmoothingSpline { grid, .. } | FamilySpec::ThinPlate { grid, .. } => {
+            let (name, values, lowest) = match grid {
+                SmootherGrid::Penalty(v) => ("penalty", v, 0.0),
+                SmootherGrid::Df(v) => ("df", v, 1.0),
+            };
+            check_real_grid(values, lowest, &format!("{key}.{name}"), name, invalid)
+        }
+        FamilySpec::Ridge { penalty, .. } | FamilySpec::Lasso { penalty, .. } => {
+            check_real_grid(penalty, 0.0, &format!("{key}.penalty"), "penalty", invalid)
+        }
     }
+}
+
+/// A real-valued grid must be non-empty, finite, at least `lowest`, without repeats.
+fn check_real_grid(
+    values: &[f64],
+    lowest: f64,
+    key: &str,
+    what: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if values.is_empty() {
+        return Err(invalid(key, format!("list at least one {what}")));
+    }
+    for (i, &value) in values.iter().enumerate() {
+        if !value.is_finite() || value < lowest {
+            return Err(invalid(
+                key,
+                format!("{what} = {value} must be a finite number ≥ {lowest}"),
+            ));
+        }
+        if values[..i].contains(&value) {
+            return Err(invalid(key, format!("{what} = {value} is listed twice")));
+        }
+    }
+    Ok(())
 }
 
 /// A grid must be non-empty, within bounds and free of repeats.

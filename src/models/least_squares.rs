@@ -48,7 +48,9 @@ impl NestedLeastSquares {
         }) {
             return Err(i);
         }
-        Ok(DVector::from_vec(self.back_substitute(&self.q_t_y.as_slice()[..m])))
+        Ok(DVector::from_vec(
+            self.back_substitute(&self.q_t_y.as_slice()[..m]),
+        ))
     }
 
     /// Solves R[..m, ..m] x = rhs (m = rhs.len()) by back substitution.
@@ -138,6 +140,22 @@ impl NestedLeastSquares {
         }
         beta
     }
+}
+
+/// Leverages of every leading block: entry (i, m − 1) is the hat-matrix
+/// diagonal hᵢᵢ of the fit on the first m columns, Σ_{j<m} Q_ij² with Q the
+/// thin orthogonal factor (nested for the same reason as the coefficients).
+pub fn cumulative_leverages(design: &DMatrix<f64>) -> DMatrix<f64> {
+    let q = design.clone().qr().q();
+    let mut leverages = DMatrix::zeros(q.nrows(), q.ncols());
+    for i in 0..q.nrows() {
+        let mut total = 0.0;
+        for j in 0..q.ncols() {
+            total += q[(i, j)] * q[(i, j)];
+            leverages[(i, j)] = total;
+        }
+    }
+    leverages
 }
 
 /// `design[.., ..m] · beta`, summed in column order.

@@ -15,8 +15,10 @@
 use nalgebra::DMatrix;
 
 use super::double_double::DoubleDouble;
-use super::least_squares::{predict_leading, NestedLeastSquares, RawRefinement};
-use super::{require_spread, Family, Setting, SettingFit};
+use super::least_squares::{
+    cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
+};
+use super::{loo_from_leverage, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Least-squares polynomials of the listed degrees.
@@ -295,6 +297,44 @@ impl Family for Polynomial {
             })
             .collect()
     }
+
+    fn leave_one_out(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+        Some(self.loo_by_leverage(x_train, y_train))
+    }
+}
+
+impl Polynomial {
+    /// Leave-one-out predictions of every degree from one fit on all rows.
+    fn loo_by_leverage(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Result<Vec<Vec<f64>>, FitError> {
+        let fits = self.fit_path(x_train, y_train, &x_train.rows(0, 0).into_owned(), true)?;
+        let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
+        let maps = self.range_maps(x_train);
+        let leverages = cumulative_leverages(&self.design(x_train, &maps, max_degree));
+        self.degrees
+            .iter()
+            .zip(fits)
+            .map(|(&degree, fit)| {
+                let column = self.columns_for(degree) - 1;
+                (0..y_train.len())
+                    .map(|i| {
+                        loo_from_leverage(y_train[i], fit.train_pred[i], leverages[(i, column)])
+                            .ok_or_else(|| FitError::FullLeverage {
+                                setting: format!("degree={degree}"),
+                                row: i + 1,
+                            })
+                    })
+                    .collect()
+            })
+            .collect()
+    }
 }
 
 #[cfg(test)]
@@ -384,5 +424,42 @@ mod tests {
         };
         let err = poly.fit_path(&x, &y, &x, true).unwrap_err();
         assert!(matches!(err, FitError::RankDeficient { .. }), "{err:?}");
+    }
+}
+
+#[cfg(test)]
+mod leave_one_out_tests {
+    use super::*;
+
+    #[test]
+    fn hat_diagonal_shortcut_equals_refits() {
+        // Identity (common practice for linear smoothers): the shortcut equals
+        // refitting without each row, here to 1e-9 relative.
+        let n = 25;
+        let x = DMatrix::from_fn(n, 1, |i, _| (i as f64 * 0.37).sin() * 4.0 + i as f64 * 0.1);
+        let y: Vec<f64> = (0..n)
+            .map(|i| (x[(i, 0)] * 0.8).cos() + 0.05 * i as f64)
+            .collect();
+        let poly = Polynomial {
+            features: vec!["x".into()],
+            intercept: true,
+            degrees: vec![1, 3, 5],
+        };
+        let shortcut = poly.leave_one_out(&x, &y).unwrap().unwrap();
+        for i in 0..n {
+            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
+            let x_rest = x.select_rows(&keep);
+            let y_rest: Vec<f64> = keep.iter().map(|&r| y[r]).collect();
+            let refit = poly
+                .fit_path(&x_rest, &y_rest, &x.rows(i, 1).into_owned(), false)
+                .unwrap();
+            for (setting, fit) in refit.iter().enumerate() {
+                let (a, b) = (shortcut[setting][i], fit.eval_pred[0]);
+                assert!(
+                    (a - b).abs() <= 1e-9 * b.abs().max(1.0),
+                    "row {i}: {a} vs {b}"
+                );
+            }
+        }
     }
 }
