@@ -6,8 +6,9 @@
 use rayon::prelude::*;
 
 use crate::cache::{self, Cache, CacheKey, Lookup};
+use crate::error::FitError;
 use crate::error::{CacheError, FitFailure};
-use crate::models::SettingFit;
+use crate::models::{Family, SettingFit};
 use crate::plan::ExperimentPlan;
 
 /// Which rows a task trains on.
@@ -15,6 +16,9 @@ use crate::plan::ExperimentPlan;
 pub enum TaskRows {
     /// Cross-validation fold (index into `Assignment::folds`).
     Fold(usize),
+    /// Every fold of a single-row leave-one-out split at once: the hat-diagonal
+    /// shortcut for linear smoothers, refits otherwise.
+    LeaveOneOut,
     /// All non-test rows; evaluated on the test rows.
     Full,
 }
@@ -77,11 +81,20 @@ pub enum ExecuteError {
 }
 
 /// Every task of a plan, candidate-major, folds in order, the full fit last.
+/// A single-row leave-one-out split is one task per candidate.
 pub fn tasks(plan: &ExperimentPlan) -> Vec<Task> {
+    let folds: Vec<TaskRows> = if plan.assignment.single_row_folds {
+        vec![TaskRows::LeaveOneOut]
+    } else {
+        (0..plan.assignment.folds.len())
+            .map(TaskRows::Fold)
+            .collect()
+    };
     (0..plan.candidates.len())
         .flat_map(|candidate| {
-            (0..plan.assignment.folds.len())
-                .map(TaskRows::Fold)
+            folds
+                .iter()
+                .copied()
                 .chain(std::iter::once(TaskRows::Full))
                 .map(move |rows| Task { candidate, rows })
         })
@@ -97,41 +110,38 @@ struct TaskData {
 
 fn task_data(plan: &ExperimentPlan, task: Task) -> TaskData {
     let candidate = &plan.candidates[task.candidate];
-    let (train, eval) = task_rows(plan, task.rows);
+    let a = &plan.assignment;
+    let (train, eval) = match task.rows {
+        TaskRows::Fold(f) => (a.fold_train(f), a.folds[f].valid.clone()),
+        TaskRows::LeaveOneOut => (a.train.clone(), a.train.clone()),
+        TaskRows::Full => (a.train.clone(), a.test.clone()),
+    };
     TaskData {
-        x_train: plan.design(candidate, train),
-        y_train: plan.target_of(train),
-        x_eval: plan.design(candidate, eval),
+        x_train: plan.design(candidate, &train),
+        y_train: plan.target_of(&train),
+        x_eval: plan.design(candidate, &eval),
     }
 }
 
-/// The training and evaluation rows of a task.
-fn task_rows(plan: &ExperimentPlan, rows: TaskRows) -> (&[usize], &[usize]) {
-    match rows {
-        TaskRows::Fold(f) => {
-            let fold = &plan.assignment.folds[f];
-            (&fold.train, &fold.valid)
-        }
-        TaskRows::Full => (&plan.assignment.train, &plan.assignment.test),
-    }
+/// Digest of what a task's rows are: the non-test rows (hashed once) and the
+/// rows it evaluates on, plus what kind of task it is.
+fn rows_digest(plan: &ExperimentPlan, non_test: &[u8; 32], rows: TaskRows) -> [u8; 32] {
+    let a = &plan.assignment;
+    let (kind, eval): (&[u8], &[usize]) = match rows {
+        TaskRows::Fold(f) => (b"fold", &a.folds[f].valid),
+        TaskRows::LeaveOneOut => (b"leave-one-out", &[]),
+        TaskRows::Full => (b"full", &a.test),
+    };
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(kind);
+    hasher.update(non_test);
+    hasher.update(&cache::digest_rows(eval));
+    *hasher.finalize().as_bytes()
 }
 
-/// The cache key of every task, in [`tasks`] order. Row digests are computed
-/// once per fold and shared by all candidates.
+/// The cache key of every task, in [`tasks`] order.
 pub fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
-    let folds = plan.assignment.folds.len();
-    let row_digests: Vec<[u8; 32]> = (0..=folds)
-        .into_par_iter()
-        .map(|f| {
-            let rows = if f < folds {
-                TaskRows::Fold(f)
-            } else {
-                TaskRows::Full
-            };
-            let (train, eval) = task_rows(plan, rows);
-            cache::digest_rows(train, eval)
-        })
-        .collect();
+    let non_test = cache::digest_rows(&plan.assignment.train);
     let target = &plan.column_digests[&plan.spec.data().target];
     tasks
         .iter()
@@ -142,11 +152,14 @@ pub fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
                 .iter()
                 .map(|f| plan.column_digests[f])
                 .collect();
-            let rows = match task.rows {
-                TaskRows::Fold(f) => &row_digests[f],
-                TaskRows::Full => &row_digests[folds],
-            };
-            cache::key(family, task.rows == TaskRows::Full, &features, target, rows)
+            let rows = rows_digest(plan, &non_test, task.rows);
+            cache::key(
+                family,
+                task.rows == TaskRows::Full,
+                &features,
+                target,
+                &rows,
+            )
         })
         .collect()
 }
@@ -161,6 +174,7 @@ fn describe_rows(plan: &ExperimentPlan, rows: TaskRows) -> String {
                 format!("fold {}", fold.label)
             }
         }
+        TaskRows::LeaveOneOut => "leave-one-out".to_string(),
         TaskRows::Full => "the fit on all non-test rows".to_string(),
     }
 }
@@ -194,20 +208,22 @@ fn run_task(
     }
     let data = task_data(plan, task);
     let candidate = &plan.candidates[task.candidate];
-    let mut fits = candidate
-        .family
-        .fit_path(
+    let fitted = if task.rows == TaskRows::LeaveOneOut {
+        leave_one_out(candidate.family.as_ref(), &data)
+    } else {
+        candidate.family.fit_path(
             &data.x_train,
             &data.y_train,
             &data.x_eval,
             task.rows == TaskRows::Full,
         )
-        .map_err(|source| FitFailure {
-            candidate: candidate.stem.clone(),
-            fold: describe_rows(plan, task.rows),
-            source,
-        })?;
-    if matches!(task.rows, TaskRows::Fold(_)) {
+    };
+    let mut fits = fitted.map_err(|source| FitFailure {
+        candidate: candidate.stem.clone(),
+        fold: describe_rows(plan, task.rows),
+        source,
+    })?;
+    if task.rows != TaskRows::Full {
         // Only validation predictions of a fold are ever used.
         for fit in &mut fits {
             fit.train_pred = Vec::new();
@@ -221,6 +237,47 @@ fn run_task(
         reused: false,
         corrupt,
     })
+}
+
+/// Leave-one-out predictions for every row and setting, as `SettingFit`s whose
+/// `eval_pred` holds them in row order: the family's shortcut when it has one,
+/// otherwise one refit per left-out row (in parallel, gathered in order).
+fn leave_one_out(family: &dyn Family, data: &TaskData) -> Result<Vec<SettingFit>, FitError> {
+    let predictions = match family.leave_one_out(&data.x_train, &data.y_train) {
+        Some(shortcut) => shortcut?,
+        None => {
+            let n = data.y_train.len();
+            let per_row: Vec<Vec<f64>> = (0..n)
+                .into_par_iter()
+                .map(|i| {
+                    let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
+                    let x_rest = data.x_train.select_rows(&keep);
+                    let y_rest: Vec<f64> = keep.iter().map(|&r| data.y_train[r]).collect();
+                    let fits = family.fit_path(
+                        &x_rest,
+                        &y_rest,
+                        &data.x_train.rows(i, 1).into_owned(),
+                        false,
+                    )?;
+                    Ok(fits.into_iter().map(|f| f.eval_pred[0]).collect())
+                })
+                .collect::<Vec<Result<Vec<f64>, FitError>>>()
+                .into_iter()
+                .collect::<Result<_, _>>()?;
+            (0..family.settings().len())
+                .map(|s| per_row.iter().map(|row| row[s]).collect())
+                .collect()
+        }
+    };
+    Ok(predictions
+        .into_iter()
+        .map(|eval_pred| SettingFit {
+            train_pred: Vec::new(),
+            eval_pred,
+            effective_df: f64::NAN,
+            coefficients: None,
+        })
+        .collect())
 }
 
 /// Runs the tasks (all, or one shard's) in parallel. Returns the gathered
@@ -281,6 +338,17 @@ pub fn run(
             TaskRows::Fold(_) => target
                 .fold_predictions
                 .push(outcome.fits.into_iter().map(|fit| fit.eval_pred).collect()),
+            TaskRows::LeaveOneOut => {
+                // Fold i of a single-row split validates on non-test row i.
+                for row in 0..plan.assignment.folds.len() {
+                    let grid = outcome
+                        .fits
+                        .iter()
+                        .map(|fit| vec![fit.eval_pred[row]])
+                        .collect();
+                    target.fold_predictions.push(grid);
+                }
+            }
             TaskRows::Full => target.full = outcome.fits,
         }
     }

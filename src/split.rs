@@ -24,7 +24,9 @@ pub enum Placement {
     Fold(usize),
 }
 
-/// One cross-validation fold: which non-test rows train and which validate.
+/// One cross-validation fold: the non-test rows it validates on. It trains
+/// on every other non-test row ([`Assignment::fold_train`]); only the
+/// validation rows are stored, so leave-one-out on n rows needs O(n) memory.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Fold {
     /// 0-based repeat.
@@ -34,8 +36,6 @@ pub struct Fold {
     /// Label shown to people (`1`, `2`, … or the fold column's text).
     pub label: String,
     /// Row indices (into the loaded table), ascending.
-    pub train: Vec<usize>,
-    /// Row indices, ascending.
     pub valid: Vec<usize>,
 }
 
@@ -50,9 +50,30 @@ pub struct Assignment {
     pub folds: Vec<Fold>,
     /// Number of repeats.
     pub repeats: usize,
+    /// Leave-one-out on single rows: fold i validates on `train[i]` alone.
+    pub single_row_folds: bool,
 }
 
 impl Assignment {
+    /// The training rows of fold `f`: the non-test rows it does not validate on.
+    pub fn fold_train(&self, f: usize) -> Vec<usize> {
+        let valid = &self.folds[f].valid;
+        let mut out = Vec::with_capacity(self.train.len() - valid.len());
+        let mut next = valid.iter().peekable();
+        for &row in &self.train {
+            while next.next_if(|&&v| v < row).is_some() {}
+            if next.next_if_eq(&&row).is_none() {
+                out.push(row);
+            }
+        }
+        out
+    }
+
+    /// Number of training rows of fold `f`.
+    pub fn fold_train_len(&self, f: usize) -> usize {
+        self.train.len() - self.folds[f].valid.len()
+    }
+
     /// Where each row sits in the given repeat.
     pub fn placements(&self, rows: usize, repeat: usize) -> Vec<Placement> {
         let mut placement = vec![Placement::Test; rows];
@@ -222,11 +243,14 @@ pub fn assign(
             1
         }
     };
+    let single_row_folds =
+        matches!(scheme, FoldScheme::LeaveOneOut) && folds.iter().all(|f| f.valid.len() == 1);
     Ok(Assignment {
         test,
         train,
         folds,
         repeats,
+        single_row_folds,
     })
 }
 
@@ -237,26 +261,18 @@ fn deal(
     train_rows: &[usize],
     fold_of: impl Fn(usize) -> usize,
 ) -> Vec<Fold> {
-    let placed: Vec<usize> = train_rows.iter().map(|&r| fold_of(r)).collect();
-    (0..k)
-        .map(|index| {
-            let mut fold = Fold {
-                repeat,
-                index,
-                label: (index + 1).to_string(),
-                train: Vec::with_capacity(train_rows.len()),
-                valid: Vec::new(),
-            };
-            for (&row, &f) in train_rows.iter().zip(&placed) {
-                if f == index {
-                    fold.valid.push(row);
-                } else {
-                    fold.train.push(row);
-                }
-            }
-            fold
+    let mut folds: Vec<Fold> = (0..k)
+        .map(|index| Fold {
+            repeat,
+            index,
+            label: (index + 1).to_string(),
+            valid: Vec::new(),
         })
-        .collect()
+        .collect();
+    for &row in train_rows {
+        folds[fold_of(row)].valid.push(row);
+    }
+    folds
 }
 
 fn make_fold(
@@ -266,13 +282,11 @@ fn make_fold(
     train_rows: &[usize],
     in_fold: impl Fn(usize) -> bool,
 ) -> Fold {
-    let (valid, train): (Vec<usize>, Vec<usize>) = train_rows.iter().partition(|&&r| in_fold(r));
     Fold {
         repeat,
         index,
         label,
-        train,
-        valid,
+        valid: train_rows.iter().copied().filter(|&r| in_fold(r)).collect(),
     }
 }
 
@@ -318,9 +332,16 @@ mod tests {
                 .collect();
             seen.sort_unstable();
             assert_eq!(seen, a.train, "each non-test row validates exactly once");
-            for fold in a.folds.iter().filter(|f| f.repeat == repeat) {
+            for (f, fold) in a
+                .folds
+                .iter()
+                .enumerate()
+                .filter(|(_, f)| f.repeat == repeat)
+            {
                 assert!(fold.valid.len() == 16 || fold.valid.len() == 17);
-                assert_eq!(fold.valid.len() + fold.train.len(), 82);
+                let train = a.fold_train(f);
+                assert_eq!(fold.valid.len() + train.len(), 82);
+                assert!(train.iter().all(|r| !fold.valid.contains(r)));
             }
         }
         assert_ne!(a.folds[0].valid, a.folds[5].valid, "repeats reshuffle");
@@ -349,9 +370,10 @@ mod tests {
             repeats: 1,
         };
         let a = assign(3, 0.0, &scheme, &ids, &units).unwrap();
-        for fold in &a.folds {
+        for (f, fold) in a.folds.iter().enumerate() {
+            let train = a.fold_train(f);
             for &v in &fold.valid {
-                assert!(fold.train.iter().all(|&t| units[t] != units[v]));
+                assert!(train.iter().all(|&t| units[t] != units[v]));
             }
         }
     }

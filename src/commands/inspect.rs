@@ -54,7 +54,8 @@ pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
                 cached += 1;
             } else {
                 let rows = match task.rows {
-                    TaskRows::Fold(f) => a.folds[f].train.len(),
+                    TaskRows::Fold(f) => a.fold_train_len(f),
+                    TaskRows::LeaveOneOut => a.train.len() * a.train.len(),
                     TaskRows::Full => a.train.len(),
                 };
                 work += (rows * candidate.settings.len()) as u64;

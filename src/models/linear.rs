@@ -8,8 +8,10 @@
 use nalgebra::DMatrix;
 
 use super::double_double::DoubleDouble;
-use super::least_squares::{predict_leading, NestedLeastSquares, RawRefinement};
-use super::{mean_and_sd, require_spread, Family, Setting, SettingFit};
+use super::least_squares::{
+    cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
+};
+use super::{loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Least squares on the features, with or without an intercept.
@@ -91,6 +93,31 @@ impl Linear {
 }
 
 impl Family for Linear {
+    fn leave_one_out(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+        // Fitted values are the predictions at the training rows themselves.
+        let fit = self.fit_path(x_train, y_train, x_train, false);
+        Some(fit.and_then(|fits| {
+            let design = self.design(x_train, &self.scales(x_train));
+            let leverages = cumulative_leverages(&design);
+            let last = design.ncols() - 1;
+            let loo = (0..y_train.len())
+                .map(|i| {
+                    loo_from_leverage(y_train[i], fits[0].eval_pred[i], leverages[(i, last)]).ok_or(
+                        FitError::FullLeverage {
+                            setting: "linear".into(),
+                            row: i + 1,
+                        },
+                    )
+                })
+                .collect::<Result<Vec<f64>, FitError>>()?;
+            Ok(vec![loo])
+        }))
+    }
+
     fn family(&self) -> &'static str {
         "linear"
     }
@@ -195,6 +222,40 @@ mod tests {
             assert!((got - want).abs() < 1e-12, "{got} vs {want}");
         }
         assert_eq!(fit.effective_df, 3.0);
+    }
+
+    #[test]
+    #[allow(clippy::needless_range_loop)] // row i indexes several parallel arrays
+    fn hat_diagonal_shortcut_equals_refits() {
+        // Identity (common practice for least squares): the leave-one-out
+        // shortcut equals refitting without each row, to 1e-9 relative.
+        let n = 12;
+        let x = DMatrix::from_fn(n, 2, |i, j| ((i * (3 + j)) % 7) as f64 + 0.3 * i as f64);
+        let y: Vec<f64> = (0..n)
+            .map(|i| (i as f64).sqrt() + x[(i, 1)] * 0.2)
+            .collect();
+        let linear = Linear {
+            features: vec!["a".into(), "b".into()],
+            intercept: true,
+        };
+        let shortcut = linear.leave_one_out(&x, &y).unwrap().unwrap();
+        for i in 0..n {
+            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
+            let y_rest: Vec<f64> = keep.iter().map(|&r| y[r]).collect();
+            let refit = linear
+                .fit_path(
+                    &x.select_rows(&keep),
+                    &y_rest,
+                    &x.rows(i, 1).into_owned(),
+                    false,
+                )
+                .unwrap();
+            let (a, b) = (shortcut[0][i], refit[0].eval_pred[0]);
+            assert!(
+                (a - b).abs() <= 1e-9 * b.abs().max(1.0),
+                "row {i}: {a} vs {b}"
+            );
+        }
     }
 
     #[test]

@@ -7,7 +7,8 @@
 //! targets then give every k at once. Ties in distance go to the earlier
 //! training row, so results never depend on a search order.
 //!
-//! With one feature the search walks outwards from the query's place in the
+//! With one feature no scaling is needed (it cannot change the order of
+//! distances) and the search walks outwards from the query's place in the
 //! sorted training values (O(log n + k) per query); with several it scans all
 //! training rows and selects the k nearest (O(n) per query). Both give exactly
 //! the same neighbours, boundary ties included.
@@ -41,10 +42,16 @@ fn by_distance_then_row(a: &(f64, usize), b: &(f64, usize)) -> std::cmp::Orderin
 
 impl Standardised {
     fn fit(x: &DMatrix<f64>) -> Self {
-        let (means, sds): (Vec<f64>, Vec<f64>) = x
-            .column_iter()
-            .map(|c| mean_and_sd(c.iter().copied()))
-            .unzip();
+        // With one feature an affine map cannot change which rows are
+        // nearest, so raw values are used: no rounding from scaling can
+        // break a tie differently in different folds.
+        let (means, sds): (Vec<f64>, Vec<f64>) = if x.ncols() == 1 {
+            (vec![0.0], vec![1.0])
+        } else {
+            x.column_iter()
+                .map(|c| mean_and_sd(c.iter().copied()))
+                .unzip()
+        };
         let mut s = Standardised {
             points: Vec::new(),
             dims: x.ncols(),
@@ -133,7 +140,25 @@ impl Standardised {
         k_max: usize,
         scratch: &mut Vec<(f64, usize)>,
     ) -> Vec<f64> {
-        self.gather_candidates(query, k_max, scratch);
+        self.neighbour_prefix_sums_without(query, y, k_max, None, scratch)
+    }
+
+    /// As [`Self::neighbour_prefix_sums`], with training row `skip` left out
+    /// (leave-one-out): removing one row does not change the order of the
+    /// others, so this equals a search on the other rows.
+    fn neighbour_prefix_sums_without(
+        &self,
+        query: &[f64],
+        y: &[f64],
+        k_max: usize,
+        skip: Option<usize>,
+        scratch: &mut Vec<(f64, usize)>,
+    ) -> Vec<f64> {
+        let wanted = k_max + usize::from(skip.is_some());
+        self.gather_candidates(query, wanted, scratch);
+        if let Some(skip) = skip {
+            scratch.retain(|&(_, row)| row != skip);
+        }
         if k_max < scratch.len() {
             scratch.select_nth_unstable_by(k_max - 1, by_distance_then_row);
             scratch.truncate(k_max);
@@ -150,7 +175,56 @@ impl Standardised {
     }
 }
 
+impl NearestNeighbors {
+    /// Leave-one-out predictions: each training row's neighbours among the others.
+    fn loo_by_exclusion(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Result<Vec<Vec<f64>>, FitError> {
+        let n = x_train.nrows();
+        let k_max = self.ks.iter().copied().max().unwrap_or(1);
+        if n <= k_max {
+            return Err(FitError::TooFewRows {
+                setting: format!("k={k_max}"),
+                needed: k_max + 1,
+                available: n,
+            });
+        }
+        require_spread(
+            &self.features,
+            x_train,
+            "it cannot be standardised for distances",
+        )?;
+        let space = Standardised::fit(x_train);
+        let mut scratch = Vec::with_capacity(n);
+        let sums: Vec<Vec<f64>> = space
+            .points
+            .chunks_exact(space.dims)
+            .enumerate()
+            .map(|(i, q)| {
+                space.neighbour_prefix_sums_without(q, y_train, k_max, Some(i), &mut scratch)
+            })
+            .collect();
+        Ok(self
+            .ks
+            .iter()
+            .map(|&k| sums.iter().map(|s| s[k] / k as f64).collect())
+            .collect())
+    }
+}
+
 impl Family for NearestNeighbors {
+    /// Exact only with one feature: with several, leaving a row out changes
+    /// the standardisation and so possibly the neighbours; then refit.
+    fn leave_one_out(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+        (self.features.len() == 1).then(|| self.loo_by_exclusion(x_train, y_train))
+    }
+
     fn family(&self) -> &'static str {
         "nearest-neighbors"
     }
@@ -294,6 +368,39 @@ mod search_tests {
                     scan.neighbour_prefix_sums(&[q], &y, k, &mut b),
                     "query {q}, k {k}"
                 );
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod leave_one_out_tests {
+    use super::*;
+
+    #[test]
+    fn exclusion_equals_refits_with_ties() {
+        // Identity: leaving row i out of the search equals refitting without
+        // it; repeated values make boundary ties likely.
+        let n = 30;
+        let x = DMatrix::from_fn(n, 1, |i, _| ((i * 5) % 7) as f64);
+        let y: Vec<f64> = (0..n).map(|i| (i as f64 * 0.3).sin()).collect();
+        let knn = NearestNeighbors {
+            features: vec!["x".into()],
+            ks: vec![1, 4, 9],
+        };
+        let shortcut = knn.leave_one_out(&x, &y).unwrap().unwrap();
+        for i in 0..n {
+            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
+            let refit = knn
+                .fit_path(
+                    &x.select_rows(&keep),
+                    &keep.iter().map(|&r| y[r]).collect::<Vec<_>>(),
+                    &x.rows(i, 1).into_owned(),
+                    false,
+                )
+                .unwrap();
+            for (s, fit) in refit.iter().enumerate() {
+                assert_eq!(shortcut[s][i], fit.eval_pred[0], "row {i}, setting {s}");
             }
         }
     }
