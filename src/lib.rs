@@ -4,7 +4,8 @@
 //!
 //! Data flows one way through one module per stage:
 //! `spec` → `data` → `split` → `plan` → `execute` → `assess` → `results` →
-//! `report` / `output`. Model families live in `models`, one file each.
+//! `report` / `output`. Model families live in `models`, one file each;
+//! simulation specs (a declared truth instead of a table) live in `simulate`.
 
 pub mod assess;
 pub mod cache;
@@ -20,5 +21,6 @@ pub mod plan;
 pub mod receipt;
 pub mod report;
 pub mod results;
+pub mod simulate;
 pub mod spec;
 pub mod split;

@@ -34,6 +34,10 @@ pub struct Receipt {
     pub data: Vec<FileDigest>,
     /// Digest of each candidate setting's numbers, in results order.
     pub candidates: Vec<NumbersDigest>,
+    /// Simulation specs: digest of each setting's decomposition, then of
+    /// cross-validation's choices (id `cv-choices`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub simulation: Vec<NumbersDigest>,
     /// Output files, by name inside the experiment's output folder.
     pub outputs: Vec<FileDigest>,
 }
@@ -74,6 +78,13 @@ pub fn spec_digest(spec: &SpecFile) -> String {
     for candidate in &mut normal.candidates {
         if candidate.family != crate::spec::FamilyName::NearestNeighbors {
             candidate.intercept.get_or_insert(true);
+        }
+    }
+    if let Some(sim) = &mut normal.simulate {
+        // `noise = { normal = sd }` means `noise_sd = sd`.
+        if let (None, Some(crate::spec::NoiseSpec::Normal(sd))) = (sim.noise_sd, sim.noise) {
+            sim.noise_sd = Some(sd);
+            sim.noise = None;
         }
     }
     let canonical = serde_json::to_vec(&normal).expect("specs always serialise");
@@ -118,6 +129,60 @@ pub fn numbers_digest(candidate: &crate::results::CandidateResult) -> String {
     hasher.finalize().to_hex().to_string()
 }
 
+/// Digests of a simulation's numbers: one per setting (every number of its
+/// decomposition, in field order, then its pointwise curves), then one of the
+/// choices cross-validation made (`cv-choices`).
+pub fn simulation_digests(output: &crate::simulate::SimulationOutput) -> Vec<NumbersDigest> {
+    let bits = |hasher: &mut blake3::Hasher, values: &[f64]| {
+        hasher.update(&(values.len() as u64).to_le_bytes());
+        for value in values {
+            hasher.update(&value.to_bits().to_le_bytes());
+        }
+    };
+    let mut digests: Vec<NumbersDigest> = output
+        .simulation
+        .iter()
+        .map(|s| {
+            let mut hasher = blake3::Hasher::new();
+            hasher.update(s.id.as_bytes());
+            bits(&mut hasher, &s.numbers());
+            if let Some(curve) = &s.pointwise {
+                bits(&mut hasher, &curve.mean_fit);
+                bits(&mut hasher, &curve.bias_sq);
+                bits(&mut hasher, &curve.variance);
+            }
+            NumbersDigest {
+                id: s.id.clone(),
+                blake3: hasher.finalize().to_hex().to_string(),
+            }
+        })
+        .collect();
+    let cv = &output.simulation_summary.cv;
+    let mut hasher = blake3::Hasher::new();
+    for row in &cv.choices {
+        hasher.update(row.id.as_bytes());
+        hasher.update(&(row.count as u64).to_le_bytes());
+    }
+    for id in &cv.chosen_by_replicate {
+        hasher.update(&(id.len() as u64).to_le_bytes());
+        hasher.update(id.as_bytes());
+    }
+    bits(
+        &mut hasher,
+        &[
+            output.simulation_summary.oracle_expected_mse,
+            cv.mean_excess,
+            cv.mean_excess_se,
+            cv.expected_mse,
+        ],
+    );
+    digests.push(NumbersDigest {
+        id: "cv-choices".to_string(),
+        blake3: hasher.finalize().to_hex().to_string(),
+    });
+    digests
+}
+
 /// Builds the receipt of a run from its plan, results and rendered outputs.
 pub fn build(plan: &ExperimentPlan, results: &Results, outputs: &[(String, Vec<u8>)]) -> Receipt {
     Receipt {
@@ -139,6 +204,11 @@ pub fn build(plan: &ExperimentPlan, results: &Results, outputs: &[(String, Vec<u
                 blake3: numbers_digest(c),
             })
             .collect(),
+        simulation: results
+            .simulation
+            .as_ref()
+            .map(simulation_digests)
+            .unwrap_or_default(),
         outputs: outputs
             .iter()
             .map(|(name, bytes)| FileDigest {

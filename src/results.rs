@@ -30,6 +30,11 @@ pub struct Results {
     pub test_score: Option<f64>,
     #[serde(rename = "final")]
     pub final_fit: FinalFit,
+    /// Simulation specs only: `simulation` (the bias–variance decomposition
+    /// of every setting) and `simulation_summary` (setup, oracle and
+    /// cross-validation's choices), flattened into the top level.
+    #[serde(flatten)]
+    pub simulation: Option<crate::simulate::SimulationOutput>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -249,6 +254,7 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
             coefficients: chosen_fit.coefficients.clone(),
         },
         candidates,
+        simulation: None,
     }
 }
 

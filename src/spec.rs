@@ -12,6 +12,7 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 
 use crate::error::SpecError;
+pub use crate::simulate::spec::{Design, InputSpec, NoiseSpec, SimulateSpec};
 
 /// The whole spec file as written.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
@@ -19,10 +20,9 @@ use crate::error::SpecError;
 pub struct SpecFile {
     pub experiment: ExperimentSpec,
     pub data: Option<DataSpec>,
-    /// Simulation specs are declared in the design but not built yet; the key is
-    /// recognised so that the error can say so plainly.
+    /// A simulation spec declares a truth, inputs and noise instead of `[data]`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub simulate: Option<serde_json::Value>,
+    pub simulate: Option<SimulateSpec>,
     #[serde(default)]
     pub split: SplitSpec,
     #[serde(rename = "candidate")]
@@ -493,6 +493,9 @@ pub struct LoadedSpec {
     pub spec: SpecFile,
     /// The validated candidates, in spec order.
     pub families: Vec<FamilySpec>,
+    /// For a simulation spec: the `[data]` it stands in for (the inputs as
+    /// features, the simulated target), so later stages read both alike.
+    pub simulated_data: Option<DataSpec>,
 }
 
 impl LoadedSpec {
@@ -501,12 +504,19 @@ impl LoadedSpec {
         self.path.parent().unwrap_or(Path::new(""))
     }
 
-    /// The `[data]` table: present on every validated non-simulation spec.
+    /// The `[data]` table: present on every validated non-simulation spec;
+    /// for a simulation spec, the stand-in described at [`Self::simulated_data`].
     pub fn data(&self) -> &DataSpec {
         self.spec
             .data
             .as_ref()
-            .expect("validation guarantees a [data] table")
+            .or(self.simulated_data.as_ref())
+            .expect("validation guarantees a [data] or [simulate] table")
+    }
+
+    /// Whether this is a simulation spec.
+    pub fn is_simulation(&self) -> bool {
+        self.spec.simulate.is_some()
     }
 }
 
@@ -518,10 +528,20 @@ pub fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
     })?;
     let spec = parse(path, &text)?;
     let families = validate(path, &spec)?;
+    let simulated_data = spec.simulate.as_ref().map(|sim| DataSpec {
+        table: "[simulate]".to_string(),
+        target: sim.target.clone(),
+        features: sim.input_names(),
+        key: None,
+        group: None,
+        order: None,
+        missing: MissingPolicy::Error,
+    });
     Ok(LoadedSpec {
         path: path.to_path_buf(),
         spec,
         families,
+        simulated_data,
     })
 }
 
@@ -631,16 +651,30 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
         ));
     }
 
-    if spec.simulate.is_some() {
-        return Err(invalid(
-            "simulate",
-            "simulation specs are not supported by this version of heldout yet".into(),
-        ));
-    }
-    let Some(data) = &spec.data else {
-        return Err(invalid("data", "the spec needs a [data] table".into()));
+    let default_features = match (&spec.data, &spec.simulate) {
+        (Some(data), None) => {
+            validate_data(data, &invalid)?;
+            data.features.clone()
+        }
+        (None, Some(sim)) => {
+            crate::simulate::spec::validate(sim, &spec.split, &invalid)?;
+            sim.input_names()
+        }
+        (Some(_), Some(_)) => {
+            return Err(invalid(
+                "simulate",
+                "a spec declares either [data] (a table) or [simulate] (a declared truth), \
+                 not both"
+                    .into(),
+            ))
+        }
+        (None, None) => {
+            return Err(invalid(
+                "data",
+                "the spec needs a [data] table (or a [simulate] table)".into(),
+            ))
+        }
     };
-    validate_data(data, &invalid)?;
     validate_split(&spec.split, &invalid)?;
 
     if spec.candidates.is_empty() {
@@ -666,7 +700,23 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
             FamilySpec::ThinPlate { .. } => Some(2),
             _ => None,
         };
-        let features = candidate.features_override().unwrap_or(&data.features);
+        let features = candidate.features_override().unwrap_or(&default_features);
+        if let (Some(sim), Some(own)) = (&spec.simulate, candidate.features_override()) {
+            let inputs = sim.input_names();
+            if let Some(unknown) = own.iter().find(|f| !inputs.contains(f)) {
+                let names: Vec<&str> = inputs.iter().map(String::as_str).collect();
+                let hint = closest(unknown, &names)
+                    .map(|w| format!(" (did you mean `{w}`?)"))
+                    .unwrap_or_default();
+                return Err(invalid(
+                    &format!("{key}.features"),
+                    format!(
+                        "\"{unknown}\" is not an input of [simulate] (inputs: {}){hint}",
+                        inputs.join(", ")
+                    ),
+                ));
+            }
+        }
         if let Some(wanted) = wanted.filter(|&w| w != features.len()) {
             return Err(invalid(
                 &format!("{key}.features"),

@@ -11,8 +11,12 @@ use crate::execute::{self, TaskRows};
 use crate::split::Placement;
 
 pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
-    let plan = super::load_plan(&args.spec)?;
     let cache = Cache::new(&args.cache.cache);
+    let loaded = crate::spec::load(&args.spec)?;
+    if loaded.is_simulation() {
+        return super::simulate::plan(loaded, &cache);
+    }
+    let plan = crate::plan::resolve(loaded)?;
     let a = &plan.assignment;
     let folds_per_repeat = a.folds.len() / a.repeats;
     let mut out = String::new();
@@ -87,6 +91,9 @@ pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
 
 pub fn folds(args: &FoldsArgs) -> anyhow::Result<()> {
     let loaded = crate::spec::load(&args.spec)?;
+    if loaded.is_simulation() {
+        return super::simulate::folds(loaded);
+    }
     let key = loaded.data().key.clone();
     let plan = crate::plan::resolve(loaded)?;
     let rows = plan.table.len();

@@ -3,6 +3,7 @@
 
 mod inspect;
 mod run;
+mod simulate;
 mod verify;
 
 use std::io::IsTerminal;
@@ -52,10 +53,20 @@ struct Evaluation {
     summary: Summary,
 }
 
-/// Loads and plans a spec.
-fn load_plan(spec_path: &Path) -> anyhow::Result<ExperimentPlan> {
+/// Loads a spec and evaluates it: a table through the plan, a simulation
+/// through its replicates. Returns `Ok(Err(summary))` for a shard.
+fn evaluate_spec(
+    spec_path: &Path,
+    policy: CachePolicy<'_>,
+    shard: Option<Shard>,
+    show_progress: bool,
+) -> anyhow::Result<Result<Evaluation, Summary>> {
     let loaded = spec::load(spec_path)?;
-    Ok(plan::resolve(loaded)?)
+    if loaded.is_simulation() {
+        return simulate::evaluate(loaded, spec_path, policy, shard, show_progress);
+    }
+    let plan = plan::resolve(loaded)?;
+    evaluate(plan, spec_path, policy, shard, show_progress)
 }
 
 /// Fits (through the cache policy) and renders a planned spec, or only fills
@@ -89,7 +100,7 @@ fn evaluate(
     let Some(fits) = fits else {
         return Ok(Err(summary));
     };
-    Ok(Ok(finish(plan, spec_path, &fits, summary)?))
+    Ok(Ok(finish(plan, spec_path, &fits, summary, None)?))
 }
 
 fn finish(
@@ -97,8 +108,10 @@ fn finish(
     spec_path: &Path,
     fits: &[CandidateFits],
     summary: Summary,
+    simulation: Option<crate::simulate::SimulationOutput>,
 ) -> anyhow::Result<Evaluation> {
-    let results = results::assemble(&plan, fits);
+    let mut results = results::assemble(&plan, fits);
+    results.simulation = simulation;
     let stem = spec_path
         .file_stem()
         .map(|n| n.to_string_lossy().into_owned())

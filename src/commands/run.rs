@@ -43,19 +43,12 @@ fn run_one(
     cache: &Cache,
     shard: Option<Shard>,
 ) -> anyhow::Result<()> {
-    let plan = super::load_plan(spec_path)?;
-    let dropped = plan.table.dropped;
     let policy = CachePolicy {
         read: Some(cache),
         write: Some(cache),
     };
-    let evaluation = super::evaluate(
-        plan,
-        spec_path,
-        policy,
-        shard,
-        super::progress_wanted(args.quiet),
-    )?;
+    let evaluation =
+        super::evaluate_spec(spec_path, policy, shard, super::progress_wanted(args.quiet))?;
     let evaluation = match evaluation {
         Ok(evaluation) => evaluation,
         Err(summary) => {
@@ -86,6 +79,7 @@ fn run_one(
     )?;
 
     if !args.quiet {
+        let dropped = evaluation.plan.table.dropped;
         if dropped > 0 {
             eprintln!("note: dropped {dropped} rows with empty cells (missing = \"drop-rows\")");
         }
@@ -94,6 +88,12 @@ fn run_one(
             evaluation.summary.computed, evaluation.summary.reused
         );
         print!("{}", report::terminal::render(&evaluation.results));
+        if evaluation.results.simulation.is_some() {
+            print!(
+                "{}",
+                report::terminal::render_simulation(&evaluation.results)
+            );
+        }
         println!(
             "outputs in {}; receipt {}",
             dir.display(),

@@ -52,19 +52,13 @@ fn verify_one(spec_path: &Path, args: &VerifyArgs, cache: &Cache) -> anyhow::Res
         .into());
     }
     let recorded = receipt::read(&receipt_path)?;
-    let plan = super::load_plan(spec_path)?;
     let policy = CachePolicy {
         read: args.trust_cache.then_some(cache),
         write: None,
     };
-    let evaluation = super::evaluate(
-        plan,
-        spec_path,
-        policy,
-        None,
-        super::progress_wanted(args.quiet),
-    )?
-    .expect("verify never shards");
+    let evaluation =
+        super::evaluate_spec(spec_path, policy, None, super::progress_wanted(args.quiet))?
+            .expect("verify never shards");
     let stored = stored_results(&args.out.join(&recorded.experiment), &recorded);
     Ok(differences(
         &recorded,
@@ -159,6 +153,7 @@ fn differences(
             ));
         }
     }
+    compare_simulation(recorded, now, stored, results, &mut found);
     compare_files("output", &recorded.outputs, &now.outputs, &mut found);
     if recorded.experiment != now.experiment || recorded.schema != now.schema {
         found.push(format!(
@@ -167,6 +162,90 @@ fn differences(
         ));
     }
     found
+}
+
+/// Differences in a simulation's numbers, naming the first number that moved
+/// when the run's results.json is at hand.
+fn compare_simulation(
+    recorded: &Receipt,
+    now: &Receipt,
+    stored: Option<&serde_json::Value>,
+    results: &Results,
+    found: &mut Vec<String>,
+) {
+    for old in &recorded.simulation {
+        match now.simulation.iter().find(|c| c.id == old.id) {
+            None => found.push(format!(
+                "simulation {} is in the receipt but not computed now",
+                old.id
+            )),
+            Some(new) if new.blake3 != old.blake3 => found.push(
+                simulation_difference(&old.id, stored, results).unwrap_or_else(|| {
+                    format!(
+                        "simulation {}: numbers differ (blake3 {} in the receipt, {} now)",
+                        old.id,
+                        &old.blake3[..16],
+                        &new.blake3[..16]
+                    )
+                }),
+            ),
+            Some(_) => {}
+        }
+    }
+    for new in &now.simulation {
+        if !recorded.simulation.iter().any(|c| c.id == new.id) {
+            found.push(format!(
+                "simulation {} is computed now but not in the receipt",
+                new.id
+            ));
+        }
+    }
+}
+
+/// Names the first simulation number of `id` that moved.
+fn simulation_difference(
+    id: &str,
+    stored: Option<&serde_json::Value>,
+    results: &Results,
+) -> Option<String> {
+    let stored = stored?;
+    let now = results.simulation.as_ref()?;
+    if id == "cv-choices" {
+        let before = stored["simulation_summary"]["cv"]["chosen_by_replicate"].as_array()?;
+        for (r, after) in now
+            .simulation_summary
+            .cv
+            .chosen_by_replicate
+            .iter()
+            .enumerate()
+        {
+            let was = before.get(r).and_then(|v| v.as_str()).unwrap_or("nothing");
+            if was != after {
+                return Some(format!(
+                    "simulation: cross-validation on replicate {} chose {was} in the receipt's \
+                     results, {after} now",
+                    r + 1
+                ));
+            }
+        }
+        return None;
+    }
+    let old = stored["simulation"]
+        .as_array()?
+        .iter()
+        .find(|s| s["id"] == id)?;
+    let new = now.simulation.iter().find(|s| s.id == id)?;
+    for (name, after) in new.named_numbers() {
+        let before = old[name].as_f64().unwrap_or(f64::NAN);
+        if before.to_bits() != after.to_bits() {
+            return Some(format!(
+                "simulation {id}, {name}: {before:?} in the receipt's results, {after:?} now \
+                 ({} ulps apart)",
+                receipt::ulps_apart(before, after)
+            ));
+        }
+    }
+    None
 }
 
 fn compare_files(what: &str, recorded: &[FileDigest], now: &[FileDigest], found: &mut Vec<String>) {

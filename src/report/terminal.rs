@@ -60,3 +60,71 @@ pub fn render(results: &Results) -> String {
     }
     out
 }
+
+/// Renders the bias–variance table of a simulation spec (empty otherwise).
+pub fn render_simulation(results: &Results) -> String {
+    let Some(sim) = &results.simulation else {
+        return String::new();
+    };
+    let summary = &sim.simulation_summary;
+    let id_width = sim
+        .simulation
+        .iter()
+        .map(|s| s.id.chars().count())
+        .max()
+        .unwrap_or(9)
+        .max(9);
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "\nsimulation: {} replicates of {} rows; expected error at {} test points; noise σ² = {}",
+        summary.replicates,
+        summary.train_size,
+        summary.test.count,
+        format_number(summary.noise)
+    );
+    let _ = writeln!(
+        out,
+        "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}",
+        "candidate",
+        "eff. df",
+        "bias²",
+        "variance",
+        "sum",
+        "exp. mse",
+        "± mc se",
+        "train mse",
+        "cv chose",
+    );
+    for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
+        let mark = if s.id == summary.oracle {
+            "  <- oracle"
+        } else {
+            ""
+        };
+        let _ = writeln!(
+            out,
+            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
+            s.id,
+            format_number(s.effective_df),
+            format_number(s.bias_sq),
+            format_number(s.variance),
+            format_number(s.decomposition_sum),
+            format_number(s.expected_mse),
+            format_number(s.mc_se),
+            format_number(s.train_mse),
+            choice.count,
+        );
+    }
+    let _ = writeln!(
+        out,
+        "cross-validation chose the oracle {} on {} of {} replicates; mean excess error of its \
+         choice over the oracle: {} ± {}",
+        summary.oracle,
+        summary.cv.chose_oracle,
+        summary.replicates,
+        format_number(summary.cv.mean_excess),
+        format_number(summary.cv.mean_excess_se)
+    );
+    out
+}

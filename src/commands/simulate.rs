@@ -1,0 +1,179 @@
+//! Simulation specs through `run`/`verify` (evaluation), `plan` and `folds`.
+
+use std::fmt::Write as _;
+use std::io::Write as _;
+use std::path::Path;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+use anyhow::Context;
+
+use super::Evaluation;
+use crate::cache::Cache;
+use crate::execute::{CachePolicy, Shard, Summary};
+use crate::simulate::{self, SimulateError};
+use crate::spec::LoadedSpec;
+use crate::split::Placement;
+
+/// Typed simulation errors as the edge reports them (so exit codes follow
+/// the error kind: bad input for a spec or a fit, internal otherwise).
+fn to_anyhow(error: SimulateError) -> anyhow::Error {
+    match error {
+        SimulateError::Spec(e) => e.into(),
+        SimulateError::Execute(e) => e.into(),
+    }
+}
+
+/// Runs every replicate through the cache policy and renders the outputs,
+/// or only fills the cache for a shard (then returns `Ok(Err(summary))`).
+pub(super) fn evaluate(
+    loaded: LoadedSpec,
+    spec_path: &Path,
+    policy: CachePolicy<'_>,
+    shard: Option<Shard>,
+    show_progress: bool,
+) -> anyhow::Result<Result<Evaluation, Summary>> {
+    let plan = simulate::resolve(loaded)?;
+    let total = (0..plan.setup.replicates)
+        .filter(|&r| shard.is_none_or(|s| s.owns(r)))
+        .count();
+    let done = AtomicUsize::new(0);
+    let progress = || {
+        let finished = done.fetch_add(1, Ordering::Relaxed) + 1;
+        if show_progress {
+            eprint!("\rsimulating: {finished}/{total} replicates");
+        }
+    };
+    let (outcomes, summary) =
+        simulate::run::run(&plan, policy, shard, &progress).map_err(to_anyhow)?;
+    if show_progress {
+        eprintln!();
+    }
+    for why in &summary.corrupt {
+        eprintln!("warning: cache entry ignored and recomputed: {why}");
+    }
+    let Some(outcomes) = outcomes else {
+        return Ok(Err(summary));
+    };
+    let simulated = simulate::summarise(plan, outcomes);
+    Ok(Ok(super::finish(
+        simulated.plan,
+        spec_path,
+        &simulated.fits,
+        summary,
+        Some(simulated.output),
+    )?))
+}
+
+/// `heldout plan` for a simulation spec.
+pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<()> {
+    let plan = simulate::resolve(loaded)?;
+    let setup = &plan.setup;
+    let mut out = String::new();
+    let _ = writeln!(out, "experiment  {}", plan.spec.spec.experiment.name);
+    let test = match setup.test {
+        simulate::design::TestDesign::Grid(m) => {
+            format!("{m} test points evenly spaced over {}", setup.names[0])
+        }
+        simulate::design::TestDesign::Points(m) => {
+            format!("{m} test points drawn from the inputs")
+        }
+    };
+    let _ = writeln!(
+        out,
+        "simulation  {} replicates × {} training rows ({} design); {test}; noise sd {}",
+        setup.replicates,
+        setup.train_size,
+        if setup.fixed_design {
+            "fixed"
+        } else {
+            "random"
+        },
+        setup.noise_sd
+    );
+    let first = plan.replicate(0)?;
+    let a = &first.assignment;
+    let _ = writeln!(
+        out,
+        "folds       {} per repeat × {} repeat(s), in every replicate",
+        a.folds.len() / a.repeats,
+        a.repeats
+    );
+    let _ = writeln!(out, "cache       {}", cache.root().display());
+    let _ = writeln!(out);
+    let _ = writeln!(
+        out,
+        "{:<24} {:>8} {:>8} {:>8} {:>8}",
+        "candidate", "settings", "fits", "cached", "to fit"
+    );
+    let mut fits = vec![0usize; plan.candidates.len()];
+    let mut cached = vec![0usize; plan.candidates.len()];
+    for r in 0..setup.replicates {
+        let replicate = plan.replicate(r)?;
+        for (c, keys) in simulate::run::replicate_keys(&plan, &replicate)
+            .iter()
+            .enumerate()
+        {
+            fits[c] += keys.len();
+            cached[c] += keys.iter().filter(|k| cache.contains(k)).count();
+        }
+    }
+    for (c, candidate) in plan.candidates.iter().enumerate() {
+        let _ = writeln!(
+            out,
+            "{:<24} {:>8} {:>8} {:>8} {:>8}",
+            candidate.stem,
+            candidate.settings.len(),
+            fits[c],
+            cached[c],
+            fits[c] - cached[c]
+        );
+    }
+    let (all, hits): (usize, usize) = (fits.iter().sum(), cached.iter().sum());
+    let _ = writeln!(
+        out,
+        "\n{all} fits (per replicate and candidate: one on all training rows, one per fold): \
+         {hits} cached, {} to compute",
+        all - hits
+    );
+    print!("{out}");
+    Ok(())
+}
+
+/// `heldout folds` for a simulation spec: every replicate's assignment.
+pub(super) fn folds(loaded: LoadedSpec) -> anyhow::Result<()> {
+    let plan = simulate::resolve(loaded)?;
+    let mut writer = csv::Writer::from_writer(Vec::new());
+    writer
+        .write_record(["replicate", "row", "repeat", "fold"])
+        .context("cannot write CSV")?;
+    for r in 0..plan.setup.replicates {
+        let replicate = plan.replicate(r)?;
+        let a = &replicate.assignment;
+        let folds_per_repeat = a.folds.len() / a.repeats;
+        for repeat in 0..a.repeats {
+            for (row, placement) in a
+                .placements(plan.setup.train_size, repeat)
+                .iter()
+                .enumerate()
+            {
+                let fold = match placement {
+                    Placement::Test => "test".to_string(),
+                    Placement::Fold(i) => a.folds[repeat * folds_per_repeat + i].label.clone(),
+                };
+                writer
+                    .write_record([
+                        (r + 1).to_string(),
+                        (row + 1).to_string(),
+                        (repeat + 1).to_string(),
+                        fold,
+                    ])
+                    .context("cannot write CSV")?;
+            }
+        }
+    }
+    let bytes = writer.into_inner().context("cannot write CSV")?;
+    std::io::stdout()
+        .write_all(&bytes)
+        .context("cannot write to standard output")?;
+    Ok(())
+}

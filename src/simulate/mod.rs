@@ -1,0 +1,30 @@
+//! Simulation specs: a declared truth, input distribution and noise level
+//! replace the data table, and every candidate setting's expected test error
+//! is decomposed into squared bias, variance and irreducible noise by Monte
+//! Carlo over replicate training sets (see `decompose` for the estimators).
+//! Cross-validation, with the spec's `[split]` and `[choose]`, is run on every
+//! replicate, so the report can set the distribution of its choices against
+//! the oracle (the setting with the lowest expected error).
+//!
+//! Stages, in the order they run:
+//!
+//! - `spec`: the `[simulate]` table and its validation;
+//! - `expr`: the truth's arithmetic, parsed by our own parser, evaluated with `libm`;
+//! - `random`, `design`: named ChaCha20 streams and the simulated inputs, noise and folds;
+//! - `run`: per replicate, one fit of each candidate's grid (through the fit
+//!   cache), cross-validation and the rule's choice;
+//! - `decompose`, `summary`: the Monte-Carlo estimates and what results.json holds.
+
+pub mod decompose;
+pub mod design;
+pub mod expr;
+pub mod random;
+pub mod run;
+pub mod spec;
+pub mod summary;
+
+pub use run::{resolve, SimulateError, SimulationPlan};
+pub use summary::{summarise, Simulated, SimulationOutput};
+
+#[cfg(test)]
+mod checks;

@@ -1,0 +1,367 @@
+//! From replicate outcomes to what `results.json` and the report show: the
+//! decomposition of every setting, the oracle (lowest expected error), the
+//! distribution of cross-validation's choices over replicates with its
+//! average excess error over the oracle, and replicate 1 laid out as an
+//! ordinary data set (so the usual sections of the report describe one
+//! realistic analysis, and the simulation section how often it goes right).
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use super::decompose::{self, mean_and_se};
+use super::design::TestDesign;
+use super::run::{ReplicateOutcome, SimulationPlan};
+use super::spec::InputSpec;
+use crate::cache;
+use crate::data::Table;
+use crate::execute::CandidateFits;
+use crate::plan::ExperimentPlan;
+
+/// The simulation's part of `results.json` (flattened into the results).
+#[derive(Debug, Clone, Serialize)]
+pub struct SimulationOutput {
+    /// One entry per candidate setting, in results order.
+    pub simulation: Vec<SimulatedSetting>,
+    pub simulation_summary: SimulationSummary,
+}
+
+/// The decomposition of one setting's expected test error.
+#[derive(Debug, Clone, Serialize)]
+pub struct SimulatedSetting {
+    pub id: String,
+    pub family: String,
+    /// Effective degrees of freedom (the mean over replicates when it varies).
+    pub effective_df: f64,
+    pub bias_sq: f64,
+    pub bias_sq_se: f64,
+    pub variance: f64,
+    pub variance_se: f64,
+    /// σ², the irreducible error.
+    pub noise: f64,
+    /// bias_sq + variance + noise.
+    pub decomposition_sum: f64,
+    /// Mean squared error against independent test targets.
+    pub expected_mse: f64,
+    /// Monte-Carlo standard error of `expected_mse`.
+    pub mc_se: f64,
+    /// expected_mse − decomposition_sum: Monte-Carlo error of the test noise.
+    pub identity_gap: f64,
+    pub identity_gap_se: f64,
+    /// Expected training mean squared error, and its standard error.
+    pub train_mse: f64,
+    pub train_mse_se: f64,
+    /// Mean over replicates of the cross-validated score (the spec's metric).
+    pub cv_estimate: f64,
+    pub cv_estimate_se: f64,
+    /// With `test_grid`: the average fit and the variance at each grid point.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pointwise: Option<PointwiseCurve>,
+}
+
+impl SimulatedSetting {
+    /// Every scalar, with its name in `results.json`, in field order.
+    pub fn named_numbers(&self) -> [(&'static str, f64); 15] {
+        [
+            ("effective_df", self.effective_df),
+            ("bias_sq", self.bias_sq),
+            ("bias_sq_se", self.bias_sq_se),
+            ("variance", self.variance),
+            ("variance_se", self.variance_se),
+            ("noise", self.noise),
+            ("decomposition_sum", self.decomposition_sum),
+            ("expected_mse", self.expected_mse),
+            ("mc_se", self.mc_se),
+            ("identity_gap", self.identity_gap),
+            ("identity_gap_se", self.identity_gap_se),
+            ("train_mse", self.train_mse),
+            ("train_mse_se", self.train_mse_se),
+            ("cv_estimate", self.cv_estimate),
+            ("cv_estimate_se", self.cv_estimate_se),
+        ]
+    }
+
+    /// The scalars alone, in [`Self::named_numbers`] order.
+    pub fn numbers(&self) -> Vec<f64> {
+        self.named_numbers().iter().map(|(_, v)| *v).collect()
+    }
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct PointwiseCurve {
+    pub mean_fit: Vec<f64>,
+    pub bias_sq: Vec<f64>,
+    pub variance: Vec<f64>,
+}
+
+/// The setup, the oracle and cross-validation's choices.
+#[derive(Debug, Clone, Serialize)]
+pub struct SimulationSummary {
+    pub truth: String,
+    pub target: String,
+    pub inputs: BTreeMap<String, InputSpec>,
+    pub noise_sd: f64,
+    /// σ².
+    pub noise: f64,
+    pub train_size: usize,
+    pub replicates: usize,
+    /// `random` (inputs drawn per replicate) or `fixed`.
+    pub design: &'static str,
+    pub test: TestSummary,
+    /// The setting with the lowest expected error.
+    pub oracle: String,
+    pub oracle_expected_mse: f64,
+    pub cv: ChoiceSummary,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct TestSummary {
+    /// `points` (drawn once) or `grid` (evenly spaced).
+    pub kind: &'static str,
+    pub count: usize,
+    /// With a grid: the input it spans, the points and the truth there.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub input: Option<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub x: Option<Vec<f64>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub truth: Option<Vec<f64>>,
+}
+
+/// What the spec's cross-validation and rule chose over the replicates.
+#[derive(Debug, Clone, Serialize)]
+pub struct ChoiceSummary {
+    /// Every setting in results order, with how often it was chosen.
+    pub choices: Vec<ChoiceRow>,
+    /// Replicates on which the choice was the oracle.
+    pub chose_oracle: usize,
+    /// Mean over replicates of expected_mse(choice) − expected_mse(oracle).
+    pub mean_excess: f64,
+    pub mean_excess_se: f64,
+    /// Mean over replicates of expected_mse(choice).
+    pub expected_mse: f64,
+    /// The chosen id, replicate by replicate.
+    pub chosen_by_replicate: Vec<String>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct ChoiceRow {
+    pub id: String,
+    pub count: usize,
+    pub share: f64,
+    pub expected_mse: f64,
+    /// expected_mse − the oracle's.
+    pub excess: f64,
+}
+
+/// Everything a simulation produced.
+pub struct Simulated {
+    /// Replicate 1 as a data set: training rows, then the test points.
+    pub plan: ExperimentPlan,
+    /// Replicate 1's fits, as the ordinary results expect them.
+    pub fits: Vec<CandidateFits>,
+    pub output: SimulationOutput,
+}
+
+/// Summarises the outcomes of every replicate (in replicate order).
+pub fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> Simulated {
+    let setup = &plan.setup;
+    let noise = setup.noise_sd * setup.noise_sd;
+    let mut ids = Vec::new();
+    let mut families = Vec::new();
+    for candidate in &plan.candidates {
+        for setting in &candidate.settings {
+            ids.push(candidate.id(setting));
+            families.push(candidate.family.family().to_string());
+        }
+    }
+    let test_noise: Vec<Vec<f64>> = outcomes.iter().map(|o| o.test_noise.clone()).collect();
+    let grid = matches!(setup.test, TestDesign::Grid(_));
+    let mut settings = Vec::with_capacity(ids.len());
+    for (s, (id, family)) in ids.iter().zip(&families).enumerate() {
+        let predictions: Vec<Vec<f64>> = outcomes.iter().map(|o| o.test_pred[s].clone()).collect();
+        let d = decompose::decompose(&plan.test_truth, &predictions, &test_noise, noise);
+        let column = |pick: &dyn Fn(&ReplicateOutcome) -> f64| -> Vec<f64> {
+            outcomes.iter().map(pick).collect()
+        };
+        let (train_mse, train_mse_se) = mean_and_se(&column(&|o| o.train_mse[s]));
+        let (cv_estimate, cv_estimate_se) = mean_and_se(&column(&|o| o.cv_score[s]));
+        let dfs = column(&|o| o.effective_df[s]);
+        let effective_df = if dfs.iter().all(|&v| v == dfs[0]) {
+            dfs[0]
+        } else {
+            dfs.iter().sum::<f64>() / dfs.len() as f64
+        };
+        settings.push(SimulatedSetting {
+            id: id.clone(),
+            family: family.clone(),
+            effective_df,
+            bias_sq: d.bias_sq,
+            bias_sq_se: d.bias_sq_se,
+            variance: d.variance,
+            variance_se: d.variance_se,
+            noise: d.noise,
+            decomposition_sum: d.bias_sq + d.variance + d.noise,
+            expected_mse: d.expected_mse,
+            mc_se: d.mc_se,
+            identity_gap: d.identity_gap,
+            identity_gap_se: d.identity_gap_se,
+            train_mse,
+            train_mse_se,
+            cv_estimate,
+            cv_estimate_se,
+            pointwise: grid.then_some(PointwiseCurve {
+                mean_fit: d.pointwise.mean_fit,
+                bias_sq: d.pointwise.bias_sq,
+                variance: d.pointwise.variance,
+            }),
+        });
+    }
+
+    let mut oracle = 0;
+    for (s, setting) in settings.iter().enumerate() {
+        if setting.expected_mse < settings[oracle].expected_mse {
+            oracle = s;
+        }
+    }
+    let best = settings[oracle].expected_mse;
+    let mut counts = vec![0usize; settings.len()];
+    let mut excess = Vec::with_capacity(outcomes.len());
+    let mut chosen_error = Vec::with_capacity(outcomes.len());
+    for o in &outcomes {
+        counts[o.chosen] += 1;
+        excess.push(settings[o.chosen].expected_mse - best);
+        chosen_error.push(settings[o.chosen].expected_mse);
+    }
+    let (mean_excess, mean_excess_se) = mean_and_se(&excess);
+    let replicates = outcomes.len();
+    let cv = ChoiceSummary {
+        choices: settings
+            .iter()
+            .zip(&counts)
+            .map(|(s, &count)| ChoiceRow {
+                id: s.id.clone(),
+                count,
+                share: count as f64 / replicates as f64,
+                expected_mse: s.expected_mse,
+                excess: s.expected_mse - best,
+            })
+            .collect(),
+        chose_oracle: counts[oracle],
+        mean_excess,
+        mean_excess_se,
+        expected_mse: chosen_error.iter().sum::<f64>() / replicates as f64,
+        chosen_by_replicate: outcomes.iter().map(|o| ids[o.chosen].clone()).collect(),
+    };
+    let sim = plan
+        .spec
+        .spec
+        .simulate
+        .as_ref()
+        .expect("a simulation plan has a [simulate] table");
+    let test = match setup.test {
+        TestDesign::Grid(m) => TestSummary {
+            kind: "grid",
+            count: m,
+            input: Some(setup.names[0].clone()),
+            x: Some(plan.test_x.column(0).iter().copied().collect()),
+            truth: Some(plan.test_truth.clone()),
+        },
+        TestDesign::Points(m) => TestSummary {
+            kind: "points",
+            count: m,
+            input: None,
+            x: None,
+            truth: None,
+        },
+    };
+    let summary = SimulationSummary {
+        truth: setup.truth_text.clone(),
+        target: setup.target.clone(),
+        inputs: sim.inputs.clone(),
+        noise_sd: setup.noise_sd,
+        noise,
+        train_size: setup.train_size,
+        replicates,
+        design: if setup.fixed_design {
+            "fixed"
+        } else {
+            "random"
+        },
+        test,
+        oracle: settings[oracle].id.clone(),
+        oracle_expected_mse: best,
+        cv,
+    };
+
+    let (first, fits) = outcomes
+        .first_mut()
+        .and_then(|o| o.first.take())
+        .expect("replicate 1 is always run when outcomes are kept");
+    let test_targets = plan.test_targets(&first);
+    let experiment = first_replicate_plan(plan, first, test_targets);
+    Simulated {
+        plan: experiment,
+        fits,
+        output: SimulationOutput {
+            simulation: settings,
+            simulation_summary: summary,
+        },
+    }
+}
+
+/// Replicate 1 as an ordinary plan: its training rows (rows 1..n, in folds)
+/// and the test points with their simulated targets (rows n+1..n+M, the
+/// locked test set).
+fn first_replicate_plan(
+    plan: SimulationPlan,
+    first: super::run::Replicate,
+    test_targets: Vec<f64>,
+) -> ExperimentPlan {
+    let n = first.y.len();
+    let m = test_targets.len();
+    let mut numeric = BTreeMap::new();
+    for (j, name) in plan.setup.names.iter().enumerate() {
+        let column: Vec<f64> = first
+            .x
+            .column(j)
+            .iter()
+            .chain(plan.test_x.column(j).iter())
+            .copied()
+            .collect();
+        numeric.insert(name.clone(), column);
+    }
+    let target: Vec<f64> = first.y.iter().chain(&test_targets).copied().collect();
+    numeric.insert(plan.setup.target.clone(), target.clone());
+    let column_digests: BTreeMap<String, [u8; 32]> = numeric
+        .iter()
+        .map(|(name, values)| (name.clone(), cache::digest_values(values)))
+        .collect();
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(b"heldout simulated table v1");
+    for (name, digest) in &column_digests {
+        hasher.update(&(name.len() as u64).to_le_bytes());
+        hasher.update(name.as_bytes());
+        hasher.update(digest);
+    }
+    let rows = n + m;
+    let table = Table {
+        path: "[simulate]".into(),
+        digest: hasher.finalize().to_hex().to_string(),
+        numeric,
+        text: BTreeMap::new(),
+        lines: (2..rows as u64 + 2).collect(),
+        row_numbers: (1..=rows as u64).collect(),
+        dropped: 0,
+    };
+    let mut assignment = first.assignment;
+    assignment.test = (n..rows).collect();
+    ExperimentPlan {
+        spec: plan.spec,
+        table,
+        target,
+        assignment,
+        candidates: plan.candidates,
+        column_digests,
+    }
+}
