@@ -86,6 +86,13 @@ pub enum FitError {
          its leave-one-out prediction is undefined; use k-fold instead"
     )]
     FullLeverage { setting: String, row: usize },
+    #[error("{setting}: {method} did not converge within {iterations} iterations; {advice}")]
+    NotConverged {
+        setting: String,
+        method: &'static str,
+        iterations: usize,
+        advice: &'static str,
+    },
     #[error("family \"{family}\" is not built in this version of heldout yet")]
     NotBuilt { family: &'static str },
 }

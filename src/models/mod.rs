@@ -6,11 +6,16 @@
 //! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
+pub mod lasso;
 mod least_squares;
 pub mod linear;
 pub mod nearest_neighbors;
+#[cfg(test)]
+mod penalised_reference;
 mod pending;
 pub mod polynomial;
+pub mod ridge;
+mod standardise;
 
 use std::fmt;
 
@@ -155,11 +160,17 @@ pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
             features,
             ks: k.clone(),
         }),
+        FamilySpec::Ridge { penalty, .. } => Box::new(ridge::Ridge {
+            features,
+            penalties: penalty.clone(),
+        }),
+        FamilySpec::Lasso { penalty, .. } => Box::new(lasso::Lasso {
+            features,
+            penalties: penalty.clone(),
+        }),
         FamilySpec::SmoothingSpline { .. }
         | FamilySpec::Spline { .. }
-        | FamilySpec::ThinPlate { .. }
-        | FamilySpec::Ridge { .. }
-        | FamilySpec::Lasso { .. } => Box::new(pending::Pending {
+        | FamilySpec::ThinPlate { .. } => Box::new(pending::Pending {
             family: spec.family_name(),
             features,
         }),
