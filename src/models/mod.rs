@@ -11,6 +11,8 @@ pub mod linear;
 pub mod nearest_neighbors;
 mod pending;
 pub mod polynomial;
+pub mod spline;
+pub mod thin_plate;
 
 use std::fmt;
 
@@ -155,9 +157,22 @@ pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
             features,
             ks: k.clone(),
         }),
+        FamilySpec::Spline { df, .. } => Box::new(spline::Spline {
+            features,
+            dfs: df.clone(),
+        }),
+        FamilySpec::ThinPlate {
+            grid,
+            knots,
+            exact_limit,
+            ..
+        } => Box::new(thin_plate::ThinPlate {
+            features,
+            grid: grid.clone(),
+            knots: *knots,
+            exact_limit: *exact_limit,
+        }),
         FamilySpec::SmoothingSpline { .. }
-        | FamilySpec::Spline { .. }
-        | FamilySpec::ThinPlate { .. }
         | FamilySpec::Ridge { .. }
         | FamilySpec::Lasso { .. } => Box::new(pending::Pending {
             family: spec.family_name(),

@@ -8,5 +8,6 @@ mod cv_reference;
 mod demo;
 mod nist;
 mod reproducible;
+mod splines;
 mod split_reference;
 mod util;
