@@ -32,6 +32,7 @@
 mod exact;
 mod low_rank;
 mod plane;
+mod tridiagonal;
 
 use nalgebra::DMatrix;
 
@@ -271,7 +272,7 @@ impl Path {
 
     fn leverages(&self, penalty: f64) -> Option<Vec<f64>> {
         match self {
-            Path::Exact { path, .. } => Some(path.leverages(penalty)),
+            Path::Exact { path, .. } => path.leverages(penalty),
             Path::LowRank(path) => path.leverages(penalty),
         }
     }
@@ -346,10 +347,20 @@ impl ThinPlate {
     ) -> Result<Vec<FitWithLeverages>, FitError> {
         let points = basis.scaling.apply(x_train);
         let path = match &basis.knots {
-            None => Path::Exact {
-                path: ExactPath::new(&points, y_train, Self::WHOLE_GRID)?,
-                points: points.clone(),
-            },
+            None => {
+                // Eigenvectors only where the tridiagonal route cannot go.
+                let zero_penalty = matches!(&self.grid,
+                    SmootherGrid::Penalty(values) if values.contains(&0.0));
+                Path::Exact {
+                    path: ExactPath::new(
+                        &points,
+                        y_train,
+                        with_leverages || zero_penalty,
+                        Self::WHOLE_GRID,
+                    )?,
+                    points: points.clone(),
+                }
+            }
             Some(raw) => {
                 let knots = raw
                     .iter()

@@ -436,3 +436,29 @@ fn timings() {
         );
     }
 }
+
+#[test]
+fn tridiagonal_route_equals_the_eigenvector_route() {
+    // Identity (same smoother, two factorisations): a grid with a zero
+    // penalty takes the eigenvector route, one without takes the tridiagonal
+    // route; the shared penalties must agree to 1e-9.
+    let (x, y) = scattered(40);
+    let eval = eval_points();
+    let penalties = vec![1e-4, 0.1, 10.0];
+    let tridiagonal = thin_plate(SmootherGrid::Penalty(penalties.clone()), 300, 2000)
+        .fit_path(&x, &y, &eval, true)
+        .unwrap();
+    let with_zero: Vec<f64> = std::iter::once(0.0).chain(penalties).collect();
+    let eigen = thin_plate(SmootherGrid::Penalty(with_zero), 300, 2000)
+        .fit_path(&x, &y, &eval, true)
+        .unwrap();
+    for (a, b) in tridiagonal.iter().zip(&eigen[1..]) {
+        assert_close("effective df", a.effective_df, b.effective_df, 1e-9);
+        for (u, v) in a.eval_pred.iter().zip(&b.eval_pred) {
+            assert_close("evaluation prediction", *u, *v, 1e-9);
+        }
+        for (u, v) in a.train_pred.iter().zip(&b.train_pred) {
+            assert_close("training prediction", *u, *v, 1e-9);
+        }
+    }
+}
