@@ -15,7 +15,9 @@ mod penalised_reference;
 mod pending;
 pub mod polynomial;
 pub mod ridge;
+pub mod spline;
 mod standardise;
+pub mod thin_plate;
 
 use std::fmt;
 
@@ -168,9 +170,22 @@ pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
             features,
             penalties: penalty.clone(),
         }),
-        FamilySpec::SmoothingSpline { .. }
-        | FamilySpec::Spline { .. }
-        | FamilySpec::ThinPlate { .. } => Box::new(pending::Pending {
+        FamilySpec::Spline { df, .. } => Box::new(spline::Spline {
+            features,
+            dfs: df.clone(),
+        }),
+        FamilySpec::ThinPlate {
+            grid,
+            knots,
+            exact_limit,
+            ..
+        } => Box::new(thin_plate::ThinPlate {
+            features,
+            grid: grid.clone(),
+            knots: *knots,
+            exact_limit: *exact_limit,
+        }),
+        FamilySpec::SmoothingSpline { .. } => Box::new(pending::Pending {
             family: spec.family_name(),
             features,
         }),

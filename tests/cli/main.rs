@@ -9,5 +9,6 @@ mod demo;
 mod nist;
 mod reproducible;
 mod ridge_lasso;
+mod splines;
 mod split_reference;
 mod util;
