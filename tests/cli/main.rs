@@ -8,6 +8,8 @@ mod cv_reference;
 mod demo;
 mod nist;
 mod reproducible;
+mod ridge_lasso;
 mod simulation;
+mod splines;
 mod split_reference;
 mod util;
