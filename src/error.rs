@@ -86,6 +86,18 @@ pub enum FitError {
          its leave-one-out prediction is undefined; use k-fold instead"
     )]
     FullLeverage { setting: String, row: usize },
+    #[error(
+        "{setting}: a smoothing spline's effective df must lie in (2, {distinct}], where \
+         {distinct} is the number of distinct values of feature \"{feature}\" in the training \
+         rows (df = 2 is the straight line); choose a df in that range"
+    )]
+    DfOutOfRange {
+        setting: String,
+        feature: String,
+        distinct: usize,
+    },
+    #[error("{setting}: the smoothing spline could not be fitted: {detail}")]
+    SmootherBreakdown { setting: String, detail: String },
     #[error("family \"{family}\" is not built in this version of heldout yet")]
     NotBuilt { family: &'static str },
 }

@@ -11,6 +11,7 @@ pub mod linear;
 pub mod nearest_neighbors;
 mod pending;
 pub mod polynomial;
+pub mod smoothing_spline;
 
 use std::fmt;
 
@@ -155,8 +156,11 @@ pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
             features,
             ks: k.clone(),
         }),
-        FamilySpec::SmoothingSpline { .. }
-        | FamilySpec::Spline { .. }
+        FamilySpec::SmoothingSpline { grid, .. } => Box::new(smoothing_spline::SmoothingSpline {
+            features,
+            grid: grid.clone(),
+        }),
+        FamilySpec::Spline { .. }
         | FamilySpec::ThinPlate { .. }
         | FamilySpec::Ridge { .. }
         | FamilySpec::Lasso { .. } => Box::new(pending::Pending {

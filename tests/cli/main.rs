@@ -8,5 +8,6 @@ mod cv_reference;
 mod demo;
 mod nist;
 mod reproducible;
+mod smoothing_spline;
 mod split_reference;
 mod util;
