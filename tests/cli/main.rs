@@ -9,6 +9,7 @@ mod demo;
 mod nist;
 mod reproducible;
 mod ridge_lasso;
+mod smoothing_spline;
 mod splines;
 mod split_reference;
 mod util;
