@@ -409,6 +409,9 @@ fn repeated_points_are_smoothed_and_interpolated_at_their_mean() {
     assert_close("df", fit.effective_df, 15.0, 1e-10);
 }
 
+/// Wall-clock times of whole-grid fits (exact up to 2000 rows, then 300
+/// knots); prints only. Run by hand:
+/// `cargo test --lib thin_plate::tests::timings -- --ignored --nocapture`.
 #[test]
 #[ignore = "timing report, run by hand with --ignored --nocapture"]
 fn timings() {
