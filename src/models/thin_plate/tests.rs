@@ -1,3 +1,7 @@
+//! Tests of the `thin-plate` family: the penalty convention, the limits in the
+//! penalty, df round trips, the leave-one-out shortcut, exact against low-rank,
+//! the knot rule, and degenerate point sets.
+
 use super::*;
 
 /// |a − b| ≤ tol · max(|b|, 1).
