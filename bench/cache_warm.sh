@@ -3,11 +3,14 @@
 # 60 000-row invented table, 10-fold x 3 repeats, 12 polynomial degrees and
 # 5 neighbour counts. Prints the median of several runs of each.
 #
-# Usage: bench/cache_warm.sh [ROWS] [RUNS]     (defaults: 60000, 3)
+# Usage: bench/cache_warm.sh [ROWS] [RUNS] [KNN_FEATURES]
+#   defaults: 60000, 3, "outdoor_c"; pass '"outdoor_c", "wind_ms"' for the
+#   two-feature neighbour search (a full scan per query: a much slower cold run).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 rows=${1:-60000}
 runs=${2:-3}
+knn_features=${3:-'"outdoor_c"'}
 
 cargo build --release --quiet
 bin=$PWD/target/release/heldout
@@ -38,7 +41,7 @@ degree = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12]
 
 [[candidate]]
 family = "nearest-neighbors"
-features = ["outdoor_c"]
+features = [$knn_features]
 k = [1, 5, 20, 50, 100]
 
 [[candidate]]
@@ -59,7 +62,7 @@ for i in $(seq "$runs"); do
 done
 cold_median=$(printf '%s\n' "${cold[@]}" | median)
 warm_median=$(printf '%s\n' "${warm[@]}" | median)
-echo "rows=$rows runs=$runs nproc=$(nproc)"
+echo "rows=$rows runs=$runs nproc=$(nproc) knn features: $knn_features"
 echo "cold runs (s): ${cold[*]}"
 echo "warm runs (s): ${warm[*]}"
 printf 'median cold %.3f s, median warm %.3f s, warm/cold = %.2f %%\n' \

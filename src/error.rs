@@ -86,6 +86,54 @@ pub enum FitError {
          its leave-one-out prediction is undefined; use k-fold instead"
     )]
     FullLeverage { setting: String, row: usize },
+    #[error("{setting}: {method} did not converge within {iterations} iterations; {advice}")]
+    NotConverged {
+        setting: String,
+        method: &'static str,
+        iterations: usize,
+        advice: &'static str,
+    },
+    #[error(
+        "{setting}: feature \"{feature}\" has tied training values where the spline needs \
+         distinct knots (knots {knot} and {}, training quantiles, are both {value}); lower df",
+        .knot + 1
+    )]
+    CoincidentKnots {
+        setting: String,
+        feature: String,
+        knot: usize,
+        value: f64,
+    },
+    #[error(
+        "{setting}: the spline design is rank-deficient (basis column {column}, of feature \
+         \"{feature}\", is a combination of the others: too few distinct training values \
+         between its knots); lower df"
+    )]
+    SplineRankDeficient {
+        setting: String,
+        feature: String,
+        column: usize,
+    },
+    #[error(
+        "{setting}: the training points lie on one straight line, so a surface in two features \
+         is not determined; use a family of one feature"
+    )]
+    CollinearPoints { setting: String },
+    #[error(
+        "{setting}: the {what} did not converge; this is a numerical failure, not a bad \
+         setting: please report it with the data"
+    )]
+    NoConvergence { setting: String, what: &'static str },
+    #[error(
+        "{setting}: the fit can reach effective df only in ({lowest}, {highest}) on this fold \
+         ({rows} training rows); choose df inside that range"
+    )]
+    DfOutOfReach {
+        setting: String,
+        lowest: f64,
+        highest: f64,
+        rows: usize,
+    },
     #[error("family \"{family}\" is not built in this version of heldout yet")]
     NotBuilt { family: &'static str },
 }

@@ -127,14 +127,14 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
             }
             (None, Some(key)) => {
                 let keys = table.text_column(key);
-                let mut sorted: Vec<(&str, usize)> =
-                    keys.iter().map(String::as_str).zip(0..).collect();
-                sorted.sort_unstable();
-                if let Some(pair) = sorted.windows(2).find(|w| w[0].0 == w[1].0) {
-                    let (k, first, again) = (pair[0].0, pair[0].1, pair[1].1);
+                // Membership only: no iteration order of the set reaches an output.
+                let mut seen = std::collections::HashSet::with_capacity(keys.len());
+                if let Some(again) = keys.iter().position(|k| !seen.insert(k.as_str())) {
+                    let k = &keys[again];
+                    let first = keys.iter().position(|other| other == k).unwrap_or(again);
                     return Err(table_error(format!(
                         "key column \"{key}\" holds \"{k}\" on line {} and again on line {}; \
-                     a key must identify one row (use `group` for repeated ids)",
+                         a key must identify one row (use `group` for repeated ids)",
                         table.lines[first], table.lines[again]
                     )));
                 }

@@ -181,6 +181,10 @@ pub enum SmootherGrid {
 pub const THIN_PLATE_EXACT_LIMIT: usize = 2000;
 /// Thin-plate defaults: knots of the low-rank fit.
 pub const THIN_PLATE_KNOTS: usize = 300;
+/// Thin-plate bounds: fewest knots (a surface beyond the plane needs four).
+pub const THIN_PLATE_MIN_KNOTS: usize = 4;
+/// Thin-plate bounds: most knots, and the largest `exact_limit`.
+pub const THIN_PLATE_MAX_ROWS: usize = 5000;
 
 /// A validated candidate: one variant per family, with its own settings.
 #[derive(Debug, Clone, PartialEq)]
@@ -836,17 +840,61 @@ fn validate_candidate(
             check_grid(k, 1, usize::MAX, &format!("{key}.k"), "k", invalid)
         }
         FamilySpec::Spline { df, .. } => check_grid(df, 1, 50, &format!("{key}.df"), "df", invalid),
-        FamilySpec::SmoothingSpline { grid, .. } | FamilySpec::ThinPlate { grid, .. } => {
-            let (name, values, lowest) = match grid {
-                SmootherGrid::Penalty(v) => ("penalty", v, 0.0),
-                SmootherGrid::Df(v) => ("df", v, 1.0),
-            };
-            check_real_grid(values, lowest, &format!("{key}.{name}"), name, invalid)
+        FamilySpec::SmoothingSpline { grid, .. } => check_smoother_grid(grid, key, invalid),
+        FamilySpec::ThinPlate {
+            grid,
+            knots,
+            exact_limit,
+            ..
+        } => {
+            check_smoother_grid(grid, key, invalid)?;
+            if let SmootherGrid::Df(values) = grid {
+                if let Some(df) = values.iter().find(|&&d| d <= 3.0) {
+                    return Err(invalid(
+                        &format!("{key}.df"),
+                        format!(
+                            "df = {df} must be above 3: every thin-plate surface contains the \
+                             plane (3 df), reached only as the penalty grows without bound"
+                        ),
+                    ));
+                }
+            }
+            if !(THIN_PLATE_MIN_KNOTS..=THIN_PLATE_MAX_ROWS).contains(knots) {
+                return Err(invalid(
+                    &format!("{key}.knots"),
+                    format!(
+                        "knots = {knots} is outside [{THIN_PLATE_MIN_KNOTS}, {THIN_PLATE_MAX_ROWS}]"
+                    ),
+                ));
+            }
+            if *exact_limit > THIN_PLATE_MAX_ROWS {
+                return Err(invalid(
+                    &format!("{key}.exact_limit"),
+                    format!(
+                        "exact_limit = {exact_limit} is above {THIN_PLATE_MAX_ROWS}: the exact fit \
+                         takes time growing as rows³ and memory as rows²; use knots instead"
+                    ),
+                ));
+            }
+            Ok(())
         }
         FamilySpec::Ridge { penalty, .. } | FamilySpec::Lasso { penalty, .. } => {
             check_real_grid(penalty, 0.0, &format!("{key}.penalty"), "penalty", invalid)
         }
     }
+}
+
+/// A penalty grid (≥ 0) or a df grid (≥ 1) of a penalised smoother.
+fn check_smoother_grid(
+    grid: &SmootherGrid,
+    key: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    let (name, values, lowest) = match grid {
+        SmootherGrid::Penalty(v) => ("penalty", v, 0.0),
+        SmootherGrid::Df(v) => ("df", v, 1.0),
+    };
+    check_real_grid(values, lowest, &format!("{key}.{name}"), name, invalid)
 }
 
 /// A real-valued grid must be non-empty, finite, at least `lowest`, without repeats.

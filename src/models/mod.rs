@@ -6,11 +6,18 @@
 //! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
+pub mod lasso;
 mod least_squares;
 pub mod linear;
 pub mod nearest_neighbors;
+#[cfg(test)]
+mod penalised_reference;
 mod pending;
 pub mod polynomial;
+pub mod ridge;
+pub mod spline;
+mod standardise;
+pub mod thin_plate;
 
 use std::fmt;
 
@@ -155,11 +162,30 @@ pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
             features,
             ks: k.clone(),
         }),
-        FamilySpec::SmoothingSpline { .. }
-        | FamilySpec::Spline { .. }
-        | FamilySpec::ThinPlate { .. }
-        | FamilySpec::Ridge { .. }
-        | FamilySpec::Lasso { .. } => Box::new(pending::Pending {
+        FamilySpec::Ridge { penalty, .. } => Box::new(ridge::Ridge {
+            features,
+            penalties: penalty.clone(),
+        }),
+        FamilySpec::Lasso { penalty, .. } => Box::new(lasso::Lasso {
+            features,
+            penalties: penalty.clone(),
+        }),
+        FamilySpec::Spline { df, .. } => Box::new(spline::Spline {
+            features,
+            dfs: df.clone(),
+        }),
+        FamilySpec::ThinPlate {
+            grid,
+            knots,
+            exact_limit,
+            ..
+        } => Box::new(thin_plate::ThinPlate {
+            features,
+            grid: grid.clone(),
+            knots: *knots,
+            exact_limit: *exact_limit,
+        }),
+        FamilySpec::SmoothingSpline { .. } => Box::new(pending::Pending {
             family: spec.family_name(),
             features,
         }),

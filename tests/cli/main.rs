@@ -9,5 +9,7 @@ mod demo;
 mod nist;
 mod reports;
 mod reproducible;
+mod ridge_lasso;
+mod splines;
 mod split_reference;
 mod util;

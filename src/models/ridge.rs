@@ -1,0 +1,569 @@
+//! `ridge`: least squares with a squared-coefficient penalty, for a whole grid
+//! of penalties from one singular value decomposition per fold.
+//!
+//! Features are standardised on the training fold (`standardise`), the
+//! intercept is the training mean of the target and is not penalised, and
+//! β(λ) minimises Σ(y − ȳ − Zβ)² + λΣβ² (Hoerl & Kennard 1970, "Ridge
+//! regression: biased estimation for nonorthogonal problems", Technometrics
+//! 12). With the thin SVD Z = U diag(d) Vᵀ,
+//!
+//!   β(λ) = V diag(d/(d² + λ)) Uᵀ(y − ȳ),  df(λ) = 1 + Σ d²/(d² + λ),
+//!
+//! so the one factorisation serves every penalty (Hastie, Tibshirani &
+//! Friedman, *The Elements of Statistical Learning*, 2nd ed., 2009, §3.4.1).
+//! Singular values at or below max(n, p)·ε·d_max are dropped (the rank rule
+//! of common rank estimators such as numpy's `matrix_rank`): at λ = 0 that
+//! makes the fit the minimum-norm least-squares solution (pseudo-inverse), so
+//! collinear or surplus features give a fit instead of a failure, and df
+//! counts only the directions the data determine. For λ > 0 a dropped
+//! direction would contribute at most d/λ ≈ 10⁻¹⁶·d_max/λ per unit of Uᵀy.
+//!
+//! Leave-one-out without refits. Ridge at a fixed scaling is a linear
+//! smoother, but here each fit re-standardises on its own training rows, and
+//! leaving row i out changes every feature's standard deviation by O(1/n):
+//! in the units of the full-data standardisation the left-out fit carries
+//! the penalty λ Σ rⱼ²bⱼ² with rⱼ = sd₋ᵢ,ⱼ / sdⱼ ≠ 1. The plain hat-diagonal
+//! shortcut hᵢᵢ = 1/n + Σ_k U_ik² d_k²/(d_k² + λ) therefore differs from
+//! refits (by up to 4·10⁻³ relative on the reference fixture) except at λ = 0,
+//! where least squares does not depend on the scaling. Instead, for each row
+//! the left-out normal equations are formed exactly as a downdate of the
+//! full-data factorisation and solved in the basis of V, scaled by
+//! (d² + λ)^(−1/2) so the p × p system is the identity plus a rank-one term
+//! (the leverage) plus an O(1/n) term (the change of scaling):
+//! cost O(n·p³) per penalty instead of n SVDs (see `RidgePath::left_out`).
+//! When that basis does not span every feature (fewer rows than features,
+//! collinear features) or one row carries all of a feature's spread, the
+//! family asks for refits instead.
+
+use nalgebra::DMatrix;
+
+use super::standardise::{centre, predict, Standardiser};
+use super::{Family, Setting, SettingFit};
+use crate::error::FitError;
+
+/// Iteration cap handed to the SVD (nalgebra counts implicit-shift sweeps
+/// over the whole bidiagonal; typical fits need a few per singular value).
+const SVD_MAX_ITERATIONS: usize = 100_000;
+
+/// Ridge regression over a grid of penalties.
+#[derive(Debug, Clone)]
+pub struct Ridge {
+    pub features: Vec<String>,
+    /// Penalties λ ≥ 0 in spec order.
+    pub penalties: Vec<f64>,
+}
+
+/// One training fold, factorised: everything the penalty grid needs.
+#[derive(Debug, Clone)]
+pub(crate) struct RidgePath {
+    standardiser: Standardiser,
+    y_mean: f64,
+    /// Kept singular values, largest first.
+    d: Vec<f64>,
+    /// Left singular vectors of the kept values (n × r).
+    u: DMatrix<f64>,
+    /// Right singular vectors of the kept values (p × r).
+    v: DMatrix<f64>,
+    /// Uᵀ(y − ȳ) for the kept values.
+    u_t_y: Vec<f64>,
+}
+
+impl RidgePath {
+    /// Standardises `x_train` and factorises it once.
+    pub(crate) fn new(x_train: &DMatrix<f64>, y_train: &[f64]) -> Result<Self, FitError> {
+        let standardiser = Standardiser::fit(x_train);
+        let z = standardiser.apply(x_train);
+        let (y_mean, y_centred) = centre(y_train);
+        let (n, p) = z.shape();
+        let svd = z
+            .try_svd(true, true, f64::EPSILON, SVD_MAX_ITERATIONS)
+            .ok_or(FitError::NotConverged {
+                setting: "ridge".into(),
+                method: "the singular value decomposition",
+                iterations: SVD_MAX_ITERATIONS,
+                advice: "check the features for extreme values",
+            })?;
+        let (Some(u_all), Some(v_t_all)) = (svd.u, svd.v_t) else {
+            unreachable!("both singular vector sets were requested");
+        };
+        let largest = svd.singular_values.iter().fold(0.0_f64, |m, &d| m.max(d));
+        let tolerance = n.max(p) as f64 * f64::EPSILON * largest;
+        let kept: Vec<usize> = (0..svd.singular_values.len())
+            .filter(|&k| largest > 0.0 && svd.singular_values[k] > tolerance)
+            .collect();
+        let d: Vec<f64> = kept.iter().map(|&k| svd.singular_values[k]).collect();
+        let u = DMatrix::from_fn(n, kept.len(), |i, c| u_all[(i, kept[c])]);
+        let v = DMatrix::from_fn(p, kept.len(), |j, c| v_t_all[(kept[c], j)]);
+        let u_t_y = (0..kept.len())
+            .map(|c| (0..n).map(|i| u[(i, c)] * y_centred[i]).sum())
+            .collect();
+        Ok(RidgePath {
+            standardiser,
+            y_mean,
+            d,
+            u,
+            v,
+            u_t_y,
+        })
+    }
+
+    /// Shrinkage factors d²/(d² + λ) of the kept directions.
+    fn shrinkage(&self, penalty: f64) -> Vec<f64> {
+        self.d.iter().map(|d| d * d / (d * d + penalty)).collect()
+    }
+
+    /// Coefficients on the standardised scale at `penalty`.
+    pub(crate) fn coefficients(&self, penalty: f64) -> Vec<f64> {
+        let weights: Vec<f64> = self
+            .d
+            .iter()
+            .zip(&self.u_t_y)
+            .map(|(d, uy)| d / (d * d + penalty) * uy)
+            .collect();
+        (0..self.v.nrows())
+            .map(|j| {
+                weights
+                    .iter()
+                    .enumerate()
+                    .map(|(c, w)| self.v[(j, c)] * w)
+                    .sum()
+            })
+            .collect()
+    }
+
+    /// 1 (the intercept) + Σ d²/(d² + λ).
+    pub(crate) fn effective_df(&self, penalty: f64) -> f64 {
+        1.0 + self.shrinkage(penalty).iter().sum::<f64>()
+    }
+
+    /// Whether [`Self::left_out`] is exact for these rows: V spans every
+    /// feature and no single row holds all of a feature's spread.
+    fn supports_left_out(&self, z: &DMatrix<f64>) -> bool {
+        let (n, p) = z.shape();
+        let rest = (n - 1) as f64;
+        // Σᵢ zᵢⱼ² = n, so zᵢⱼ² = n − 1 means the other rows are all equal.
+        self.d.len() == p && z.iter().all(|&v| v * v < rest * (1.0 - 1e-8))
+    }
+
+    /// The prediction at training row `i` of the fit on the other rows
+    /// (re-standardised on them, as a refit would be), at `penalty`; `None`
+    /// when row i alone determines part of that fit (leverage 1).
+    ///
+    /// In the units of the full-data standardisation Z (columns centred,
+    /// ΣZ²ⱼ = n), removing row i (m = n − 1 rows remain, a = n/m) gives
+    /// centred cross-products C = ZᵀZ − a·zᵢzᵢᵀ and q = Zᵀ(y − ȳ) − a·zᵢeᵢ
+    /// (eᵢ = yᵢ − ȳ; the textbook downdate of a scatter matrix), and squared
+    /// scale ratios rⱼ² = C_jj/m = 1 + 1/m − n·zᵢⱼ²/m². The left-out
+    /// coefficients b solve (C + λR²) b = q. Writing b = V S η with
+    /// S = diag((d² + λ)^(−1/2)) and wᵢ = S D uᵢ,
+    ///
+    ///   (I − a·wᵢwᵢᵀ + λ S Vᵀ(R² − I)V S) η = S (D Uᵀ(y − ȳ) − a·D uᵢ eᵢ),
+    ///
+    /// and the prediction is ȳ − eᵢ/m + a·zᵢᵀb (the left-out means of y and
+    /// Z are ȳ − eᵢ/m and −zᵢ/m).
+    fn left_out(&self, z: &DMatrix<f64>, y_centred: &[f64], i: usize, penalty: f64) -> Option<f64> {
+        let (n, p) = z.shape();
+        let rest = (n - 1) as f64;
+        let a = n as f64 / rest;
+        let e = y_centred[i];
+        let scale: Vec<f64> = self
+            .d
+            .iter()
+            .map(|d| 1.0 / (d * d + penalty).sqrt())
+            .collect();
+        let w: Vec<f64> = (0..p)
+            .map(|k| scale[k] * self.d[k] * self.u[(i, k)])
+            .collect();
+        let ratio_change: Vec<f64> = (0..p)
+            .map(|j| 1.0 / rest - n as f64 * z[(i, j)] * z[(i, j)] / (rest * rest))
+            .collect();
+        let system = DMatrix::from_fn(p, p, |k, l| {
+            let change: f64 = (0..p)
+                .map(|j| self.v[(j, k)] * ratio_change[j] * self.v[(j, l)])
+                .sum();
+            let identity = if k == l { 1.0 } else { 0.0 };
+            identity - a * w[k] * w[l] + penalty * scale[k] * scale[l] * change
+        });
+        let rhs = nalgebra::DVector::from_fn(p, |k, _| {
+            scale[k] * self.d[k] * (self.u_t_y[k] - a * self.u[(i, k)] * e)
+        });
+        let eta = system.cholesky()?.solve(&rhs);
+        let gamma: Vec<f64> = (0..p).map(|k| scale[k] * eta[k]).collect();
+        let fitted: f64 = (0..p)
+            .map(|j| {
+                let b_j: f64 = (0..p).map(|k| self.v[(j, k)] * gamma[k]).sum();
+                z[(i, j)] * b_j
+            })
+            .sum();
+        Some(self.y_mean - e / rest + a * fitted)
+    }
+}
+
+fn setting_name(penalty: f64) -> String {
+    format!("penalty={penalty}")
+}
+
+impl Ridge {
+    fn checked_path(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Result<RidgePath, FitError> {
+        if x_train.nrows() < 2 {
+            return Err(FitError::TooFewRows {
+                setting: "ridge".into(),
+                needed: 2,
+                available: x_train.nrows(),
+            });
+        }
+        RidgePath::new(x_train, y_train)
+    }
+}
+
+impl Family for Ridge {
+    fn family(&self) -> &'static str {
+        "ridge"
+    }
+
+    fn features(&self) -> &[String] {
+        &self.features
+    }
+
+    fn settings(&self) -> Vec<Setting> {
+        self.penalties
+            .iter()
+            .map(|&penalty| Setting::real("penalty", penalty))
+            .collect()
+    }
+
+    fn fit_path(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+        x_eval: &DMatrix<f64>,
+        final_fit: bool,
+    ) -> Result<Vec<SettingFit>, FitError> {
+        let path = self.checked_path(x_train, y_train)?;
+        let z_train = final_fit.then(|| path.standardiser.apply(x_train));
+        let z_eval = path.standardiser.apply(x_eval);
+        Ok(self
+            .penalties
+            .iter()
+            .map(|&penalty| {
+                let beta = path.coefficients(penalty);
+                SettingFit {
+                    train_pred: z_train
+                        .as_ref()
+                        .map(|z| predict(z, path.y_mean, &beta))
+                        .unwrap_or_default(),
+                    eval_pred: predict(&z_eval, path.y_mean, &beta),
+                    effective_df: path.effective_df(penalty),
+                    coefficients: final_fit.then(|| {
+                        path.standardiser
+                            .raw_coefficients(&self.features, path.y_mean, &beta)
+                    }),
+                }
+            })
+            .collect())
+    }
+
+    fn leave_one_out(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+        self.loo_by_downdate(x_train, y_train)
+    }
+}
+
+impl Ridge {
+    /// Leave-one-out predictions of every penalty from one factorisation, or
+    /// `None` when only refits are exact (see the module documentation).
+    fn loo_by_downdate(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+        let path = match self.checked_path(x_train, y_train) {
+            Ok(path) => path,
+            Err(error) => return Some(Err(error)),
+        };
+        let z = path.standardiser.apply(x_train);
+        if !path.supports_left_out(&z) {
+            return None;
+        }
+        let (_, y_centred) = centre(y_train);
+        Some(
+            self.penalties
+                .iter()
+                .map(|&penalty| {
+                    (0..y_train.len())
+                        .map(|i| {
+                            path.left_out(&z, &y_centred, i, penalty).ok_or_else(|| {
+                                FitError::FullLeverage {
+                                    setting: setting_name(penalty),
+                                    row: i + 1,
+                                }
+                            })
+                        })
+                        .collect()
+                })
+                .collect(),
+        )
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::models::linear::Linear;
+    use crate::models::penalised_reference;
+
+    fn relative(a: f64, b: f64) -> f64 {
+        (a - b).abs() / b.abs().max(f64::MIN_POSITIVE)
+    }
+
+    #[test]
+    fn zero_penalty_equals_least_squares() {
+        // Identity (DESIGN.md §7): ridge with zero penalty is least squares;
+        // compared with the `linear` family (Householder QR) on the fixture.
+        let f = penalised_reference::load();
+        let ridge = Ridge {
+            features: f.features.clone(),
+            penalties: vec![0.0],
+        };
+        let linear = Linear {
+            features: f.features.clone(),
+            intercept: true,
+        };
+        let r = &ridge
+            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
+            .unwrap()[0];
+        let l = &linear
+            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
+            .unwrap()[0];
+        for (a, b) in r.eval_pred.iter().zip(&l.eval_pred) {
+            assert!(relative(*a, *b) <= 1e-11, "eval {a} vs {b}");
+        }
+        for (a, b) in r.train_pred.iter().zip(&l.train_pred) {
+            assert!(relative(*a, *b) <= 1e-11, "train {a} vs {b}");
+        }
+        let (rc, lc) = (
+            r.coefficients.as_ref().unwrap(),
+            l.coefficients.as_ref().unwrap(),
+        );
+        for ((rn, a), (ln, b)) in rc.iter().zip(lc) {
+            assert_eq!(rn, ln);
+            assert!(relative(*a, *b) <= 1e-10, "{rn}: {a} vs {b}");
+        }
+        // Five features of full rank plus the intercept.
+        assert!((r.effective_df - 6.0).abs() < 1e-12, "{}", r.effective_df);
+    }
+
+    #[test]
+    fn duplicated_feature_at_zero_penalty_uses_the_pseudo_inverse() {
+        // Module doc: a column that repeats another adds no direction, so at
+        // λ = 0 the fit is least squares on the distinct columns (common
+        // practice: minimum-norm solution) and df counts the rank only.
+        let f = penalised_reference::load();
+        let widen = |x: &DMatrix<f64>| DMatrix::from_fn(x.nrows(), 6, |i, j| x[(i, j.min(4))]);
+        let mut names = f.features.clone();
+        names.push("outdoor_c_again".into());
+        let ridge = Ridge {
+            features: names,
+            penalties: vec![0.0],
+        };
+        let linear = Linear {
+            features: f.features.clone(),
+            intercept: true,
+        };
+        let r = &ridge
+            .fit_path(&widen(&f.x_train), &f.y_train, &widen(&f.x_eval), true)
+            .unwrap()[0];
+        let l = &linear
+            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
+            .unwrap()[0];
+        for (a, b) in r.eval_pred.iter().zip(&l.eval_pred) {
+            assert!(relative(*a, *b) <= 1e-10, "{a} vs {b}");
+        }
+        assert!((r.effective_df - 6.0).abs() < 1e-9, "{}", r.effective_df);
+        // Minimum norm splits the duplicated slope equally between the copies.
+        let c = r.coefficients.as_ref().unwrap();
+        assert!(relative(c[5].1, c[6].1) <= 1e-9, "{c:?}");
+    }
+
+    #[test]
+    fn effective_df_falls_strictly_with_the_penalty() {
+        // Σ d²/(d²+λ) decreases strictly in λ when any d > 0 (ESL §3.4.1).
+        let f = penalised_reference::load();
+        let mut penalties = penalised_reference::penalties(&f, "ridge");
+        penalties.sort_by(f64::total_cmp);
+        let ridge = Ridge {
+            features: f.features.clone(),
+            penalties,
+        };
+        let fits = ridge
+            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
+            .unwrap();
+        for pair in fits.windows(2) {
+            assert!(pair[1].effective_df < pair[0].effective_df, "{pair:?}");
+        }
+        assert!(fits.last().unwrap().effective_df > 1.0);
+    }
+
+    #[test]
+    fn path_equals_separate_fits() {
+        // Invariant (DESIGN.md §5): the grid from one SVD equals one fit per setting.
+        let f = penalised_reference::load();
+        let penalties = penalised_reference::penalties(&f, "ridge");
+        let ridge = Ridge {
+            features: f.features.clone(),
+            penalties: penalties.clone(),
+        };
+        let whole = ridge
+            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
+            .unwrap();
+        for (penalty, together) in penalties.into_iter().zip(&whole) {
+            let alone = Ridge {
+                features: f.features.clone(),
+                penalties: vec![penalty],
+            };
+            let alone = &alone
+                .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
+                .unwrap()[0];
+            let pairs = together
+                .eval_pred
+                .iter()
+                .chain(&together.train_pred)
+                .zip(alone.eval_pred.iter().chain(&alone.train_pred));
+            for (a, b) in pairs {
+                assert!(relative(*a, *b) <= 1e-12, "penalty {penalty}: {a} vs {b}");
+            }
+            assert_eq!(together.effective_df, alone.effective_df);
+        }
+    }
+
+    #[test]
+    #[allow(clippy::needless_range_loop)] // row i indexes several parallel arrays
+    fn leave_one_out_shortcut_equals_refits() {
+        // Identity (DESIGN.md §7): the hat-diagonal shortcut equals refitting
+        // without each row (here to 1e-9 relative), at λ = 0 and above.
+        let f = penalised_reference::load();
+        let ridge = Ridge {
+            features: f.features.clone(),
+            penalties: vec![0.0, 0.5, 25.0, 5000.0],
+        };
+        let shortcut = ridge
+            .leave_one_out(&f.x_train, &f.y_train)
+            .unwrap()
+            .unwrap();
+        let n = f.y_train.len();
+        let mut worst = 0.0_f64;
+        for i in 0..n {
+            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
+            let x_rest = f.x_train.select_rows(&keep);
+            let y_rest: Vec<f64> = keep.iter().map(|&r| f.y_train[r]).collect();
+            let refit = ridge
+                .fit_path(&x_rest, &y_rest, &f.x_train.rows(i, 1).into_owned(), false)
+                .unwrap();
+            for (setting, fit) in refit.iter().enumerate() {
+                let (a, b) = (shortcut[setting][i], fit.eval_pred[0]);
+                assert!(
+                    relative(a, b) <= 1e-9,
+                    "row {i} setting {setting}: {a} vs {b}"
+                );
+                worst = worst.max(relative(a, b));
+            }
+        }
+        println!("ridge leave-one-out shortcut vs refits: worst relative error {worst:e}");
+    }
+
+    #[test]
+    fn plain_hat_diagonal_misses_the_refit_scaling() {
+        // Why `left_out` exists: refits re-standardise, so the fixed-scaling
+        // shortcut yᵢ − (yᵢ − ŷᵢ)/(1 − hᵢᵢ), hᵢᵢ = 1/n + Σ U²d²/(d²+λ), is off
+        // by far more than rounding at λ > 0 (and exact at λ = 0).
+        let f = penalised_reference::load();
+        let path = RidgePath::new(&f.x_train, &f.y_train).unwrap();
+        let z = path.standardiser.apply(&f.x_train);
+        let (_, y_centred) = centre(&f.y_train);
+        let n = f.y_train.len();
+        let gap_at = |penalty: f64| {
+            let fitted = predict(&z, path.y_mean, &path.coefficients(penalty));
+            let shrinkage = path.shrinkage(penalty);
+            (0..n)
+                .map(|i| {
+                    let h = 1.0 / n as f64
+                        + (0..shrinkage.len())
+                            .map(|k| path.u[(i, k)] * path.u[(i, k)] * shrinkage[k])
+                            .sum::<f64>();
+                    let plain = f.y_train[i] - (f.y_train[i] - fitted[i]) / (1.0 - h);
+                    let exact = path.left_out(&z, &y_centred, i, penalty).unwrap();
+                    relative(plain, exact)
+                })
+                .fold(0.0, f64::max)
+        };
+        assert!(gap_at(0.0) <= 1e-10, "{}", gap_at(0.0));
+        assert!(gap_at(25.0) >= 1e-6, "{}", gap_at(25.0));
+    }
+
+    #[test]
+    fn refits_are_requested_when_the_shortcut_is_not_exact() {
+        // Module doc: fewer rows than features, or a feature that varies in one
+        // row only, leave the left-out fits outside V's span; refit instead.
+        let wide = DMatrix::from_fn(4, 5, |i, j| ((i * 3 + j * 7) % 5) as f64 + j as f64);
+        let ridge = Ridge {
+            features: (0..5).map(|j| format!("f{j}")).collect(),
+            penalties: vec![1.0],
+        };
+        assert!(ridge.leave_one_out(&wide, &[1.0, 2.0, 0.5, 3.0]).is_none());
+        let spike = DMatrix::from_fn(8, 2, |i, j| match j {
+            0 => i as f64,
+            _ => f64::from(u8::from(i == 5)),
+        });
+        let ridge = Ridge {
+            features: vec!["a".into(), "spike".into()],
+            penalties: vec![1.0],
+        };
+        let y: Vec<f64> = (0..8).map(|i| (i * i) as f64).collect();
+        assert!(ridge.leave_one_out(&spike, &y).is_none());
+        // A well-spread design gets the shortcut.
+        let spread = DMatrix::from_fn(8, 2, |i, j| ((i * (j + 2)) % 7) as f64);
+        assert!(ridge.leave_one_out(&spread, &y).is_some());
+    }
+
+    #[test]
+    fn constant_feature_gets_a_zero_slope() {
+        // Module doc of `standardise`: a constant training column is a zero column.
+        let x = DMatrix::from_fn(10, 2, |i, j| if j == 1 { 3.5 } else { i as f64 });
+        let y: Vec<f64> = (0..10).map(|i| 2.0 + 0.5 * i as f64).collect();
+        let ridge = Ridge {
+            features: vec!["a".into(), "flat".into()],
+            penalties: vec![0.0, 1.0],
+        };
+        let fits = ridge.fit_path(&x, &y, &x, true).unwrap();
+        let exact = fits[0].coefficients.as_ref().unwrap();
+        // An exact line is recovered at λ = 0 (property of least squares).
+        assert!((exact[0].1 - 2.0).abs() < 1e-12 && (exact[1].1 - 0.5).abs() < 1e-13);
+        assert_eq!(exact[2].1, 0.0);
+        assert!((fits[0].effective_df - 2.0).abs() < 1e-12);
+        assert_eq!(fits[1].coefficients.as_ref().unwrap()[2].1, 0.0);
+    }
+
+    #[test]
+    fn one_row_is_too_few() {
+        let x = DMatrix::from_element(1, 1, 2.0);
+        let ridge = Ridge {
+            features: vec!["a".into()],
+            penalties: vec![1.0],
+        };
+        let err = ridge.fit_path(&x, &[1.0], &x, false).unwrap_err();
+        assert!(
+            matches!(
+                err,
+                FitError::TooFewRows {
+                    needed: 2,
+                    available: 1,
+                    ..
+                }
+            ),
+            "{err}"
+        );
+    }
+}

@@ -1,0 +1,485 @@
+//! `thin-plate`: the thin-plate smoothing spline in two features, for a whole
+//! grid of penalties (or of effective df) from one factorisation per fold.
+//!
+//! Both features are standardised on the training fold (mean 0, population
+//! sd 1); u = (u, v) below are standardised coordinates. The fit minimises
+//!
+//! Σᵢ (yᵢ − f(uᵢ))² + λ J(f),  J(f) = ∫∫_ℝ² (f_uu² + 2 f_uv² + f_vv²) du dv
+//!
+//! (Duchon 1977, "Splines minimizing rotation-invariant semi-norms in Sobolev
+//! spaces"; Wahba 1990, *Spline Models for Observational Data*, §2.4). The
+//! minimiser is f(u) = Σᵢ cᵢ η(‖u − uᵢ‖) + d₀ + d₁u + d₂v with
+//! η(r) = r² log r / (8π), the fundamental solution of the biharmonic
+//! equation in the plane (Δ²η = δ), and Σcᵢ = Σcᵢuᵢ = Σcᵢvᵢ = 0. With that
+//! constant J(f) = cᵀEc exactly, E = [η(‖uᵢ − uⱼ‖)], so the spec's `penalty`
+//! is the λ of the criterion above, unscaled: no factor of n, no other
+//! constant. (Criteria written with a mean, (1/n)Σ(…)² + λ'J, have λ = nλ'.)
+//! As λ → 0 the fit interpolates distinct points; as λ → ∞ it tends to the
+//! least-squares plane, effective df 3.
+//!
+//! Up to `exact_limit` training rows the exact smoother is used (module `exact`);
+//! above, a low-rank one on `knots` knots (module `low_rank`). Both reduce every
+//! penalty to weights s/(s + λ) on fixed directions, so effective df (the
+//! smoother's trace) is 3 + Σ s/(s + λ), strictly decreasing in λ. A `df`
+//! grid is turned into penalties by solving that equation for log λ:
+//! bracketing by doubling steps from the median strength, then Newton steps
+//! kept inside the bracket, to 10⁻¹² in log λ (λ to 10⁻¹² relative).
+//!
+//! Products of dense matrices are written out here in a fixed order rather
+//! than left to nalgebra's `*`, whose large products may use fused
+//! multiply-add depending on the processor.
+
+mod exact;
+mod low_rank;
+mod plane;
+mod tridiagonal;
+
+use nalgebra::DMatrix;
+
+use super::{loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit};
+use crate::error::FitError;
+use crate::spec::SmootherGrid;
+use exact::ExactPath;
+use low_rank::{knot_rows, LowRankPath};
+
+/// Thin-plate smoothing splines over a grid of penalties or effective df.
+#[derive(Debug, Clone)]
+pub struct ThinPlate {
+    pub features: Vec<String>,
+    pub grid: SmootherGrid,
+    /// Knots of the low-rank fit.
+    pub knots: usize,
+    /// Largest training fold fitted exactly.
+    pub exact_limit: usize,
+}
+
+/// 1/(16π): η(r) = r² log r / (8π) = r² · log(r²) / (16π).
+const RADIAL_SCALE: f64 = 1.0 / (16.0 * std::f64::consts::PI);
+
+/// η as a function of the squared distance; η(0) = 0.
+pub(crate) fn radial(squared_distance: f64) -> f64 {
+    if squared_distance > 0.0 {
+        squared_distance * libm::log(squared_distance) * RADIAL_SCALE
+    } else {
+        0.0
+    }
+}
+
+/// [η(‖rowᵢ − centreⱼ‖)], rows × centres.
+fn kernel(rows: &[[f64; 2]], centres: &[[f64; 2]]) -> DMatrix<f64> {
+    DMatrix::from_fn(rows.len(), centres.len(), |i, j| {
+        let du = rows[i][0] - centres[j][0];
+        let dv = rows[i][1] - centres[j][1];
+        radial(du * du + dv * dv)
+    })
+}
+
+/// A·B summed over the inner index in ascending order, without fused
+/// multiply-add.
+fn product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
+    let mut out = DMatrix::zeros(a.nrows(), b.ncols());
+    for (j, mut column) in out.column_iter_mut().enumerate() {
+        for (k, a_column) in a.column_iter().enumerate() {
+            let factor = b[(k, j)];
+            for (o, x) in column.iter_mut().zip(a_column.iter()) {
+                *o += x * factor;
+            }
+        }
+    }
+    out
+}
+
+/// s/(s + λ) for a direction the data see, 0 for one they do not.
+fn weight(strength: f64, penalty: f64) -> f64 {
+    if strength > 0.0 {
+        strength / (strength + penalty)
+    } else {
+        0.0
+    }
+}
+
+/// Effective df 3 + Σ s/(s + λ), summed in index order.
+fn trace(strengths: &[f64], penalty: f64) -> f64 {
+    3.0 + strengths.iter().map(|&s| weight(s, penalty)).sum::<f64>()
+}
+
+/// The penalty whose effective df is `df`, or `None` when df is outside
+/// (3, 3 + number of visible directions).
+pub(crate) fn penalty_for_df(strengths: &[f64], df: f64) -> Option<f64> {
+    let mut visible: Vec<f64> = strengths.iter().copied().filter(|&s| s > 0.0).collect();
+    let target = df - 3.0;
+    if !(target > 0.0 && target < visible.len() as f64) {
+        return None;
+    }
+    visible.sort_by(f64::total_cmp);
+    // Excess df at log-penalty s, and its derivative −Σ t(1 − t).
+    let excess = |s: f64| -> (f64, f64) {
+        let penalty = libm::exp(s);
+        let (mut sum, mut slope) = (0.0, 0.0);
+        for &strength in strengths {
+            let t = weight(strength, penalty);
+            sum += t;
+            slope -= t * (1.0 - t);
+        }
+        (sum - target, slope)
+    };
+    let start = libm::log(visible[visible.len() / 2]);
+    let (mut lo, mut hi) = (start, start);
+    let mut step = 1.0;
+    while excess(lo).0 <= 0.0 {
+        lo -= step;
+        step *= 2.0;
+        if step > 1e5 {
+            return None;
+        }
+    }
+    step = 1.0;
+    while excess(hi).0 >= 0.0 {
+        hi += step;
+        step *= 2.0;
+        if step > 1e5 {
+            return None;
+        }
+    }
+    let mut s = 0.5 * (lo + hi);
+    for _ in 0..200 {
+        let (g, slope) = excess(s);
+        if g == 0.0 {
+            break;
+        }
+        if g > 0.0 {
+            lo = s;
+        } else {
+            hi = s;
+        }
+        let newton = s - g / slope;
+        let next = if newton > lo && newton < hi {
+            newton
+        } else {
+            0.5 * (lo + hi)
+        };
+        let moved = (next - s).abs();
+        s = next;
+        if moved <= 1e-12 || hi - lo <= 1e-12 {
+            break;
+        }
+    }
+    Some(libm::exp(s))
+}
+
+/// Standardisation of the two features on the training fold.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Scaling {
+    mean: [f64; 2],
+    sd: [f64; 2],
+}
+
+impl Scaling {
+    fn of(x: &DMatrix<f64>) -> Self {
+        let (m0, s0) = mean_and_sd(x.column(0).iter().copied());
+        let (m1, s1) = mean_and_sd(x.column(1).iter().copied());
+        Scaling {
+            mean: [m0, m1],
+            sd: [s0, s1],
+        }
+    }
+
+    fn point(&self, a: f64, b: f64) -> [f64; 2] {
+        [
+            (a - self.mean[0]) / self.sd[0],
+            (b - self.mean[1]) / self.sd[1],
+        ]
+    }
+
+    fn apply(&self, x: &DMatrix<f64>) -> Vec<[f64; 2]> {
+        (0..x.nrows())
+            .map(|i| self.point(x[(i, 0)], x[(i, 1)]))
+            .collect()
+    }
+}
+
+/// What a fold's fit depends on besides its rows' values: the scaling and,
+/// for the low-rank fit, the knots (raw feature values). Fixed from all rows
+/// for the leave-one-out shortcut.
+#[derive(Debug, Clone, PartialEq)]
+struct Basis {
+    scaling: Scaling,
+    knots: Option<Vec<[f64; 2]>>,
+}
+
+/// A fitted surface: Σⱼ δⱼ η(‖u − centreⱼ‖) + plane₀ + plane₁u + plane₂v.
+#[derive(Debug, Clone)]
+struct Surface {
+    delta: Vec<f64>,
+    plane: [f64; 3],
+}
+
+impl Surface {
+    /// Values at `points`, given their kernel rows against the centres.
+    fn predict(&self, kernel: &DMatrix<f64>, points: &[[f64; 2]]) -> Vec<f64> {
+        let mut values = vec![0.0; points.len()];
+        for (column, &d) in kernel.column_iter().zip(&self.delta) {
+            for (value, k) in values.iter_mut().zip(column.iter()) {
+                *value += k * d;
+            }
+        }
+        for (value, p) in values.iter_mut().zip(points) {
+            *value += self.plane[0] + self.plane[1] * p[0] + self.plane[2] * p[1];
+        }
+        values
+    }
+}
+
+/// The exact or the low-rank factorisation of one fold.
+#[derive(Debug)]
+enum Path {
+    Exact {
+        path: ExactPath,
+        points: Vec<[f64; 2]>,
+    },
+    LowRank(LowRankPath),
+}
+
+impl Path {
+    fn strengths(&self) -> &[f64] {
+        match self {
+            Path::Exact { path, .. } => &path.strengths,
+            Path::LowRank(path) => &path.strengths,
+        }
+    }
+
+    fn centres(&self) -> &[[f64; 2]] {
+        match self {
+            Path::Exact { points, .. } => points,
+            Path::LowRank(path) => &path.knots,
+        }
+    }
+
+    /// Kernel of the training points against the centres.
+    fn train_kernel(&self) -> &DMatrix<f64> {
+        match self {
+            Path::Exact { path, .. } => &path.kernel,
+            Path::LowRank(path) => &path.kernel,
+        }
+    }
+
+    fn surface(&self, penalty: f64) -> Surface {
+        match self {
+            Path::Exact { path, .. } => path.surface(penalty),
+            Path::LowRank(path) => path.surface(penalty),
+        }
+    }
+
+    fn leverages(&self, penalty: f64) -> Option<Vec<f64>> {
+        match self {
+            Path::Exact { path, .. } => path.leverages(penalty),
+            Path::LowRank(path) => path.leverages(penalty),
+        }
+    }
+}
+
+/// One setting's fit, with its leverages when asked for.
+type FitWithLeverages = (SettingFit, Option<Vec<f64>>);
+
+impl ThinPlate {
+    /// Label for failures that concern the whole grid.
+    const WHOLE_GRID: &'static str = "every setting";
+
+    fn check_rows(&self, x_train: &DMatrix<f64>) -> Result<(), FitError> {
+        if x_train.nrows() < 3 {
+            return Err(FitError::TooFewRows {
+                setting: Self::WHOLE_GRID.to_string(),
+                needed: 3,
+                available: x_train.nrows(),
+            });
+        }
+        require_spread(
+            &self.features,
+            x_train,
+            "it cannot be standardised for a thin-plate surface",
+        )
+    }
+
+    /// Scaling from the training rows; knots too above `exact_limit`.
+    fn basis_for(&self, x_train: &DMatrix<f64>) -> Basis {
+        let knots = (x_train.nrows() > self.exact_limit).then(|| {
+            knot_rows(x_train, self.knots)
+                .into_iter()
+                .map(|i| [x_train[(i, 0)], x_train[(i, 1)]])
+                .collect()
+        });
+        Basis {
+            scaling: Scaling::of(x_train),
+            knots,
+        }
+    }
+
+    /// The penalty of every setting, in grid order.
+    fn penalties(&self, path: &Path, rows: usize) -> Result<Vec<f64>, FitError> {
+        match &self.grid {
+            SmootherGrid::Penalty(values) => Ok(values.clone()),
+            SmootherGrid::Df(values) => values
+                .iter()
+                .map(|&df| {
+                    penalty_for_df(path.strengths(), df).ok_or_else(|| {
+                        let visible = path.strengths().iter().filter(|&&s| s > 0.0).count();
+                        FitError::DfOutOfReach {
+                            setting: Setting::real("df", df).to_string(),
+                            lowest: 3.0,
+                            highest: 3.0 + visible as f64,
+                            rows,
+                        }
+                    })
+                })
+                .collect(),
+        }
+    }
+
+    /// Fits every setting with a given basis; leverages when `with_leverages`.
+    fn fit_with_basis(
+        &self,
+        basis: &Basis,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+        x_eval: &DMatrix<f64>,
+        final_fit: bool,
+        with_leverages: bool,
+    ) -> Result<Vec<FitWithLeverages>, FitError> {
+        let points = basis.scaling.apply(x_train);
+        let path = match &basis.knots {
+            None => {
+                // Eigenvectors only where the tridiagonal route cannot go.
+                let zero_penalty = matches!(&self.grid,
+                    SmootherGrid::Penalty(values) if values.contains(&0.0));
+                Path::Exact {
+                    path: ExactPath::new(
+                        &points,
+                        y_train,
+                        with_leverages || zero_penalty,
+                        Self::WHOLE_GRID,
+                    )?,
+                    points: points.clone(),
+                }
+            }
+            Some(raw) => {
+                let knots = raw
+                    .iter()
+                    .map(|k| basis.scaling.point(k[0], k[1]))
+                    .collect();
+                Path::LowRank(LowRankPath::new(
+                    &points,
+                    y_train,
+                    knots,
+                    with_leverages,
+                    Self::WHOLE_GRID,
+                )?)
+            }
+        };
+        let penalties = self.penalties(&path, x_train.nrows())?;
+        let eval_points = basis.scaling.apply(x_eval);
+        let eval_kernel = kernel(&eval_points, path.centres());
+        Ok(penalties
+            .into_iter()
+            .map(|penalty| {
+                let surface = path.surface(penalty);
+                let fit = SettingFit {
+                    train_pred: if final_fit {
+                        surface.predict(path.train_kernel(), &points)
+                    } else {
+                        Vec::new()
+                    },
+                    eval_pred: surface.predict(&eval_kernel, &eval_points),
+                    effective_df: trace(path.strengths(), penalty),
+                    coefficients: None,
+                };
+                let leverages = if with_leverages {
+                    path.leverages(penalty)
+                } else {
+                    None
+                };
+                (fit, leverages)
+            })
+            .collect())
+    }
+}
+
+impl Family for ThinPlate {
+    fn family(&self) -> &'static str {
+        "thin-plate"
+    }
+
+    fn features(&self) -> &[String] {
+        &self.features
+    }
+
+    fn settings(&self) -> Vec<Setting> {
+        match &self.grid {
+            SmootherGrid::Penalty(values) => values
+                .iter()
+                .map(|&p| Setting::real("penalty", p))
+                .collect(),
+            SmootherGrid::Df(values) => values.iter().map(|&d| Setting::real("df", d)).collect(),
+        }
+    }
+
+    fn fit_path(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+        x_eval: &DMatrix<f64>,
+        final_fit: bool,
+    ) -> Result<Vec<SettingFit>, FitError> {
+        self.check_rows(x_train)?;
+        let basis = self.basis_for(x_train);
+        let fits = self.fit_with_basis(&basis, x_train, y_train, x_eval, final_fit, false)?;
+        Ok(fits.into_iter().map(|(fit, _)| fit).collect())
+    }
+
+    /// Leave-one-out by the hat diagonal, with the scaling (and, above
+    /// `exact_limit`, the knots) taken once from all the rows given: the
+    /// fixed-design leave-one-out of Wahba (1990, §4.2). Each left-out row's
+    /// feature values, never its target, take part in the scaling; re-deriving
+    /// the scaling from every n − 1 rows would change the smoother itself and
+    /// break the hat-diagonal identity.
+    fn leave_one_out(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+        Some(self.loo_by_leverage(x_train, y_train))
+    }
+}
+
+impl ThinPlate {
+    fn loo_by_leverage(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Result<Vec<Vec<f64>>, FitError> {
+        self.check_rows(x_train)?;
+        let basis = self.basis_for(x_train);
+        let empty = x_train.rows(0, 0).into_owned();
+        let fits = self.fit_with_basis(&basis, x_train, y_train, &empty, true, true)?;
+        self.settings()
+            .into_iter()
+            .zip(fits)
+            .map(|(setting, (fit, leverages))| {
+                let leverages = leverages.unwrap_or_default();
+                (0..y_train.len())
+                    .map(|i| {
+                        let h = leverages.get(i).copied().unwrap_or(1.0);
+                        loo_from_leverage(y_train[i], fit.train_pred[i], h).ok_or_else(|| {
+                            FitError::FullLeverage {
+                                setting: setting.to_string(),
+                                row: i + 1,
+                            }
+                        })
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests;
