@@ -695,12 +695,6 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
         families.push(candidate);
     }
 
-    if spec.report.formats.contains(&ReportFormat::Html) {
-        return Err(invalid(
-            "report.formats",
-            "\"html\" reports are not built yet; use [\"markdown\"]".into(),
-        ));
-    }
     Ok(families)
 }
 
