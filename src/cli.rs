@@ -51,6 +51,18 @@ pub enum Command {
         `test`). The algorithm is written out in docs/splits.md."
     )]
     Folds(FoldsArgs),
+    /// Say what changed between two results.json files: inputs, candidates
+    /// added or removed, every number that moved (absolute and relative), and
+    /// whether the choice changed. Markdown on stdout, for a pull-request comment.
+    #[command(
+        after_help = "Example (in CI, against the results of the main branch):\n  \
+        heldout compare baseline/results.json out/heat-demand/results.json > comment.md\n\n\
+        Inputs are told apart by their blake3 digests (spec meaning, data file,\n\
+        folds, templates). Numbers are compared bit for bit and shown with just\n\
+        enough digits to tell them apart, largest relative change first. Exits 0\n\
+        whatever changed; 2 when a file cannot be read."
+    )]
+    Compare(CompareArgs),
 }
 
 /// Where fitted grids are cached.
@@ -122,4 +134,17 @@ pub struct FoldsArgs {
     /// The spec whose split to print.
     #[arg(value_name = "SPEC")]
     pub spec: PathBuf,
+}
+
+#[derive(Debug, Args)]
+pub struct CompareArgs {
+    /// The earlier results (the baseline).
+    #[arg(value_name = "A.json")]
+    pub before: PathBuf,
+    /// The later results.
+    #[arg(value_name = "B.json")]
+    pub after: PathBuf,
+    /// List every number that moved (default: the 40 largest relative changes).
+    #[arg(long)]
+    pub all: bool,
 }

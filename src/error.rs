@@ -134,17 +134,27 @@ pub enum FitError {
         highest: f64,
         rows: usize,
     },
-    #[error("family \"{family}\" is not built in this version of heldout yet")]
-    NotBuilt { family: &'static str },
+    #[error(
+        "{setting}: a smoothing spline's effective df must lie in (2, {distinct}], where \
+         {distinct} is the number of distinct values of feature \"{feature}\" in the training \
+         rows (df = 2 is the straight line); choose a df in that range"
+    )]
+    DfOutOfRange {
+        setting: String,
+        feature: String,
+        distinct: usize,
+    },
+    #[error("{setting}: the smoothing spline could not be fitted: {detail}")]
+    SmootherBreakdown { setting: String, detail: String },
 }
 
 /// A `FitError` with the candidate and fold it happened in.
 #[derive(Debug, thiserror::Error)]
-#[error("candidate {candidate}, {fold}: {source}")]
+#[error("candidate {candidate}, {fold}: {cause}")]
 pub struct FitFailure {
     pub candidate: String,
     pub fold: String,
-    pub source: FitError,
+    pub cause: FitError,
 }
 
 /// A cache folder that cannot be written.

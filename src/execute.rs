@@ -218,10 +218,10 @@ fn run_task(
             task.rows == TaskRows::Full,
         )
     };
-    let mut fits = fitted.map_err(|source| FitFailure {
+    let mut fits = fitted.map_err(|cause| FitFailure {
         candidate: candidate.stem.clone(),
         fold: describe_rows(plan, task.rows),
-        source,
+        cause,
     })?;
     if task.rows != TaskRows::Full {
         // Only validation predictions of a fold are ever used.

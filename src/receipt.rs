@@ -70,10 +70,9 @@ pub fn path_for(spec: &Path) -> PathBuf {
     spec.with_file_name(format!("{stem}.receipt.toml"))
 }
 
-/// Digest of a spec's meaning.
-pub fn spec_digest(spec: &SpecFile) -> String {
-    // Spell out the candidates' defaults so that writing them or not is the
-    // same meaning.
+/// A spec's meaning: the parsed spec with the candidates' defaults spelled
+/// out, so that writing them or not is the same meaning.
+pub fn canonical_spec(spec: &SpecFile) -> SpecFile {
     let mut normal = spec.clone();
     for candidate in &mut normal.candidates {
         if candidate.family != crate::spec::FamilyName::NearestNeighbors {
@@ -87,7 +86,12 @@ pub fn spec_digest(spec: &SpecFile) -> String {
             sim.noise = None;
         }
     }
-    let canonical = serde_json::to_vec(&normal).expect("specs always serialise");
+    normal
+}
+
+/// Digest of a spec's meaning.
+pub fn spec_digest(spec: &SpecFile) -> String {
+    let canonical = serde_json::to_vec(&canonical_spec(spec)).expect("specs always serialise");
     blake3::hash(&canonical).to_hex().to_string()
 }
 

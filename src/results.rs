@@ -43,6 +43,8 @@ pub struct Inputs {
     /// blake3 of the spec's meaning (see `receipt::spec_digest`).
     pub spec: String,
     pub templates: String,
+    /// blake3 of the test set and fold assignment (see `receipt::folds_digest`).
+    pub folds: String,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -116,6 +118,63 @@ pub struct FinalFit {
         skip_serializing_if = "Option::is_none"
     )]
     pub coefficients: Option<Vec<(String, f64)>>,
+    /// The final fit beside the data, for the report's data figure.
+    pub predictions: Predictions,
+}
+
+/// Observed and predicted target values of the final fit (the chosen setting
+/// refitted on all non-test rows), at the training rows and at the locked
+/// test rows. At most [`PREDICTION_POINTS`] rows of each set are kept, evenly
+/// spaced in row order, so `results.json` stays small.
+#[derive(Debug, Clone, Serialize)]
+pub struct Predictions {
+    /// The one feature the chosen fit uses; absent when it uses several (the
+    /// report then plots observed against predicted).
+    pub feature: Option<String>,
+    pub train: PredictionSet,
+    /// Absent without a locked test set.
+    pub test: Option<PredictionSet>,
+}
+
+#[derive(Debug, Clone, Serialize)]
+pub struct PredictionSet {
+    /// Rows in the set; the arrays hold at most [`PREDICTION_POINTS`] of them.
+    pub rows: usize,
+    /// Values of `feature`, when there is one feature.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub x: Option<Vec<f64>>,
+    pub observed: Vec<f64>,
+    pub predicted: Vec<f64>,
+}
+
+/// Most rows of one set kept in [`Predictions`].
+pub const PREDICTION_POINTS: usize = 1000;
+
+/// Positions of at most `cap` of `len` items, evenly spaced, first included.
+fn thin(len: usize, cap: usize) -> Vec<usize> {
+    if len <= cap {
+        (0..len).collect()
+    } else {
+        (0..cap).map(|i| i * len / cap).collect()
+    }
+}
+
+fn prediction_set(
+    plan: &ExperimentPlan,
+    feature: Option<&str>,
+    rows: &[usize],
+    predicted: &[f64],
+) -> PredictionSet {
+    let keep = thin(rows.len(), PREDICTION_POINTS);
+    PredictionSet {
+        rows: rows.len(),
+        x: feature.map(|name| {
+            let column = plan.table.column(name);
+            keep.iter().map(|&i| column[rows[i]]).collect()
+        }),
+        observed: keep.iter().map(|&i| plan.target[rows[i]]).collect(),
+        predicted: keep.iter().map(|&i| predicted[i]).collect(),
+    }
 }
 
 fn ordered_map<S: Serializer>(
@@ -197,6 +256,17 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
     };
     let (c, s) = locate[chosen];
     let chosen_fit = &fits[c].full[s];
+    let chosen_features = plan.candidates[c].family.features();
+    let feature = match chosen_features {
+        [one] => Some(one.as_str()),
+        _ => None,
+    };
+    let predictions = Predictions {
+        feature: feature.map(str::to_string),
+        train: prediction_set(plan, feature, &assignment.train, &chosen_fit.train_pred),
+        test: (!assignment.test.is_empty())
+            .then(|| prediction_set(plan, feature, &assignment.test, &chosen_fit.eval_pred)),
+    };
     let test_score =
         (!assignment.test.is_empty()).then(|| metric.score(&test_target, &chosen_fit.eval_pred));
 
@@ -213,6 +283,7 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
             tool: crate::receipt::tool_version(),
             spec: crate::receipt::spec_digest(spec),
             templates: crate::report::templates_digest(),
+            folds: crate::receipt::folds_digest(plan),
         },
         metric,
         rule: spec.choose.rule,
@@ -252,6 +323,7 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
             test_score,
             train_score: scores[chosen].train_score,
             coefficients: chosen_fit.coefficients.clone(),
+            predictions,
         },
         candidates,
         simulation: None,
@@ -270,4 +342,16 @@ pub fn to_json(results: &Results) -> String {
     let mut text = serde_json::to_string_pretty(results).expect("results always serialise");
     text.push('\n');
     text
+}
+
+#[cfg(test)]
+mod tests {
+    use super::thin;
+
+    #[test]
+    fn thinning_keeps_evenly_spaced_rows() {
+        assert_eq!(thin(3, 5), vec![0, 1, 2]);
+        assert_eq!(thin(10, 4), vec![0, 2, 5, 7]);
+        assert_eq!(thin(2500, 1000).len(), 1000);
+    }
 }

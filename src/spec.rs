@@ -745,12 +745,6 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
         families.push(candidate);
     }
 
-    if spec.report.formats.contains(&ReportFormat::Html) {
-        return Err(invalid(
-            "report.formats",
-            "\"html\" reports are not built yet; use [\"markdown\"]".into(),
-        ));
-    }
     Ok(families)
 }
 
@@ -1072,6 +1066,27 @@ candidate:
             .to_string();
         assert!(err.contains("candidate[1] (polynomial).degree"), "{err}");
         assert!(err.contains("degree = 0"), "{err}");
+    }
+
+    #[test]
+    fn thin_plate_settings_are_checked_before_fitting() {
+        let two = MINIMAL.replace(r#"features = ["x"]"#, r#"features = ["x", "z"]"#);
+        let with = |settings: &str| {
+            let text = two.replace("family = \"polynomial\"\ndegree = [1, 2]", settings);
+            let spec = parse(Path::new("s.toml"), &text).unwrap();
+            validate(Path::new("s.toml"), &spec).map_err(|e| e.to_string())
+        };
+        with("family = \"thin-plate\"\ndf = [3.5, 8]\nknots = 50\nexact_limit = 100").unwrap();
+        let err = with("family = \"thin-plate\"\ndf = [5, 3]").unwrap_err();
+        assert!(err.contains("candidate[1] (thin-plate).df"), "{err}");
+        assert!(err.contains("df = 3 must be above 3"), "{err}");
+        let err = with("family = \"thin-plate\"\npenalty = [1]\nknots = 3").unwrap_err();
+        assert!(
+            err.contains(".knots: knots = 3 is outside [4, 5000]"),
+            "{err}"
+        );
+        let err = with("family = \"thin-plate\"\npenalty = [1]\nexact_limit = 5001").unwrap_err();
+        assert!(err.contains(".exact_limit: exact_limit = 5001"), "{err}");
     }
 
     #[test]

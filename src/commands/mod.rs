@@ -1,6 +1,7 @@
 //! What each command does, from parsed arguments to files and printed text.
 //! Shared here: the evaluation pipeline that `run` and `verify` both use.
 
+mod compare;
 mod inspect;
 mod run;
 mod simulate;
@@ -27,6 +28,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Verify(args) => verify::verify(&args),
         Command::Plan(args) => inspect::plan(&args),
         Command::Folds(args) => inspect::folds(&args),
+        Command::Compare(args) => compare::compare(&args),
     }
 }
 
@@ -119,7 +121,12 @@ fn finish(
     // The same spec in YAML gives the same bytes, so the command names the
     // TOML form; the report says a YAML twin works alike.
     let regenerate = format!("heldout verify {stem}.toml\nheldout run {stem}.toml");
-    let outputs = report::render_outputs(&results, &plan.spec.spec.report.formats, &regenerate)
+    let spec_text = report::spec_as_read(&plan.spec.spec);
+    let inputs = report::ReportInputs {
+        regenerate: &regenerate,
+        spec_text: &spec_text,
+    };
+    let outputs = report::render_outputs(&results, &plan.spec.spec.report.formats, &inputs)
         .context("cannot render the reports")?;
     let receipt = receipt::build(&plan, &results, &outputs);
     Ok(Evaluation {

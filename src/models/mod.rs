@@ -12,9 +12,9 @@ pub mod linear;
 pub mod nearest_neighbors;
 #[cfg(test)]
 mod penalised_reference;
-mod pending;
 pub mod polynomial;
 pub mod ridge;
+pub mod smoothing_spline;
 pub mod spline;
 mod standardise;
 pub mod thin_plate;
@@ -185,9 +185,9 @@ pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
             knots: *knots,
             exact_limit: *exact_limit,
         }),
-        FamilySpec::SmoothingSpline { .. } => Box::new(pending::Pending {
-            family: spec.family_name(),
+        FamilySpec::SmoothingSpline { grid, .. } => Box::new(smoothing_spline::SmoothingSpline {
             features,
+            grid: grid.clone(),
         }),
     }
 }

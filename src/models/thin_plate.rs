@@ -22,8 +22,8 @@
 //! penalty to weights s/(s + λ) on fixed directions, so effective df (the
 //! smoother's trace) is 3 + Σ s/(s + λ), strictly decreasing in λ. A `df`
 //! grid is turned into penalties by solving that equation for log λ:
-//! bracketing by doubling steps from the median strength, then Newton steps
-//! kept inside the bracket, to 10⁻¹² in log λ (λ to 10⁻¹² relative).
+//! bracketing by doubling steps from the mean strength, bisection to 10⁻¹² in
+//! log λ (λ to 10⁻¹² relative), then one secant step inside the bracket.
 //!
 //! Products of dense matrices are written out here in a fixed order rather
 //! than left to nalgebra's `*`, whose large products may use fused
@@ -75,14 +75,24 @@ fn kernel(rows: &[[f64; 2]], centres: &[[f64; 2]]) -> DMatrix<f64> {
 }
 
 /// A·B summed over the inner index in ascending order, without fused
-/// multiply-add.
+/// multiply-add. Rows go in chunks that stay in cache while every column of
+/// B passes over them; the order of each sum is unchanged.
 fn product(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
-    let mut out = DMatrix::zeros(a.nrows(), b.ncols());
-    for (j, mut column) in out.column_iter_mut().enumerate() {
-        for (k, a_column) in a.column_iter().enumerate() {
-            let factor = b[(k, j)];
-            for (o, x) in column.iter_mut().zip(a_column.iter()) {
-                *o += x * factor;
+    const CHUNK: usize = 256;
+    let (rows, inner, cols) = (a.nrows(), a.ncols(), b.ncols());
+    let mut out = DMatrix::zeros(rows, cols);
+    let a_data = a.as_slice();
+    let out_data = out.as_mut_slice();
+    for start in (0..rows).step_by(CHUNK) {
+        let end = (start + CHUNK).min(rows);
+        for j in 0..cols {
+            let out_column = &mut out_data[j * rows + start..j * rows + end];
+            for k in 0..inner {
+                let factor = b[(k, j)];
+                let a_column = &a_data[k * rows + start..k * rows + end];
+                for (o, x) in out_column.iter_mut().zip(a_column) {
+                    *o += x * factor;
+                }
             }
         }
     }
@@ -103,68 +113,66 @@ fn trace(strengths: &[f64], penalty: f64) -> f64 {
     3.0 + strengths.iter().map(|&s| weight(s, penalty)).sum::<f64>()
 }
 
-/// The penalty whose effective df is `df`, or `None` when df is outside
-/// (3, 3 + number of visible directions).
-pub(crate) fn penalty_for_df(strengths: &[f64], df: f64) -> Option<f64> {
-    let mut visible: Vec<f64> = strengths.iter().copied().filter(|&s| s > 0.0).collect();
-    let target = df - 3.0;
-    if !(target > 0.0 && target < visible.len() as f64) {
+/// The penalty at which `trace` (decreasing in the penalty) equals `df`, or
+/// `None` when df is outside (3, 3 + visible). Searched on log λ: doubling
+/// steps from log(typical) until the root is bracketed, bisection to 10⁻¹²,
+/// then one secant step inside the final bracket.
+fn penalty_for_df(
+    trace: impl Fn(f64) -> f64,
+    df: f64,
+    visible: usize,
+    typical: f64,
+) -> Option<f64> {
+    if !(df > 3.0 && df < 3.0 + visible as f64) {
         return None;
     }
-    visible.sort_by(f64::total_cmp);
-    // Excess df at log-penalty s, and its derivative −Σ t(1 − t).
-    let excess = |s: f64| -> (f64, f64) {
-        let penalty = libm::exp(s);
-        let (mut sum, mut slope) = (0.0, 0.0);
-        for &strength in strengths {
-            let t = weight(strength, penalty);
-            sum += t;
-            slope -= t * (1.0 - t);
-        }
-        (sum - target, slope)
+    let excess = |s: f64| trace(libm::exp(s)) - df;
+    let start = if typical > 0.0 {
+        libm::log(typical)
+    } else {
+        0.0
     };
-    let start = libm::log(visible[visible.len() / 2]);
     let (mut lo, mut hi) = (start, start);
     let mut step = 1.0;
-    while excess(lo).0 <= 0.0 {
+    let mut g_lo = excess(lo);
+    while g_lo <= 0.0 {
         lo -= step;
         step *= 2.0;
+        g_lo = excess(lo);
         if step > 1e5 {
             return None;
         }
     }
     step = 1.0;
-    while excess(hi).0 >= 0.0 {
+    let mut g_hi = excess(hi);
+    while g_hi >= 0.0 {
         hi += step;
         step *= 2.0;
+        g_hi = excess(hi);
         if step > 1e5 {
             return None;
         }
     }
-    let mut s = 0.5 * (lo + hi);
-    for _ in 0..200 {
-        let (g, slope) = excess(s);
-        if g == 0.0 {
+    if g_lo.is_nan() || g_hi.is_nan() {
+        return None;
+    }
+    while hi - lo > 1e-12 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
             break;
         }
+        let g = excess(mid);
         if g > 0.0 {
-            lo = s;
+            (lo, g_lo) = (mid, g);
+        } else if g < 0.0 {
+            (hi, g_hi) = (mid, g);
+        } else if g == 0.0 {
+            return Some(libm::exp(mid));
         } else {
-            hi = s;
-        }
-        let newton = s - g / slope;
-        let next = if newton > lo && newton < hi {
-            newton
-        } else {
-            0.5 * (lo + hi)
-        };
-        let moved = (next - s).abs();
-        s = next;
-        if moved <= 1e-12 || hi - lo <= 1e-12 {
-            break;
+            return None;
         }
     }
-    Some(libm::exp(s))
+    Some(libm::exp(lo + (hi - lo) * g_lo / (g_lo - g_hi)))
 }
 
 /// Standardisation of the two features on the training fold.
@@ -241,10 +249,27 @@ enum Path {
 }
 
 impl Path {
-    fn strengths(&self) -> &[f64] {
+    /// Effective df for `penalty`.
+    fn trace(&self, penalty: f64) -> f64 {
         match self {
-            Path::Exact { path, .. } => &path.strengths,
-            Path::LowRank(path) => &path.strengths,
+            Path::Exact { path, .. } => path.trace(penalty),
+            Path::LowRank(path) => path.trace(penalty),
+        }
+    }
+
+    /// Directions the data see (the largest effective df is 3 + this).
+    fn visible(&self) -> usize {
+        match self {
+            Path::Exact { path, .. } => path.visible(),
+            Path::LowRank(path) => path.visible(),
+        }
+    }
+
+    /// Where the search for a df's penalty starts.
+    fn typical_strength(&self) -> f64 {
+        match self {
+            Path::Exact { path, .. } => path.typical_strength(),
+            Path::LowRank(path) => path.typical_strength(),
         }
     }
 
@@ -321,8 +346,9 @@ impl ThinPlate {
             SmootherGrid::Df(values) => values
                 .iter()
                 .map(|&df| {
-                    penalty_for_df(path.strengths(), df).ok_or_else(|| {
-                        let visible = path.strengths().iter().filter(|&&s| s > 0.0).count();
+                    let visible = path.visible();
+                    let trace = |penalty| path.trace(penalty);
+                    penalty_for_df(trace, df, visible, path.typical_strength()).ok_or_else(|| {
                         FitError::DfOutOfReach {
                             setting: Setting::real("df", df).to_string(),
                             lowest: 3.0,
@@ -389,7 +415,7 @@ impl ThinPlate {
                         Vec::new()
                     },
                     eval_pred: surface.predict(&eval_kernel, &eval_points),
-                    effective_df: trace(path.strengths(), penalty),
+                    effective_df: path.trace(penalty),
                     coefficients: None,
                 };
                 let leverages = if with_leverages {

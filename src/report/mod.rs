@@ -1,34 +1,77 @@
-//! Reports rendered from results: Markdown through minijinja templates, and a
-//! short table for the terminal. Renderers are pure (`&Results` → `String`);
-//! `output` owns the writing.
+//! Reports rendered from results: Markdown and HTML through minijinja
+//! templates, SVG figures, and a short table for the terminal. Renderers are
+//! pure (`&Results` → text); `output` owns the writing.
+//!
+//! Both reports read one context ([`context`]), so they say the same things.
 
+mod context;
+pub mod figures;
+pub mod html;
 pub mod markdown;
 pub mod terminal;
 
 use crate::results::{self, Results};
 use crate::spec::{Metric, ReportFormat};
 
-/// Digest of every template that shapes an output.
+pub use context::ReportInputs;
+
+/// Every template that shapes an output, by name, in a fixed order.
+pub const TEMPLATES: [(&str, &str); 3] = [
+    ("report.md", markdown::TEMPLATE),
+    ("report.html", html::TEMPLATE),
+    ("report.css", html::STYLE),
+];
+
+/// Digest of every template that shapes an output (names and texts).
 pub fn templates_digest() -> String {
-    blake3::hash(markdown::TEMPLATE.as_bytes())
-        .to_hex()
-        .to_string()
+    let mut hasher = blake3::Hasher::new();
+    for (name, text) in TEMPLATES {
+        for part in [name, text] {
+            hasher.update(&(part.len() as u64).to_le_bytes());
+            hasher.update(part.as_bytes());
+        }
+    }
+    hasher.finalize().to_hex().to_string()
+}
+
+/// Why a report could not be rendered.
+#[derive(Debug, thiserror::Error)]
+pub enum ReportError {
+    #[error("cannot render a report template: {0:#}")]
+    Template(#[from] minijinja::Error),
+    #[error(transparent)]
+    Figure(#[from] figures::FigureError),
 }
 
 /// Every output file of a run, as (name inside the output folder, bytes), in
-/// a fixed order: `results.json` first, then the reports asked for.
+/// a fixed order: `results.json`, then (when any report is asked for) the
+/// figures as `figures/*.svg`, then the reports asked for.
 pub fn render_outputs(
     results: &Results,
     formats: &[ReportFormat],
-    regenerate: &str,
-) -> Result<Vec<(String, Vec<u8>)>, minijinja::Error> {
+    inputs: &ReportInputs<'_>,
+) -> Result<Vec<(String, Vec<u8>)>, ReportError> {
     let mut outputs = vec![(
         "results.json".to_string(),
         results::to_json(results).into_bytes(),
     )];
+    if formats.is_empty() {
+        return Ok(outputs);
+    }
+    let figures = figures::render_all(results)?;
+    for figure in &figures {
+        outputs.push((
+            format!("figures/{}", figure.file),
+            figure.svg.clone().into_bytes(),
+        ));
+    }
     if formats.contains(&ReportFormat::Markdown) {
-        let text = markdown::render(results, &markdown::ReportInputs { regenerate })?;
+        let text = markdown::render(results, inputs, &figures)?;
         outputs.push(("report.md".to_string(), text.into_bytes()));
+    }
+    if formats.contains(&ReportFormat::Html) {
+        let text = html::render(results, inputs, &figures)?;
+        outputs.push(("report.html".to_string(), text.into_bytes()));
     }
     Ok(outputs)
 }
@@ -52,6 +95,25 @@ pub fn metric_label(metric: Metric) -> &'static str {
         Metric::Rmse => "root mean squared error (rmse)",
         Metric::Mae => "mean absolute error (mae)",
         Metric::R2 => "coefficient of determination (r2)",
+    }
+}
+
+/// The spec as heldout read it, for the report: its meaning (the parsed spec
+/// with defaults spelled out, as digested in the receipt) written as TOML.
+/// Comments and layout are not kept, so a spec and its YAML twin give the
+/// same report, and editing a comment does not change any output.
+pub fn spec_as_read(spec: &crate::spec::SpecFile) -> String {
+    let canonical = crate::receipt::canonical_spec(spec);
+    toml::to_string(&canonical).unwrap_or_else(|_| {
+        serde_json::to_string_pretty(&canonical).expect("specs always serialise") + "\n"
+    })
+}
+
+/// The rule in words.
+pub fn rule_words(rule: crate::spec::Rule) -> &'static str {
+    match rule {
+        crate::spec::Rule::OneSe => "one-standard-error rule",
+        crate::spec::Rule::Lowest => "lowest cross-validated score",
     }
 }
 
@@ -100,6 +162,16 @@ pub fn format_number(value: f64) -> String {
     }
 }
 
+/// Effective degrees of freedom: whole numbers without decimals (a degree-3
+/// polynomial has 4), others as [`format_number`].
+pub fn format_df(value: f64) -> String {
+    if value.fract() == 0.0 && value.abs() < 1e15 {
+        format!("{value:.0}")
+    } else {
+        format_number(value)
+    }
+}
+
 /// A number with every digit that round-trips: plain decimals for ordinary
 /// magnitudes, scientific notation for very large or small ones.
 pub fn format_exact(value: f64) -> String {
@@ -141,6 +213,9 @@ mod tests {
         assert_eq!(format_number(123456.0), "123456");
         assert_eq!(format_number(1.5e-7), "1.500e-7");
         assert_eq!(format_number(0.0), "0");
+        assert_eq!(format_df(4.0), "4");
+        assert_eq!(format_df(240.0), "240");
+        assert_eq!(format_df(4.25), "4.250");
     }
 
     #[test]

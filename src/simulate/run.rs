@@ -389,7 +389,7 @@ pub fn run_replicate(
         let fail = |fold: String, source: FitError| FitFailure {
             candidate: candidate.stem.clone(),
             fold: place(fold),
-            source,
+            cause: source,
         };
         let mut tally = |fitted: &Fitted| {
             if fitted.reused {

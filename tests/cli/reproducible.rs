@@ -280,7 +280,7 @@ choose:
   metric: mse
   rule: one-se
 report:
-  formats: [markdown]
+  formats: [markdown, html]
 "#;
 
 #[test]

@@ -1,3 +1,6 @@
+//! Tests of the `spline` family: the basis against the definition of a natural
+//! spline, identities of least squares, the scipy/numpy fixture, and errors.
+
 use super::*;
 
 /// |a − b| ≤ tol · max(|b|, 1).

@@ -19,28 +19,33 @@
 //!
 //! The eigenvectors are needed only for leverages and for λ = 0. Otherwise
 //! ZᵀEZ is reduced to tridiagonal form T = QᵀZᵀEZQ once ([`TridiagonalForm`]):
-//! the trace needs only T's eigenvalues, and c = ZQ(T + λI)⁻¹QᵀZᵀy costs
-//! O(n²) per penalty, after a reduction with about a quarter of the work.
+//! the effective df is 3 + (n − 3) − λ tr((T + λI)⁻¹), O(n) per penalty, and
+//! c = ZQ(T + λI)⁻¹QᵀZᵀy costs O(n²), after a reduction with a fraction of
+//! the work of the eigen-decomposition. The visible directions are counted
+//! by a Sturm sequence at the same threshold.
 
 use nalgebra::{DMatrix, SymmetricEigen};
 
 use super::plane::PlaneQr;
 use super::tridiagonal::TridiagonalForm;
-use super::{kernel, weight, Surface};
+use super::{kernel, trace, weight, Surface};
 use crate::error::FitError;
 
 /// How the reduced kernel ZᵀEZ is held.
 #[derive(Debug)]
 enum Spectral {
-    /// Eigenvectors lifted to W = ZV, with α = Wᵀy.
+    /// Eigenvalues e (invisible directions set to 0), eigenvectors lifted
+    /// to W = ZV, and α = Wᵀy.
     Eigen {
+        strengths: Vec<f64>,
         directions: DMatrix<f64>,
         alpha: Vec<f64>,
     },
-    /// Tridiagonal form, with QᵀZᵀy.
+    /// Tridiagonal form, QᵀZᵀy, and the number of visible directions.
     Tridiagonal {
         form: TridiagonalForm,
         rotated: Vec<f64>,
+        visible: usize,
     },
 }
 
@@ -50,8 +55,6 @@ pub(super) struct ExactPath {
     /// E: η between every pair of training points (the centres).
     pub(super) kernel: DMatrix<f64>,
     plane: PlaneQr,
-    /// e, with the invisible directions set to 0.
-    pub(super) strengths: Vec<f64>,
     spectral: Spectral,
     y: Vec<f64>,
 }
@@ -72,7 +75,9 @@ impl ExactPath {
         let kernel = kernel(points, points);
         let reduced = plane.reduce(&kernel);
         let dim = reduced.nrows();
-        let (values, spectral) = if eigenvectors {
+        // Directions with e at or below this carry no visible roughness.
+        let threshold = |largest: f64| points.len() as f64 * f64::EPSILON * largest;
+        let spectral = if eigenvectors {
             let (values, vectors) = if dim == 0 {
                 (Vec::new(), DMatrix::zeros(0, 0))
             } else {
@@ -86,30 +91,40 @@ impl ExactPath {
                     eigen.eigenvectors,
                 )
             };
+            let largest = values.iter().fold(0.0_f64, |m, &e: &f64| m.max(e.abs()));
+            let tolerance = threshold(largest);
+            let strengths = values
+                .iter()
+                .map(|&e| if e > tolerance { e } else { 0.0 })
+                .collect();
             let directions = plane.lift(&vectors);
             let alpha = directions
                 .column_iter()
                 .map(|w| w.iter().zip(y).map(|(a, b)| a * b).sum())
                 .collect();
-            (values, Spectral::Eigen { directions, alpha })
+            Spectral::Eigen {
+                strengths,
+                directions,
+                alpha,
+            }
         } else {
             let form = TridiagonalForm::new(reduced);
             let mut projected = y.to_vec();
             plane.apply_qt(&mut projected);
             let mut rotated = projected[3..].to_vec();
             form.apply_qt(&mut rotated);
-            (form.eigenvalues(), Spectral::Tridiagonal { form, rotated })
+            // The smallest positive double keeps an all-zero T's count at 0.
+            let tolerance = threshold(form.norm_bound()).max(f64::MIN_POSITIVE);
+            let visible = dim - form.count_below(tolerance);
+            Spectral::Tridiagonal {
+                form,
+                rotated,
+                visible,
+            }
         };
-        let largest = values.iter().fold(0.0_f64, |m, &e: &f64| m.max(e.abs()));
-        let tolerance = points.len() as f64 * f64::EPSILON * largest;
-        let strengths = values
-            .iter()
-            .map(|&e| if e > tolerance { e } else { 0.0 })
-            .collect();
         Ok(ExactPath {
             kernel,
             plane,
-            strengths,
             spectral,
             y: y.to_vec(),
         })
@@ -119,17 +134,21 @@ impl ExactPath {
     fn kernel_coefficients(&self, penalty: f64) -> Vec<f64> {
         let n = self.y.len();
         match &self.spectral {
-            Spectral::Eigen { directions, alpha } => {
+            Spectral::Eigen {
+                strengths,
+                directions,
+                alpha,
+            } => {
                 let mut delta = vec![0.0; n];
                 for (k, w) in directions.column_iter().enumerate() {
-                    let factor = coefficient_factor(self.strengths[k], penalty) * alpha[k];
+                    let factor = coefficient_factor(strengths[k], penalty) * alpha[k];
                     for (c, wi) in delta.iter_mut().zip(w.iter()) {
                         *c += wi * factor;
                     }
                 }
                 delta
             }
-            Spectral::Tridiagonal { form, rotated } => {
+            Spectral::Tridiagonal { form, rotated, .. } => {
                 debug_assert!(penalty > 0.0, "a penalty of 0 needs the eigenvectors");
                 let mut gamma = form.solve_shifted(penalty, rotated);
                 form.apply_q(&mut gamma);
@@ -139,6 +158,39 @@ impl ExactPath {
                 delta
             }
         }
+    }
+
+    /// Effective df for `penalty`: 3 + Σ e/(e + λ).
+    pub(super) fn trace(&self, penalty: f64) -> f64 {
+        match &self.spectral {
+            Spectral::Eigen { strengths, .. } => trace(strengths, penalty),
+            // λ = 0 never reaches this route's solves; its trace is the limit.
+            Spectral::Tridiagonal { visible, .. } if penalty <= 0.0 => 3.0 + *visible as f64,
+            Spectral::Tridiagonal { form, .. } => {
+                let m = form.diagonal.len() as f64;
+                3.0 + m - penalty * form.inverse_trace(penalty)
+            }
+        }
+    }
+
+    /// Directions the data see: the largest effective df is 3 + this.
+    pub(super) fn visible(&self) -> usize {
+        match &self.spectral {
+            Spectral::Eigen { strengths, .. } => strengths.iter().filter(|&&s| s > 0.0).count(),
+            Spectral::Tridiagonal { visible, .. } => *visible,
+        }
+    }
+
+    /// A typical strength (the mean eigenvalue), where the search for a
+    /// df's penalty starts.
+    pub(super) fn typical_strength(&self) -> f64 {
+        let (total, count) = match &self.spectral {
+            Spectral::Eigen { strengths, .. } => (strengths.iter().sum::<f64>(), strengths.len()),
+            Spectral::Tridiagonal { form, .. } => {
+                (form.diagonal.iter().sum::<f64>(), form.diagonal.len())
+            }
+        };
+        total / count.max(1) as f64
     }
 
     /// The fitted surface for `penalty` (centres: the training points).
@@ -158,7 +210,12 @@ impl ExactPath {
 
     /// Hat-matrix diagonal for `penalty`; `None` unless built with eigenvectors.
     pub(super) fn leverages(&self, penalty: f64) -> Option<Vec<f64>> {
-        let Spectral::Eigen { directions, .. } = &self.spectral else {
+        let Spectral::Eigen {
+            strengths,
+            directions,
+            ..
+        } = &self.spectral
+        else {
             return None;
         };
         let basis = self.plane.plane_basis();
@@ -167,7 +224,7 @@ impl ExactPath {
             .map(|row| row.iter().map(|q| q * q).sum())
             .collect();
         for (k, w) in directions.column_iter().enumerate() {
-            let t = weight(self.strengths[k], penalty);
+            let t = weight(strengths[k], penalty);
             for (h, wi) in leverages.iter_mut().zip(w.iter()) {
                 *h += wi * wi * t;
             }

@@ -27,7 +27,7 @@ use std::collections::BTreeSet;
 use nalgebra::{DMatrix, SymmetricEigen, SVD};
 
 use super::plane::{solve_upper, PlaneQr};
-use super::{kernel, product, weight, Surface};
+use super::{kernel, product, trace, weight, Surface};
 use crate::error::FitError;
 
 /// Context string of the knot priority (blake3 key derivation).
@@ -79,7 +79,7 @@ pub(super) struct LowRankPath {
     rotated: Vec<f64>,
     v: DMatrix<f64>,
     /// σ², with the invisible directions set to 0.
-    pub(super) strengths: Vec<f64>,
+    strengths: Vec<f64>,
     /// [Q₁, Q₂U], kept only when leverages are wanted.
     leverage_basis: Option<DMatrix<f64>>,
 }
@@ -200,6 +200,21 @@ impl LowRankPath {
             strengths,
             leverage_basis,
         })
+    }
+
+    /// Effective df for `penalty`: 3 + Σ σ²/(σ² + λ).
+    pub(super) fn trace(&self, penalty: f64) -> f64 {
+        trace(&self.strengths, penalty)
+    }
+
+    /// Directions the data see: the largest effective df is 3 + this.
+    pub(super) fn visible(&self) -> usize {
+        self.strengths.iter().filter(|&&s| s > 0.0).count()
+    }
+
+    /// The mean of σ², where the search for a df's penalty starts.
+    pub(super) fn typical_strength(&self) -> f64 {
+        self.strengths.iter().sum::<f64>() / self.strengths.len().max(1) as f64
     }
 
     /// The fitted surface for `penalty` (centres: the knots).

@@ -1,3 +1,7 @@
+//! Tests of the `thin-plate` family: the penalty convention, the limits in the
+//! penalty, df round trips, the leave-one-out shortcut, exact against low-rank,
+//! the knot rule, and degenerate point sets.
+
 use super::*;
 
 /// |a − b| ≤ tol · max(|b|, 1).
@@ -409,6 +413,9 @@ fn repeated_points_are_smoothed_and_interpolated_at_their_mean() {
     assert_close("df", fit.effective_df, 15.0, 1e-10);
 }
 
+/// Wall-clock times of whole-grid fits (exact up to 2000 rows, then 300
+/// knots); prints only. Run by hand:
+/// `cargo test --lib thin_plate::tests::timings -- --ignored --nocapture`.
 #[test]
 #[ignore = "timing report, run by hand with --ignored --nocapture"]
 fn timings() {

@@ -1,0 +1,483 @@
+//! The report's figures, drawn as SVG with plotters' SVG backend and
+//! deterministic to the byte: coordinates are whole pixels, ticks and labels
+//! come from [`axis`], text widths from plotters' built-in estimate (no system
+//! fonts are read), and every text is XML-escaped by the backend.
+//!
+//! Figures are pure: `&Results` → [`Figure`]. The report's one output writer
+//! stores them as `figures/<file>`; the HTML report inlines the same bytes.
+
+pub mod axis;
+mod fit;
+mod flexibility;
+mod folds;
+pub mod palette;
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+use crate::results::{CandidateResult, Results};
+use palette::{INK, MUTED, PAPER};
+
+/// One figure of the report.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Figure {
+    /// File name inside `figures/`.
+    pub file: String,
+    /// A short heading.
+    pub title: String,
+    /// What the figure shows and how to read it (plain text).
+    pub caption: String,
+    /// Text alternative for readers who cannot see it.
+    pub alt: String,
+    /// The SVG document.
+    pub svg: String,
+}
+
+/// A figure could not be drawn.
+#[derive(Debug, thiserror::Error)]
+#[error("cannot draw the figure {figure}: {message}")]
+pub struct FigureError {
+    pub figure: &'static str,
+    pub message: String,
+}
+
+/// Every figure of a report, in reading order.
+pub fn render_all(results: &Results) -> Result<Vec<Figure>, FigureError> {
+    let mut figures = vec![flexibility::render(results)?, folds::render(results)?];
+    figures.push(fit::render(results)?);
+    // Simulation specs add their figures here (squared bias, variance and
+    // noise against flexibility), after the data figure, drawn from the
+    // results' simulation section with the same helpers and palette.
+    Ok(figures)
+}
+
+/// Font stack of every text in a figure. Widths are estimated by plotters
+/// from the character count, never measured from an installed font.
+pub const FONT: &str = "Cantarell, Ubuntu, Segoe UI, Noto Sans, DejaVu Sans, sans-serif";
+
+/// Text sizes as plotters takes them: the SVG gets size ÷ 1.24 px, and these
+/// give whole or half pixels (12, 12.5, 14) without rounding noise.
+pub const TEXT_SMALL: f64 = 14.88;
+pub const TEXT_BODY: f64 = 15.5;
+pub const TEXT_STRONG: f64 = 17.36;
+
+/// The drawing area of a whole figure.
+pub type Root<'a> = DrawingArea<SVGBackend<'a>, Shift>;
+/// What a drawing step returns.
+pub type Drawn = Result<(), DrawingAreaErrorKind<std::io::Error>>;
+
+/// Draws a `width` × `height` figure with `draw` and returns the SVG text.
+pub fn draw_svg(
+    figure: &'static str,
+    size: (u32, u32),
+    draw: impl FnOnce(&Root<'_>) -> Drawn,
+) -> Result<String, FigureError> {
+    let fail = |error: &dyn std::fmt::Display| FigureError {
+        figure,
+        message: error.to_string(),
+    };
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        root.fill(&PAPER).map_err(|e| fail(&e))?;
+        draw(&root).map_err(|e| fail(&e))?;
+        root.present().map_err(|e| fail(&e))?;
+    }
+    Ok(svg)
+}
+
+/// A text style of the figures.
+pub fn text<'a>(size: f64, colour: RGBColor) -> TextStyle<'a> {
+    TextStyle {
+        font: (FONT, size).into_font(),
+        color: colour.to_backend_color(),
+        pos: Pos::new(HPos::Left, VPos::Top),
+    }
+}
+
+/// Draws `label` at pixel `at`, anchored as given.
+pub fn label(
+    root: &Root<'_>,
+    label: &str,
+    at: (i32, i32),
+    style: &TextStyle<'static>,
+    h: HPos,
+    v: VPos,
+) -> Drawn {
+    root.draw(&Text::new(
+        label.to_string(),
+        at,
+        style.clone().pos(Pos::new(h, v)),
+    ))
+}
+
+/// Estimated width in pixels of `text` at plotters size `size`, matching
+/// plotters' own estimate for SVG (0.7 em per character).
+pub fn text_width(text: &str, size: f64) -> i32 {
+    let em = size / 1.24 / 1.24;
+    libm::round(em * 0.7 * text.chars().count() as f64) as i32
+}
+
+/// Marker shapes; each family gets its own, so colour is never the only cue.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Marker {
+    Circle,
+    Square,
+    Diamond,
+    TriangleUp,
+    TriangleDown,
+    Plus,
+}
+
+const MARKERS: [Marker; 6] = [
+    Marker::Circle,
+    Marker::Square,
+    Marker::Diamond,
+    Marker::TriangleUp,
+    Marker::TriangleDown,
+    Marker::Plus,
+];
+
+impl Marker {
+    /// The corners of the shape around `(x, y)` for size `r` (whole pixels).
+    fn outline(self, (x, y): (i32, i32), r: i32) -> Vec<(i32, i32)> {
+        match self {
+            Marker::Circle => Vec::new(),
+            Marker::Square => {
+                let s = (r * 7 + 4) / 8;
+                vec![
+                    (x - s, y - s),
+                    (x + s, y - s),
+                    (x + s, y + s),
+                    (x - s, y + s),
+                ]
+            }
+            Marker::Diamond => {
+                let d = (r * 5 + 2) / 4;
+                vec![(x, y - d), (x + d, y), (x, y + d), (x - d, y)]
+            }
+            Marker::TriangleUp => {
+                let d = r + 1;
+                vec![
+                    (x, y - d),
+                    (x + d, y + (d * 3) / 4),
+                    (x - d, y + (d * 3) / 4),
+                ]
+            }
+            Marker::TriangleDown => {
+                let d = r + 1;
+                vec![
+                    (x, y + d),
+                    (x + d, y - (d * 3) / 4),
+                    (x - d, y - (d * 3) / 4),
+                ]
+            }
+            Marker::Plus => {
+                let (a, w) = (r + 1, (r + 1) / 3);
+                vec![
+                    (x - w, y - a),
+                    (x + w, y - a),
+                    (x + w, y - w),
+                    (x + a, y - w),
+                    (x + a, y + w),
+                    (x + w, y + w),
+                    (x + w, y + a),
+                    (x - w, y + a),
+                    (x - w, y + w),
+                    (x - a, y + w),
+                    (x - a, y - w),
+                    (x - w, y - w),
+                ]
+            }
+        }
+    }
+
+    /// Draws the marker at pixel `at`: filled with `colour`, or hollow (paper
+    /// inside, a `colour` outline).
+    pub fn draw(
+        self,
+        root: &Root<'_>,
+        at: (i32, i32),
+        r: i32,
+        colour: RGBColor,
+        filled: bool,
+    ) -> Drawn {
+        let inside = if filled { colour } else { PAPER };
+        if self == Marker::Circle {
+            root.draw(&Circle::new(at, r, inside.filled()))?;
+            return root.draw(&Circle::new(
+                at,
+                r,
+                colour.stroke_width(if filled { 1 } else { 2 }),
+            ));
+        }
+        let corners = self.outline(at, r);
+        root.draw(&Polygon::new(corners.clone(), inside.filled()))?;
+        let mut closed = corners;
+        closed.push(closed[0]);
+        root.draw(&PathElement::new(
+            closed,
+            colour.stroke_width(if filled { 1 } else { 2 }),
+        ))
+    }
+}
+
+/// Splits a polyline into dashes of `on` pixels separated by `off` pixels.
+pub fn dashes(points: &[(i32, i32)], on: f64, off: f64) -> Vec<Vec<(i32, i32)>> {
+    let mut out = Vec::new();
+    let mut current: Vec<(i32, i32)> = Vec::new();
+    // Distance left in the current dash (drawing) or gap (not drawing).
+    let mut drawing = true;
+    let mut left = on;
+    let round = |v: f64| libm::round(v) as i32;
+    for pair in points.windows(2) {
+        let (x0, y0) = (f64::from(pair[0].0), f64::from(pair[0].1));
+        let (x1, y1) = (f64::from(pair[1].0), f64::from(pair[1].1));
+        let length = ((x1 - x0) * (x1 - x0) + (y1 - y0) * (y1 - y0)).sqrt();
+        let mut at = 0.0;
+        if drawing && current.is_empty() {
+            current.push(pair[0]);
+        }
+        while length - at > left {
+            at += left;
+            let point = (
+                round(x0 + (x1 - x0) * at / length),
+                round(y0 + (y1 - y0) * at / length),
+            );
+            if drawing {
+                current.push(point);
+                out.push(std::mem::take(&mut current));
+                left = off;
+            } else {
+                current.push(point);
+                left = on;
+            }
+            drawing = !drawing;
+        }
+        left -= length - at;
+        if drawing {
+            current.push(pair[1]);
+        }
+    }
+    if current.len() > 1 {
+        out.push(current);
+    }
+    out
+}
+
+/// Draws a polyline, dashed or solid.
+pub fn polyline(root: &Root<'_>, points: &[(i32, i32)], style: ShapeStyle, dashed: bool) -> Drawn {
+    if points.len() < 2 {
+        return Ok(());
+    }
+    if dashed {
+        for dash in dashes(points, 7.0, 5.0) {
+            root.draw(&PathElement::new(dash, style))?;
+        }
+        Ok(())
+    } else {
+        root.draw(&PathElement::new(points.to_vec(), style))
+    }
+}
+
+/// How one family is drawn in every figure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FamilyStyle {
+    /// The first part of the family's ids (family name or label).
+    pub stem: String,
+    pub colour: RGBColor,
+    pub marker: Marker,
+}
+
+/// The stem of a candidate id: `polynomial` of `polynomial/degree=3`.
+pub fn stem(id: &str) -> &str {
+    id.split('/').next().unwrap_or(id)
+}
+
+/// Styles of the families, in the order they first appear in the results.
+pub fn family_styles(candidates: &[CandidateResult]) -> Vec<FamilyStyle> {
+    let mut styles: Vec<FamilyStyle> = Vec::new();
+    for c in candidates {
+        let name = stem(&c.id);
+        if !styles.iter().any(|s| s.stem == name) {
+            let index = styles.len();
+            styles.push(FamilyStyle {
+                stem: name.to_string(),
+                colour: palette::series(index),
+                marker: MARKERS[index % MARKERS.len()],
+            });
+        }
+    }
+    styles
+}
+
+/// The style of the family `id` belongs to.
+pub fn style_of<'s>(styles: &'s [FamilyStyle], id: &str) -> &'s FamilyStyle {
+    let name = stem(id);
+    styles.iter().find(|s| s.stem == name).unwrap_or(&styles[0])
+}
+
+/// What a legend entry shows before its words.
+#[derive(Debug, Clone)]
+pub enum Swatch {
+    Marker {
+        marker: Marker,
+        colour: RGBColor,
+        filled: bool,
+    },
+    Line {
+        colour: RGBColor,
+        dashed: bool,
+        width: u32,
+    },
+    /// A horizontal bar with end caps (an interval).
+    Interval { colour: RGBColor },
+    /// A ring (the kept setting).
+    Ring,
+    /// Words alone, on a row of their own.
+    Note,
+}
+
+/// Lays out legend entries left to right from `(x, y)`, wrapping before
+/// `right`; returns the y of the last row.
+pub fn legend(
+    root: &Root<'_>,
+    entries: &[(Swatch, String)],
+    (x0, y0): (i32, i32),
+    right: i32,
+) -> Result<i32, DrawingAreaErrorKind<std::io::Error>> {
+    let style = text(TEXT_SMALL, INK);
+    let (mut x, mut y) = (x0, y0);
+    for (swatch, words) in entries {
+        let indent = if matches!(swatch, Swatch::Note) {
+            0
+        } else {
+            30
+        };
+        let width = indent + text_width(words, TEXT_SMALL) + 22;
+        let own_row = matches!(swatch, Swatch::Note);
+        if x > x0 && (own_row || x + width > right) {
+            x = x0;
+            y += 22;
+        }
+        match *swatch {
+            Swatch::Marker {
+                marker,
+                colour,
+                filled,
+            } => marker.draw(root, (x + 11, y), 5, colour, filled)?,
+            Swatch::Line {
+                colour,
+                dashed,
+                width,
+            } => polyline(
+                root,
+                &[(x, y), (x + 24, y)],
+                colour.stroke_width(width),
+                dashed,
+            )?,
+            Swatch::Interval { colour } => {
+                let stroke = colour.stroke_width(2);
+                root.draw(&PathElement::new(vec![(x + 2, y), (x + 22, y)], stroke))?;
+                root.draw(&PathElement::new(
+                    vec![(x + 2, y - 4), (x + 2, y + 4)],
+                    stroke,
+                ))?;
+                root.draw(&PathElement::new(
+                    vec![(x + 22, y - 4), (x + 22, y + 4)],
+                    stroke,
+                ))?;
+            }
+            Swatch::Ring => {
+                root.draw(&Circle::new((x + 11, y), 8, INK.stroke_width(2)))?;
+            }
+            Swatch::Note => {}
+        }
+        label(
+            root,
+            words,
+            (x + indent, y),
+            &style,
+            HPos::Left,
+            VPos::Center,
+        )?;
+        x += width;
+    }
+    Ok(y)
+}
+
+/// The words of a metric on an axis.
+pub fn metric_axis_words(results: &Results) -> String {
+    let words = crate::report::metric_label(results.metric);
+    if results.metric.higher_is_better() {
+        format!("{words}, higher is better")
+    } else {
+        format!("{words}, lower is better")
+    }
+}
+
+/// A mesh (grid, axes, tick labels, axis words) in the house style.
+pub fn style_mesh<DB: DrawingBackend>(
+    mesh: &mut plotters::chart::MeshStyle<'_, '_, axis::Axis, axis::Axis, DB>,
+) {
+    mesh.bold_line_style(palette::GRID.stroke_width(1))
+        .light_line_style(TRANSPARENT)
+        .axis_style(MUTED.stroke_width(1))
+        .label_style(text(TEXT_SMALL, MUTED))
+        .axis_desc_style(text(TEXT_BODY, INK))
+        .set_all_tick_mark_size(4);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn dashes_alternate_along_a_straight_line() {
+        // 0..30 px with 7 on, 5 off: dashes at 0-7, 12-19, 24-30.
+        let got = dashes(&[(0, 0), (30, 0)], 7.0, 5.0);
+        assert_eq!(
+            got,
+            vec![
+                vec![(0, 0), (7, 0)],
+                vec![(12, 0), (19, 0)],
+                vec![(24, 0), (30, 0)],
+            ]
+        );
+    }
+
+    #[test]
+    fn dashes_turn_corners() {
+        // 10 px right then 10 px down, 14 on, 2 off: the first dash bends.
+        let got = dashes(&[(0, 0), (10, 0), (10, 10)], 14.0, 2.0);
+        assert_eq!(got[0], vec![(0, 0), (10, 0), (10, 4)]);
+        assert_eq!(got[1], vec![(10, 6), (10, 10)]);
+    }
+
+    #[test]
+    fn families_get_distinct_styles_in_order_of_appearance() {
+        let candidate = |id: &str| CandidateResult {
+            id: id.to_string(),
+            family: stem(id).to_string(),
+            features: vec![],
+            setting: serde_json::Map::new(),
+            effective_df: 1.0,
+            train_score: 0.0,
+            cv_score: 0.0,
+            cv_se: 0.0,
+            fold_scores: vec![],
+        };
+        let styles = family_styles(&[
+            candidate("polynomial/degree=1"),
+            candidate("polynomial/degree=2"),
+            candidate("linear"),
+            candidate("nearest-neighbors/k=3"),
+        ]);
+        let stems: Vec<&str> = styles.iter().map(|s| s.stem.as_str()).collect();
+        assert_eq!(stems, ["polynomial", "linear", "nearest-neighbors"]);
+        assert_eq!(styles[1].colour, palette::SERIES[1]);
+        assert_eq!(styles[2].marker, Marker::Diamond);
+        assert_eq!(style_of(&styles, "linear").stem, "linear");
+    }
+}
