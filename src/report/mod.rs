@@ -2,7 +2,7 @@
 //! templates, SVG figures, and a short table for the terminal. Renderers are
 //! pure (`&Results` → text); `output` owns the writing.
 //!
-//! Both reports read one context ([`context`]), so they say the same things.
+//! Both reports read one context (`context.rs`), so they say the same things.
 
 mod context;
 pub mod figures;

@@ -11,8 +11,8 @@ use tempfile::TempDir;
 
 use crate::{demo, util};
 
-/// Every task of the demo spec: 3 candidates × (30 folds + 1 full fit).
-const DEMO_FITS: usize = 93;
+/// Every task of the demo spec: 5 candidates × (30 folds + 1 full fit).
+const DEMO_FITS: usize = 155;
 /// One demo candidate's fits: 10 folds × 3 repeats + 1 full fit.
 const DEMO_FITS_PER_CANDIDATE: usize = 31;
 /// Every task of the generated spec: 2 candidates × (30 folds + 1 full fit).
@@ -276,6 +276,11 @@ candidate:
   - family: nearest-neighbors
     k: [1, 2, 3, 5, 10, 20, 40, 80]
   - family: linear
+  - family: smoothing-spline
+    features: [outdoor_c]
+    df: [2.5, 3, 4, 6, 9, 14, 20, 40]
+  - family: ridge
+    penalty: [0.1, 10, 100, 1000]
 choose:
   metric: mse
   rule: one-se
@@ -553,9 +558,13 @@ fn three_shards_then_assembly_match_a_single_run() {
         let output = child.wait_with_output().unwrap();
         let stderr = util::stderr_of(&output);
         assert!(output.status.success(), "shard {shard}: {stderr}");
-        // 93 tasks dealt round-robin to 3 shards: 31 each, none shared.
+        // 155 tasks dealt round-robin to 3 shards (task i to shard i mod 3):
+        // 52, 52 and 51, none shared.
+        let expected = if shard.starts_with('3') { 51 } else { 52 };
         assert!(
-            stderr.contains(&format!("shard {shard}: 31 fits computed, 0 reused")),
+            stderr.contains(&format!(
+                "shard {shard}: {expected} fits computed, 0 reused"
+            )),
             "{stderr}"
         );
     }
@@ -606,7 +615,8 @@ fn plan_counts_cached_and_missing_fits() {
         dir.path(),
         &["run", "--shard", "2/3", "specs/heat-demand.toml"],
     );
-    assert_eq!(plan_summary(dir.path()), (DEMO_FITS, 31, DEMO_FITS - 31));
+    // Shard 2/3 owns tasks 1, 4, …, 154: 52 of the 155.
+    assert_eq!(plan_summary(dir.path()), (DEMO_FITS, 52, DEMO_FITS - 52));
 
     heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
     assert_eq!(plan_summary(dir.path()), (DEMO_FITS, DEMO_FITS, 0));

@@ -184,9 +184,9 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
     })?;
 
     let kept_note = if shown.len() > LEADERS {
-        ", and the kept setting, which is not among them"
+        " (best at the top), and at the bottom the kept setting, which is not among them"
     } else {
-        ""
+        ", best at the top"
     };
     let repeats_note = if repeats > 1 {
         format!(" The {repeats} rows of dots in each band are the {repeats} repeats.")
@@ -198,7 +198,7 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
         title: "Fold by fold: the leading settings".into(),
         caption: format!(
             "Cross-validated {metric} on each validation fold for the {n} settings with the best \
-             mean score{kept_note}, best at the top. Each dot is one fold.{repeats_note} The ink \
+             mean score{kept_note}. Each dot is one fold.{repeats_note} The ink \
              bar spans the mean ± 1 standard error; the tick marks the mean. Settings whose bars \
              overlap are hard to tell apart on this evidence. All settings were scored on the \
              same folds.",
