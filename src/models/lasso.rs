@@ -3,18 +3,20 @@
 //!
 //! Features are standardised on the training fold (`standardise`), the
 //! intercept is the training mean of the target and is not penalised, and
-//! β(λ) minimises (1/(2n))Σ(y − ȳ − Zβ)² + λΣ|βⱼ| (Tibshirani 1996,
-//! "Regression shrinkage and selection via the lasso", JRSS B 58).
+//! β(λ) minimises (1/(2n))Σ(y − ȳ − Zβ)² + λΣ|βⱼ| (the lasso, an
+//! L1-penalised least-squares problem).
 //!
-//! Method: Friedman, Hastie & Tibshirani 2010, "Regularization paths for
-//! generalized linear models via coordinate descent", J. Stat. Softw. 33(1).
+//! Method: cyclic coordinate descent (Fu 1998, "Penalized regressions: the
+//! bridge versus the lasso", J. Comput. Graph. Statist. 7; Wu & Lange 2008,
+//! "Coordinate descent algorithms for lasso penalized regression", Ann. Appl.
+//! Stat. 2).
 //! Each coordinate step sets βⱼ = S(cⱼ − Σ_{k≠j} Gⱼₖβₖ, λ) / Gⱼⱼ, with
 //! G = ZᵀZ/n, c = Zᵀ(y − ȳ)/n and S the soft-threshold; G and c are formed
-//! once per fold ("covariance updates", §2.2 of that paper), so a sweep costs
+//! once per fold (covariance updates), so a sweep costs
 //! p² whatever the number of rows, and each gradient is recomputed from G
 //! in fixed order rather than updated, so no drift accumulates. Penalties are
 //! fitted from the largest to the smallest, each starting from the previous
-//! solution (warm starts, §2.5), and reported in spec order.
+//! solution (warm starts), and reported in spec order.
 //!
 //! Convergence: sweeps repeat until the largest change of any coefficient in
 //! a sweep is at most 10⁻¹² times the largest |βⱼ| (or nothing changes). A
@@ -22,9 +24,8 @@
 //! [`FitError::NotConverged`] naming the penalty.
 //!
 //! Effective df = 1 (intercept) + the number of non-zero coefficients, an
-//! unbiased estimate of the lasso's degrees of freedom (Zou, Hastie &
-//! Tibshirani 2007, "On the degrees of freedom of the lasso", Ann. Statist.
-//! 35). The lasso is not a linear smoother, so there is no leave-one-out
+//! unbiased estimate of the lasso's degrees of freedom (common practice; it
+//! follows from Stein's unbiased risk estimate, Stein 1981). The lasso is not a linear smoother, so there is no leave-one-out
 //! shortcut: leave-one-out refits.
 
 use nalgebra::DMatrix;
@@ -221,7 +222,7 @@ mod tests {
 
     #[test]
     fn soft_threshold_shrinks_towards_zero() {
-        // Definition (Friedman, Hastie & Tibshirani 2010, eq. 6).
+        // Definition of the soft-threshold operator (common practice).
         assert_eq!(soft_threshold(3.0, 1.0), 2.0);
         assert_eq!(soft_threshold(-3.0, 1.0), -2.0);
         assert_eq!(soft_threshold(0.5, 1.0), 0.0);
@@ -264,8 +265,8 @@ mod tests {
 
     #[test]
     fn solutions_meet_the_optimality_conditions() {
-        // Karush-Kuhn-Tucker conditions of the lasso (Tibshirani 1996; FHT 2010
-        // eq. 5): gⱼ = cⱼ − (Gβ)ⱼ equals λ·sign(βⱼ) where βⱼ ≠ 0 and |gⱼ| ≤ λ
+        // Karush-Kuhn-Tucker conditions of the lasso (convex optimality,
+        // common practice): gⱼ = cⱼ − (Gβ)ⱼ equals λ·sign(βⱼ) where βⱼ ≠ 0 and |gⱼ| ≤ λ
         // where βⱼ = 0, here to 1e-11 of λ_max = max|cⱼ| (the scale of g; the
         // stopping rule leaves about 1e-12·max|β| in each coefficient).
         let (f, problem) = fixture_problem();
@@ -290,8 +291,8 @@ mod tests {
 
     #[test]
     fn effective_df_never_rises_with_the_penalty() {
-        // On this fixture the active set only grows as λ falls (Zou, Hastie &
-        // Tibshirani 2007 define df as its size; a path may drop variables in
+        // On this fixture the active set only grows as λ falls (df is its
+        // size, common practice; a path may drop variables in
         // general, so this is a property of the data, checked by the fixture's
         // active sets from scikit-learn).
         let f = penalised_reference::load();

@@ -136,9 +136,10 @@ pub trait Family: Send + Sync + std::fmt::Debug {
 }
 
 /// The leave-one-out prediction of row i from its fitted value and leverage
-/// (hat-diagonal shortcut for linear smoothers; e.g. Hastie, Tibshirani &
-/// Friedman, *The Elements of Statistical Learning*, 2nd ed., eq. 7.52
-/// rearranged). A leverage of 1 means the row alone determines its fit.
+/// (hat-diagonal shortcut for linear smoothers: the deleted residual is the
+/// ordinary residual over 1 − hᵢᵢ; Cook & Weisberg 1982, *Residuals and
+/// Influence in Regression*, §2.2). A leverage of 1 means the row alone
+/// determines its fit.
 pub(crate) fn loo_from_leverage(y: f64, fitted: f64, leverage: f64) -> Option<f64> {
     let denominator = 1.0 - leverage;
     (denominator > 1e-10).then(|| y - (y - fitted) / denominator)

@@ -9,8 +9,8 @@
 //!
 //!   β(λ) = V diag(d/(d² + λ)) Uᵀ(y − ȳ),  df(λ) = 1 + Σ d²/(d² + λ),
 //!
-//! so the one factorisation serves every penalty (Hastie, Tibshirani &
-//! Friedman, *The Elements of Statistical Learning*, 2nd ed., 2009, §3.4.1).
+//! so the one factorisation serves every penalty (Hoerl & Kennard 1970,
+//! "Ridge regression", Technometrics 12; the SVD form is standard algebra).
 //! Singular values at or below max(n, p)·ε·d_max are dropped (the rank rule
 //! of common rank estimators such as numpy's `matrix_rank`): at λ = 0 that
 //! makes the fit the minimum-norm least-squares solution (pseudo-inverse), so

@@ -114,14 +114,14 @@ fn penalised_candidates_get_ids_df_and_coefficients() {
     );
 
     // Ridge df = 1 + Σ d²/(d²+λ) falls strictly with λ and stays inside
-    // (1, 1 + features) (Hastie, Tibshirani & Friedman 2009, §3.4.1).
+    // (1, 1 + features) (ridge df from the SVD, Hoerl & Kennard 1970 form).
     let ridge: Vec<f64> = ["0.01", "1", "100"]
         .iter()
         .map(|p| df_of(&results, &format!("ridge/penalty={p}")))
         .collect();
     assert!(ridge[0] > ridge[1] && ridge[1] > ridge[2], "{ridge:?}");
     assert!(ridge[0] < 4.0 && ridge[2] > 1.0, "{ridge:?}");
-    // Lasso df = 1 + non-zero coefficients (Zou, Hastie & Tibshirani 2007):
+    // Lasso df = 1 + non-zero coefficients (common practice):
     // a whole number, not larger at the larger penalty on this data.
     let lasso_small = df_of(&results, "lasso/penalty=0.001");
     let lasso_large = df_of(&results, "lasso/penalty=0.1");
