@@ -1,8 +1,9 @@
 //! Benchmark: path-aware fitting (one `fit_path` call for a whole grid)
 //! against a naive refit per setting, for every model family.
 //!
-//! Run: `cargo run --release --example path_bench -- [ROWS] [REPS]`
-//! (defaults 20000 rows, 5 repetitions; medians are reported). The data is
+//! Run: `cargo run --release --example path_bench -- [ROWS] [REPS] [FILTER]`
+//! (defaults 20000 rows, 5 repetitions, every family; medians are reported;
+//! FILTER keeps the families whose name contains it). The data is
 //! invented: a smooth curve in two features plus noise, from a fixed seed.
 
 use std::time::Instant;
@@ -129,6 +130,7 @@ fn main() {
     let args: Vec<String> = std::env::args().collect();
     let rows: usize = args.get(1).and_then(|a| a.parse().ok()).unwrap_or(20_000);
     let reps: usize = args.get(2).and_then(|a| a.parse().ok()).unwrap_or(5);
+    let filter = args.get(3).cloned().unwrap_or_default();
     let mut state = 20_261_201u64;
     let train = DMatrix::from_fn(rows, 2, |_, _| uniform(&mut state) * 10.0);
     let y: Vec<f64> = (0..rows)
@@ -154,7 +156,7 @@ fn main() {
         "grid/max",
         "speed-up"
     );
-    for (name, spec, dims) in grids() {
+    for (name, spec, dims) in grids().into_iter().filter(|(n, ..)| n.contains(&filter)) {
         let x = train.columns(0, dims).into_owned();
         let x_eval = eval.columns(0, dims).into_owned();
         let features: Vec<String> = spec.features_override().unwrap_or_default().to_vec();

@@ -6,6 +6,8 @@
 //! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
+#[cfg(test)]
+mod effective_df_tests;
 pub mod lasso;
 mod least_squares;
 pub mod linear;
