@@ -94,6 +94,15 @@ fn grids() -> Vec<(&'static str, FamilySpec, usize)> {
             1,
         ),
         (
+            "smoothing-spline (8 df)",
+            FamilySpec::SmoothingSpline {
+                label: None,
+                features: one.clone(),
+                grid: SmootherGrid::Df(vec![3.0, 4.0, 5.0, 6.0, 8.0, 12.0, 20.0, 40.0]),
+            },
+            1,
+        ),
+        (
             "spline (8 df)",
             FamilySpec::Spline {
                 label: None,

@@ -83,6 +83,7 @@ pub(super) struct Singular {
 }
 
 /// √(a² + b²) without overflow or underflow; the direct formula when it is safe.
+#[inline(always)]
 fn radius(a: f64, b: f64) -> f64 {
     let big = a.abs().max(b.abs());
     if big < 1e150 && big > 1e-150 {
@@ -90,6 +91,30 @@ fn radius(a: f64, b: f64) -> f64 {
     } else {
         libm::hypot(a, b)
     }
+}
+
+/// One Givens rotation of row `b` into row `a` that zeroes `b[pivot]`, on the
+/// entries `columns` (which include `pivot`); both rows are zero elsewhere.
+/// Skipped when `b[pivot]` is already zero.
+#[inline(always)]
+fn rotate<const N: usize>(
+    a: &mut [f64; BAND + 1],
+    b: &mut [f64; BAND + 1],
+    pivot: usize,
+    columns: [usize; N],
+) {
+    let (x, z) = (a[pivot], b[pivot]);
+    if z == 0.0 {
+        return;
+    }
+    let r = radius(x, z);
+    let (cos, sin) = (x / r, z / r);
+    for c in columns {
+        let (p, q) = (a[c], b[c]);
+        a[c] = cos * p + sin * q;
+        b[c] = -sin * p + cos * q;
+    }
+    b[pivot] = 0.0;
 }
 
 impl HermiteSystem {
@@ -107,26 +132,50 @@ impl HermiteSystem {
 
     /// Triangularises the rows for penalty `lambda` > 0 (on the scale of these
     /// knots) with responses `y` at the knots.
+    ///
+    /// The rows are rotated in exactly the order of the sequential scheme
+    /// (knot row, then the two interval rows, each through its columns from
+    /// left to right; see [`Factor::absorb`]), but knot by knot with the two
+    /// rows of U still open kept in registers, and each rotation touching
+    /// only the entries that can be nonzero: 28 products per knot instead of
+    /// 45 and no searching for zeros. The two give the same U.
     pub fn factor(&self, lambda: f64, y: &[f64]) -> Result<Factor, Singular> {
         let m = self.knots();
-        let columns = 2 * m;
-        let mut factor = Factor {
-            rows: vec![[0.0; BAND + 1]; columns],
-        };
+        let mut rows = Vec::with_capacity(2 * m);
+        // Rows 2i and 2i+1 of U while knot i is absorbed, in local columns
+        // (fᵢ, sᵢ, fᵢ₊₁, sᵢ₊₁, right-hand side).
+        let (mut value_row, mut slope_row) = ([0.0; BAND + 1], [0.0; BAND + 1]);
         for (i, (w, y)) in self.weight.iter().zip(y).enumerate() {
             let root_w = w.sqrt();
-            factor.absorb(2 * i, [root_w, 0.0, 0.0, 0.0], root_w * y);
+            let mut knot = [root_w, 0.0, 0.0, 0.0, root_w * y];
+            rotate(&mut value_row, &mut knot, 0, [0, 1, 4]);
+            rotate(&mut slope_row, &mut knot, 1, [1, 4]);
+            // Rows 2i+2 and 2i+3, which only the interval rows reach.
+            let (mut next_value, mut next_slope) = ([0.0; BAND + 1], [0.0; BAND + 1]);
             if i + 1 < m {
                 let h = self.h[i];
                 // (aᵢ + bᵢ) = sᵢ + sᵢ₊₁ − 2(fᵢ₊₁ − fᵢ)/hᵢ
                 let alpha = (3.0 * lambda / h).sqrt();
                 let slope = 2.0 / h;
-                factor.absorb(2 * i, [alpha * slope, alpha, -alpha * slope, alpha], 0.0);
+                let mut sum = [alpha * slope, alpha, -alpha * slope, alpha, 0.0];
+                rotate(&mut value_row, &mut sum, 0, [0, 1, 2, 3, 4]);
+                rotate(&mut slope_row, &mut sum, 1, [1, 2, 3, 4]);
+                rotate(&mut next_value, &mut sum, 2, [2, 3, 4]);
+                rotate(&mut next_slope, &mut sum, 3, [3, 4]);
                 // (aᵢ − bᵢ) = sᵢ − sᵢ₊₁
                 let beta = (lambda / h).sqrt();
-                factor.absorb(2 * i + 1, [beta, 0.0, -beta, 0.0], 0.0);
+                let mut difference = [0.0, beta, 0.0, -beta, 0.0];
+                rotate(&mut slope_row, &mut difference, 1, [1, 2, 3, 4]);
+                rotate(&mut next_value, &mut difference, 2, [2, 3, 4]);
+                rotate(&mut next_slope, &mut difference, 3, [3, 4]);
             }
+            rows.push(value_row);
+            let [_, s1, s2, s3, rhs] = slope_row;
+            rows.push([s1, s2, s3, 0.0, rhs]);
+            value_row = [next_value[2], next_value[3], 0.0, 0.0, next_value[4]];
+            slope_row = [0.0, next_slope[3], 0.0, 0.0, next_slope[4]];
         }
+        let factor = Factor { rows };
         match factor
             .rows
             .iter()
@@ -135,6 +184,30 @@ impl HermiteSystem {
             Some(column) => Err(Singular { column }),
             None => Ok(factor),
         }
+    }
+
+    /// [`HermiteSystem::factor`] by the plain sequential scheme, one row at
+    /// a time through [`Factor::absorb`]: the reference the fast sweep is
+    /// tested against.
+    #[cfg(test)]
+    pub fn factor_row_by_row(&self, lambda: f64, y: &[f64]) -> Factor {
+        let m = self.knots();
+        let mut factor = Factor {
+            rows: vec![[0.0; BAND + 1]; 2 * m],
+        };
+        for (i, (w, y)) in self.weight.iter().zip(y).enumerate() {
+            let root_w = w.sqrt();
+            factor.absorb(2 * i, [root_w, 0.0, 0.0, 0.0], root_w * y);
+            if i + 1 < m {
+                let h = self.h[i];
+                let alpha = (3.0 * lambda / h).sqrt();
+                let slope = 2.0 / h;
+                factor.absorb(2 * i, [alpha * slope, alpha, -alpha * slope, alpha], 0.0);
+                let beta = (lambda / h).sqrt();
+                factor.absorb(2 * i + 1, [beta, 0.0, -beta, 0.0], 0.0);
+            }
+        }
+        factor
     }
 
     /// Slopes of the natural cubic spline interpolating `f` at the knots:
@@ -174,6 +247,7 @@ impl Factor {
     /// Rotates one row (entries at columns first..first+3) into U. Rows
     /// arrive in order of first column, so U's rows from `first` on have no
     /// entries right of column first+3 yet and the row gains no fill beyond.
+    #[cfg(test)]
     fn absorb(&mut self, first: usize, entries: [f64; BAND], rhs: f64) {
         let columns = self.rows.len();
         // The incoming row from column `first` on, then its right-hand side.
@@ -259,5 +333,45 @@ impl CovarianceBand {
     /// Σ_{fᵢ,fᵢ} at every knot: the leverage of one row of knot i.
     pub fn value_variances(&self) -> Vec<f64> {
         self.s.iter().step_by(2).map(|row| row[0]).collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::HermiteSystem;
+
+    #[test]
+    fn knot_by_knot_sweep_equals_the_row_by_row_scheme_bit_for_bit() {
+        // Irregular knots, uneven weights, and penalties over 16 decades, so
+        // rotations into empty rows, tiny and huge ratios all occur.
+        let mut state = 7u64;
+        let mut next = || {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (state >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut t = vec![0.0];
+        for _ in 0..300 {
+            let last = t[t.len() - 1];
+            t.push(last + 1e-4 + next() * next() * 0.01);
+        }
+        let weight: Vec<f64> = t.iter().map(|_| 1.0 + (next() * 3.0).floor()).collect();
+        let y: Vec<f64> = t.iter().map(|&u| libm::sin(9.0 * u) + next()).collect();
+        let system = HermiteSystem::new(&t, &weight);
+        for exponent in -12..=4 {
+            let lambda = libm::pow(10.0, f64::from(exponent));
+            let fast = system.factor(lambda, &y).expect("positive diagonal");
+            let reference = system.factor_row_by_row(lambda, &y);
+            for (row, (a, b)) in fast.rows.iter().zip(&reference.rows).enumerate() {
+                for (x, z) in a.iter().zip(b) {
+                    assert_eq!(
+                        x.to_bits(),
+                        z.to_bits(),
+                        "λ = {lambda:e}, row {row}: {a:?} vs {b:?}"
+                    );
+                }
+            }
+        }
     }
 }
