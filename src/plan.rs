@@ -84,9 +84,14 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
         }
     }
     let mut text = Vec::new();
-    for name in [&data_spec.key, &data_spec.group, &split_spec.column]
-        .into_iter()
-        .flatten()
+    for name in [
+        &data_spec.key,
+        &data_spec.group,
+        &split_spec.column,
+        &data_spec.order,
+    ]
+    .into_iter()
+    .flatten()
     {
         if !text.contains(name) {
             text.push(name.clone());
@@ -156,7 +161,12 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
                 .text_column(split_spec.column.as_deref().unwrap_or_default())
                 .to_vec(),
         },
-        SplitMethod::Ordered => unreachable!("validation rejects ordered splits"),
+        SplitMethod::Ordered => FoldScheme::Ordered {
+            folds: split_spec.folds.unwrap_or(DEFAULT_FOLDS),
+            time: table
+                .text_column(data_spec.order.as_deref().unwrap_or_default())
+                .to_vec(),
+        },
     };
     let assignment = split::assign(
         spec.spec.experiment.seed,

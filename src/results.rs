@@ -66,6 +66,9 @@ pub struct DataSummary {
     pub features: Vec<String>,
     pub key: Option<String>,
     pub group: Option<String>,
+    /// The time column of an ordered split (absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub order: Option<String>,
 }
 
 #[derive(Debug, Clone, Serialize)]
@@ -300,6 +303,7 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
             features: data.features.clone(),
             key: data.key.clone(),
             group: data.group.clone(),
+            order: data.order.clone(),
         },
         split: SplitSummary {
             method: spec.split.method,

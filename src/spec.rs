@@ -57,7 +57,8 @@ pub struct DataSpec {
     /// Rows of one group never straddle folds or the test set.
     #[serde(default)]
     pub group: Option<String>,
-    /// Ordered (time) splits; declared in the design, not built yet.
+    /// The time column of ordered splits (`method = "ordered"`): numbers, or
+    /// text that sorts in time order such as ISO 8601 dates.
     #[serde(default)]
     pub order: Option<String>,
     #[serde(default)]
@@ -657,7 +658,7 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
 
     let default_features = match (&spec.data, &spec.simulate) {
         (Some(data), None) => {
-            validate_data(data, &invalid)?;
+            validate_data(data, &spec.split, &invalid)?;
             data.features.clone()
         }
         (None, Some(sim)) => {
@@ -750,6 +751,7 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
 
 fn validate_data(
     data: &DataSpec,
+    split: &SplitSpec,
     invalid: &impl Fn(&str, String) -> SpecError,
 ) -> Result<(), SpecError> {
     if data.table.trim().is_empty() {
@@ -762,10 +764,28 @@ fn validate_data(
             format!("the target \"{}\" cannot also be a feature", data.target),
         ));
     }
-    if data.order.is_some() {
+    let ordered = split.method == SplitMethod::Ordered;
+    match (&data.order, ordered) {
+        (Some(_), false) => {
+            return Err(invalid(
+                "data.order",
+                "only used with [split] method = \"ordered\"".into(),
+            ))
+        }
+        (None, true) => {
+            return Err(invalid(
+                "split.method",
+                "method = \"ordered\" needs `order = \"<time column>\"` in [data]".into(),
+            ))
+        }
+        _ => {}
+    }
+    if ordered && data.group.is_some() {
         return Err(invalid(
-            "data.order",
-            "ordered (time) splits are not built yet".into(),
+            "data.group",
+            "cannot be combined with method = \"ordered\": its blocks follow time, and a group \
+             seen at many times would straddle them; remove `group`, or use method = \"kfold\""
+                .into(),
         ));
     }
     Ok(())
@@ -805,12 +825,12 @@ fn validate_split(
         return Err(invalid("split.repeats", "must be at least 1".into()));
     }
     match split.method {
-        SplitMethod::Kfold => {
+        SplitMethod::Kfold | SplitMethod::Ordered => {
             if let Some(folds) = split.folds {
                 if folds < 2 {
                     return Err(invalid(
                         "split.folds",
-                        format!("{folds} folds: k-fold cross-validation needs at least 2"),
+                        format!("{folds} folds: cross-validation needs at least 2"),
                     ));
                 }
             }
@@ -818,6 +838,15 @@ fn validate_split(
                 return Err(invalid(
                     "split.column",
                     "only used with method = \"column\"".into(),
+                ));
+            }
+            if split.method == SplitMethod::Ordered && split.repeats != 1 {
+                return Err(invalid(
+                    "split.repeats",
+                    format!(
+                        "{} repeats: ordered splits follow time and have no randomness to repeat",
+                        split.repeats
+                    ),
                 ));
             }
         }
@@ -850,12 +879,6 @@ fn validate_split(
                     "only used with method = \"column\"".into(),
                 ));
             }
-        }
-        SplitMethod::Ordered => {
-            return Err(invalid(
-                "split.method",
-                "\"ordered\" (time-ordered) splits are not built yet".into(),
-            ));
         }
     }
     Ok(())

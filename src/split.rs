@@ -11,6 +11,11 @@
 //! first ones to the test set, the rest round-robin to folds. Because every
 //! unit's priority depends only on its own identity, adding, removing or
 //! reordering rows leaves the other rows' relative order unchanged.
+//!
+//! Ordered (time) splits use no randomness: the latest time points form the
+//! test set and the rest are cut into k + 1 consecutive blocks; fold j trains
+//! on blocks 1..=j and validates on block j + 1 (forward chaining), so no fit
+//! ever sees a row later than the rows it is scored on.
 
 use std::collections::BTreeMap;
 
@@ -22,11 +27,15 @@ pub enum Placement {
     Test,
     /// 0-based fold index.
     Fold(usize),
+    /// Fits on it but is never validated on: the first block of an ordered
+    /// split.
+    TrainOnly,
 }
 
 /// One cross-validation fold: the non-test rows it validates on. It trains
-/// on every other non-test row ([`Assignment::fold_train`]); only the
-/// validation rows are stored, so leave-one-out on n rows needs O(n) memory.
+/// on every other non-test row ([`Assignment::fold_train`]) unless `train`
+/// restricts it; only the validation rows are stored otherwise, so
+/// leave-one-out on n rows needs O(n) memory.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Fold {
     /// 0-based repeat.
@@ -37,6 +46,9 @@ pub struct Fold {
     pub label: String,
     /// Row indices (into the loaded table), ascending.
     pub valid: Vec<usize>,
+    /// The training rows, ascending, when they are not all other non-test
+    /// rows (ordered splits train only on earlier rows).
+    pub train: Option<Vec<usize>>,
 }
 
 /// The whole assignment.
@@ -57,6 +69,9 @@ pub struct Assignment {
 impl Assignment {
     /// The training rows of fold `f`: the non-test rows it does not validate on.
     pub fn fold_train(&self, f: usize) -> Vec<usize> {
+        if let Some(train) = &self.folds[f].train {
+            return train.clone();
+        }
         let valid = &self.folds[f].valid;
         let mut out = Vec::with_capacity(self.train.len() - valid.len());
         let mut next = valid.iter().peekable();
@@ -71,12 +86,31 @@ impl Assignment {
 
     /// Number of training rows of fold `f`.
     pub fn fold_train_len(&self, f: usize) -> usize {
-        self.train.len() - self.folds[f].valid.len()
+        match &self.folds[f].train {
+            Some(train) => train.len(),
+            None => self.train.len() - self.folds[f].valid.len(),
+        }
+    }
+
+    /// What the `folds` listing prints for a placement in `repeat`: `test`,
+    /// the fold's label, or `train-only`.
+    pub fn placement_label(&self, placement: Placement, repeat: usize) -> String {
+        match placement {
+            Placement::Test => "test".to_string(),
+            Placement::TrainOnly => "train-only".to_string(),
+            Placement::Fold(i) => {
+                let per_repeat = self.folds.len() / self.repeats;
+                self.folds[repeat * per_repeat + i].label.clone()
+            }
+        }
     }
 
     /// Where each row sits in the given repeat.
     pub fn placements(&self, rows: usize, repeat: usize) -> Vec<Placement> {
         let mut placement = vec![Placement::Test; rows];
+        for &row in &self.train {
+            placement[row] = Placement::TrainOnly;
+        }
         for fold in self.folds.iter().filter(|f| f.repeat == repeat) {
             for &row in &fold.valid {
                 placement[row] = Placement::Fold(fold.index);
@@ -98,6 +132,12 @@ pub enum FoldScheme {
     Column {
         labels: Vec<String>,
     },
+    /// Forward chaining over the time point of every row (the order column's
+    /// text): `folds` folds over `folds + 1` consecutive blocks.
+    Ordered {
+        folds: usize,
+        time: Vec<String>,
+    },
 }
 
 /// Why rows cannot be split as asked.
@@ -113,6 +153,13 @@ pub enum SplitError {
     NothingLeft(usize),
     #[error("the fold column holds only one distinct label (\"{0}\") among the non-test rows; cross-validation needs at least 2")]
     OneColumnFold(String),
+    #[error("the order column has {points} distinct time points after the test set, too few to cut into the {blocks} consecutive blocks that {folds} ordered folds need (block {empty} would be empty); lower `folds` or `holdout`")]
+    TooFewTimePoints {
+        points: usize,
+        blocks: usize,
+        folds: usize,
+        empty: usize,
+    },
 }
 
 /// The derived 32-byte key of one random purpose under a master seed.
@@ -158,16 +205,35 @@ pub fn assign(
     }
     let all_units: Vec<usize> = (0..identities.len()).collect();
 
-    // The test set: units in holdout order until it holds round(holdout × rows).
+    // The test set: units in holdout order until it holds round(holdout ×
+    // rows). Ordered splits lock away the latest time points instead, whole.
     let wanted = (holdout * rows as f64).round() as usize;
     let mut is_test_unit = vec![false; identities.len()];
     let mut taken = 0;
-    for unit in shuffled(&purpose_key(seed, "holdout"), identities, &all_units) {
+    let holdout_order: Vec<Vec<usize>> = match scheme {
+        FoldScheme::Ordered { time, .. } => {
+            let rank = time_ranks(time);
+            let points = rank.iter().max().map_or(0, |&r| r + 1);
+            let mut units_at: Vec<Vec<usize>> = vec![Vec::new(); points];
+            for (row, &r) in rank.iter().enumerate() {
+                units_at[r].push(unit_of_row[row]);
+            }
+            units_at.reverse();
+            units_at
+        }
+        _ => shuffled(&purpose_key(seed, "holdout"), identities, &all_units)
+            .into_iter()
+            .map(|unit| vec![unit])
+            .collect(),
+    };
+    for units in holdout_order {
         if taken >= wanted {
             break;
         }
-        is_test_unit[unit] = true;
-        taken += rows_of_unit[unit].len();
+        for unit in units {
+            is_test_unit[unit] = true;
+            taken += rows_of_unit[unit].len();
+        }
     }
     let test: Vec<usize> = (0..rows)
         .filter(|&r| is_test_unit[unit_of_row[r]])
@@ -242,6 +308,10 @@ pub fn assign(
             }
             1
         }
+        FoldScheme::Ordered { folds: k, time } => {
+            folds.extend(forward_chain(*k, &train, &time_ranks(time))?);
+            1
+        }
     };
     let single_row_folds =
         matches!(scheme, FoldScheme::LeaveOneOut) && folds.iter().all(|f| f.valid.len() == 1);
@@ -252,6 +322,76 @@ pub fn assign(
         repeats,
         single_row_folds,
     })
+}
+
+/// The rank of every row's time point among the distinct values of `time`:
+/// numeric order when every value is a number, text order otherwise (which
+/// sorts ISO 8601 dates and times correctly).
+fn time_ranks(time: &[String]) -> Vec<usize> {
+    let points = ordered_labels(time.iter().map(String::as_str));
+    let rank: BTreeMap<&str, usize> = points
+        .iter()
+        .enumerate()
+        .map(|(r, p)| (p.as_str(), r))
+        .collect();
+    time.iter().map(|t| rank[t.as_str()]).collect()
+}
+
+/// Forward-chaining folds: the non-test rows in time order are cut into
+/// `k + 1` consecutive blocks of about equal size, whole time points each (a
+/// time point goes to block ⌊(k + 1)·s/n⌋, s the non-test rows at earlier
+/// times, n all non-test rows); fold j validates on block j + 1 and trains on
+/// blocks 0..=j.
+fn forward_chain(k: usize, train_rows: &[usize], rank: &[usize]) -> Result<Vec<Fold>, SplitError> {
+    let blocks = k + 1;
+    let mut by_time: Vec<usize> = train_rows.to_vec();
+    by_time.sort_by_key(|&row| (rank[row], row));
+    let n = by_time.len();
+    let mut block_of_row = vec![usize::MAX; rank.len()];
+    let mut points = 0;
+    let mut start = 0;
+    while start < n {
+        let point = rank[by_time[start]];
+        let block = blocks * start / n;
+        let mut end = start;
+        while end < n && rank[by_time[end]] == point {
+            block_of_row[by_time[end]] = block;
+            end += 1;
+        }
+        points += 1;
+        start = end;
+    }
+    let mut sizes = vec![0usize; blocks];
+    for &row in train_rows {
+        sizes[block_of_row[row]] += 1;
+    }
+    if let Some(empty) = sizes.iter().position(|&size| size == 0) {
+        return Err(SplitError::TooFewTimePoints {
+            points,
+            blocks,
+            folds: k,
+            empty: empty + 1,
+        });
+    }
+    Ok((0..k)
+        .map(|index| Fold {
+            repeat: 0,
+            index,
+            label: (index + 1).to_string(),
+            valid: train_rows
+                .iter()
+                .copied()
+                .filter(|&row| block_of_row[row] == index + 1)
+                .collect(),
+            train: Some(
+                train_rows
+                    .iter()
+                    .copied()
+                    .filter(|&row| block_of_row[row] <= index)
+                    .collect(),
+            ),
+        })
+        .collect())
 }
 
 /// Splits `train_rows` into `k` folds in one pass; `fold_of(row)` is 0-based.
@@ -267,6 +407,7 @@ fn deal(
             index,
             label: (index + 1).to_string(),
             valid: Vec::new(),
+            train: None,
         })
         .collect();
     for &row in train_rows {
@@ -287,6 +428,7 @@ fn make_fold(
         index,
         label,
         valid: train_rows.iter().copied().filter(|&r| in_fold(r)).collect(),
+        train: None,
     }
 }
 
@@ -403,6 +545,100 @@ mod tests {
                 units: 4,
                 folds: 5,
                 what: "rows"
+            }
+        );
+    }
+
+    /// Time points 1..=n as text, shuffled across rows by a fixed stride so
+    /// that file order is not time order.
+    fn shuffled_days(n: usize) -> Vec<String> {
+        (0..n).map(|row| ((row * 37) % n + 1).to_string()).collect()
+    }
+
+    #[test]
+    fn ordered_folds_train_only_on_earlier_rows_and_test_on_the_latest() {
+        let time = shuffled_days(103);
+        let day = |row: usize| time[row].parse::<usize>().unwrap();
+        let (ids, units) = rows(103);
+        let scheme = FoldScheme::Ordered {
+            folds: 4,
+            time: time.clone(),
+        };
+        let a = assign(9, 0.2, &scheme, &ids, &units).unwrap();
+        // round(0.2 × 103) = 21 latest days are the test set.
+        assert_eq!(a.test.len(), 21);
+        assert!(a.test.iter().all(|&r| day(r) > 82));
+        assert_eq!(a.folds.len(), 4);
+        // 82 rows in 5 blocks: ⌊5s/82⌋ gives sizes 17, 16, 17, 16, 16.
+        let sizes: Vec<usize> = a.folds.iter().map(|f| f.valid.len()).collect();
+        assert_eq!(sizes, vec![16, 17, 16, 16]);
+        for (j, fold) in a.folds.iter().enumerate() {
+            let train = a.fold_train(j);
+            assert_eq!(a.fold_train_len(j), train.len());
+            let latest_train = train.iter().map(|&r| day(r)).max().unwrap();
+            let earliest_valid = fold.valid.iter().map(|&r| day(r)).min().unwrap();
+            assert_eq!(latest_train + 1, earliest_valid, "fold {}", j + 1);
+            // Expanding window: everything before the block, nothing after.
+            assert_eq!(train.len(), 17 + sizes[..j].iter().sum::<usize>());
+            assert!(train.windows(2).all(|w| w[0] < w[1]));
+        }
+        // The first block trains every fold and validates none.
+        let placements = a.placements(103, 0);
+        let train_only = placements
+            .iter()
+            .filter(|p| **p == Placement::TrainOnly)
+            .count();
+        assert_eq!(train_only, 17);
+        // No randomness: another seed gives the same assignment.
+        assert_eq!(assign(10, 0.2, &scheme, &ids, &units).unwrap(), a);
+    }
+
+    #[test]
+    fn ordered_blocks_keep_each_time_point_whole_and_sort_dates_as_text() {
+        // Two readings per date; ISO 8601 text sorts in time order.
+        let dates = ["2026-01-09", "2026-01-10", "2025-12-31", "2026-01-02"];
+        let time: Vec<String> = (0..16)
+            .map(|row| format!("{}T0{}", dates[row % 4], row / 8))
+            .collect();
+        let (ids, units) = rows(16);
+        let scheme = FoldScheme::Ordered {
+            folds: 3,
+            time: time.clone(),
+        };
+        let a = assign(1, 0.25, &scheme, &ids, &units).unwrap();
+        // round(0.25 × 16) = 4 rows: the two latest time points, whole.
+        let latest: std::collections::BTreeSet<&str> =
+            a.test.iter().map(|&r| time[r].as_str()).collect();
+        assert_eq!(a.test.len(), 4);
+        assert_eq!(
+            latest.into_iter().collect::<Vec<_>>(),
+            ["2026-01-10T00", "2026-01-10T01"]
+        );
+        // Six time points of two rows in four blocks: ⌊4s/12⌋ for s = 0, 2,
+        // …, 10 puts them in blocks 0, 0, 1, 2, 2, 3.
+        let sizes: Vec<usize> = a.folds.iter().map(|f| f.valid.len()).collect();
+        assert_eq!(sizes, vec![2, 4, 2]);
+        for fold in &a.folds {
+            for &row in &fold.valid {
+                let twin = (0..16).find(|&r| r != row && time[r] == time[row]).unwrap();
+                assert!(fold.valid.contains(&twin), "time point {} split", time[row]);
+            }
+        }
+    }
+
+    #[test]
+    fn too_few_time_points_for_ordered_folds_is_an_error() {
+        let time: Vec<String> = ["1", "1", "1", "2", "2", "3"].map(String::from).to_vec();
+        let (ids, units) = rows(6);
+        let scheme = FoldScheme::Ordered { folds: 3, time };
+        let err = assign(1, 0.0, &scheme, &ids, &units).unwrap_err();
+        assert_eq!(
+            err,
+            SplitError::TooFewTimePoints {
+                points: 3,
+                blocks: 4,
+                folds: 3,
+                empty: 2
             }
         );
     }

@@ -8,7 +8,6 @@ use anyhow::Context;
 use crate::cache::Cache;
 use crate::cli::{FoldsArgs, PlanArgs};
 use crate::execute::{self, TaskRows};
-use crate::split::Placement;
 
 pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
     let cache = Cache::new(&args.cache.cache);
@@ -97,7 +96,6 @@ pub fn folds(args: &FoldsArgs) -> anyhow::Result<()> {
     let key = loaded.data().key.clone();
     let plan = crate::plan::resolve(loaded)?;
     let rows = plan.table.len();
-    let folds_per_repeat = plan.assignment.folds.len() / plan.assignment.repeats;
     let keys = key.as_deref().map(|k| plan.table.text_column(k));
 
     let mut writer = csv::Writer::from_writer(Vec::new());
@@ -110,12 +108,7 @@ pub fn folds(args: &FoldsArgs) -> anyhow::Result<()> {
     for repeat in 0..plan.assignment.repeats {
         let placements = plan.assignment.placements(rows, repeat);
         for (row, placement) in placements.iter().enumerate() {
-            let fold = match placement {
-                Placement::Test => "test".to_string(),
-                Placement::Fold(i) => plan.assignment.folds[repeat * folds_per_repeat + i]
-                    .label
-                    .clone(),
-            };
+            let fold = plan.assignment.placement_label(*placement, repeat);
             let mut record = vec![plan.table.row_numbers[row].to_string()];
             if let Some(keys) = keys {
                 record.push(keys[row].clone());

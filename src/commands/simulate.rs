@@ -12,7 +12,6 @@ use crate::cache::Cache;
 use crate::execute::{CachePolicy, Shard, Summary};
 use crate::simulate::{self, SimulateError};
 use crate::spec::LoadedSpec;
-use crate::split::Placement;
 
 /// Typed simulation errors as the edge reports them (so exit codes follow
 /// the error kind: bad input for a spec or a fit, internal otherwise).
@@ -149,17 +148,13 @@ pub(super) fn folds(loaded: LoadedSpec) -> anyhow::Result<()> {
     for r in 0..plan.setup.replicates {
         let replicate = plan.replicate(r)?;
         let a = &replicate.assignment;
-        let folds_per_repeat = a.folds.len() / a.repeats;
         for repeat in 0..a.repeats {
             for (row, placement) in a
                 .placements(plan.setup.train_size, repeat)
                 .iter()
                 .enumerate()
             {
-                let fold = match placement {
-                    Placement::Test => "test".to_string(),
-                    Placement::Fold(i) => a.folds[repeat * folds_per_repeat + i].label.clone(),
-                };
+                let fold = a.placement_label(*placement, repeat);
                 writer
                     .write_record([
                         (r + 1).to_string(),

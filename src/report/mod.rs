@@ -132,7 +132,12 @@ pub fn split_phrase(results: &Results) -> String {
             "cross-validation over the {} folds given in the data",
             s.folds
         ),
-        SplitMethod::Ordered => "ordered cross-validation".to_string(),
+        SplitMethod::Ordered => format!(
+            "forward-chaining cross-validation in order of \"{}\": {} folds, each fitted only on \
+             rows earlier than the ones it is scored on, and the latest rows locked as the test set",
+            results.data.order.as_deref().unwrap_or("?"),
+            s.folds
+        ),
     }
 }
 

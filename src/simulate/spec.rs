@@ -338,7 +338,15 @@ pub fn validate(
                 ));
             }
         }
-        SplitMethod::LeaveOneOut | SplitMethod::Ordered => {}
+        SplitMethod::Ordered => {
+            return Err(invalid(
+                "split.method",
+                "\"ordered\" reads time points from a data table; a simulation has none \
+                 (use \"kfold\" or \"leave-one-out\")"
+                    .into(),
+            ))
+        }
+        SplitMethod::LeaveOneOut => {}
     }
     Ok(())
 }
