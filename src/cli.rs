@@ -63,6 +63,17 @@ pub enum Command {
         whatever changed; 2 when a file cannot be read."
     )]
     Compare(CompareArgs),
+    /// Write a first spec for a CSV table: its numeric columns as features, a
+    /// row key when one column identifies rows, and candidates from rigid to
+    /// flexible sized to the row count. Commented TOML, ready to run and edit.
+    #[command(
+        after_help = "Example:\n  heldout new --table demo-data/heat-demand.csv --target demand_mwh \\\n    \
+        --output specs/first-look.toml\n  heldout run specs/first-look.toml\n\n\
+        Without --output the spec is printed, with the table path relative to the\n\
+        current folder. The scaffold is checked like any spec before it is written;\n\
+        an existing file is kept unless --force is given."
+    )]
+    New(NewArgs),
 }
 
 /// Where fitted grids are cached.
@@ -134,6 +145,25 @@ pub struct FoldsArgs {
     /// The spec whose split to print.
     #[arg(value_name = "SPEC")]
     pub spec: PathBuf,
+}
+
+#[derive(Debug, Args)]
+pub struct NewArgs {
+    /// The CSV table (with a header row) the spec will read.
+    #[arg(long, value_name = "CSV")]
+    pub table: PathBuf,
+    /// The numeric column to predict.
+    #[arg(long, value_name = "COLUMN")]
+    pub target: String,
+    /// Experiment name (default: from the table's file name).
+    #[arg(long, value_name = "NAME")]
+    pub name: Option<String>,
+    /// Write the spec here instead of printing it.
+    #[arg(long, short, value_name = "SPEC")]
+    pub output: Option<PathBuf>,
+    /// Overwrite --output if it exists.
+    #[arg(long)]
+    pub force: bool,
 }
 
 #[derive(Debug, Args)]

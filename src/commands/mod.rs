@@ -4,6 +4,7 @@
 mod compare;
 mod inspect;
 mod run;
+mod scaffold;
 mod simulate;
 mod verify;
 
@@ -29,6 +30,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Plan(args) => inspect::plan(&args),
         Command::Folds(args) => inspect::folds(&args),
         Command::Compare(args) => compare::compare(&args),
+        Command::New(args) => scaffold::scaffold(&args),
     }
 }
 

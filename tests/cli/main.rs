@@ -11,6 +11,7 @@ mod ordered;
 mod reports;
 mod reproducible;
 mod ridge_lasso;
+mod scaffold;
 mod simulation;
 mod smoothing_spline;
 mod splines;
