@@ -74,6 +74,16 @@ pub enum Command {
         an existing file is kept unless --force is given."
     )]
     New(NewArgs),
+    /// Print the JSON Schema of the spec, for editors that complete and check
+    /// specs as they are typed (TOML and YAML share one structure).
+    #[command(
+        after_help = "Example:\n  heldout schema > heldout-spec.schema.json\n\n\
+        Point a TOML or YAML language server at the file (for TOML, a\n\
+        `#:schema ./heldout-spec.schema.json` line at the top of a spec). The schema\n\
+        checks structure and names; value checks (ranges, grids, combinations of\n\
+        keys) stay with heldout itself."
+    )]
+    Schema,
 }
 
 /// Where fitted grids are cached.

@@ -9,13 +9,14 @@
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use crate::error::SpecError;
 pub use crate::simulate::spec::{Design, InputSpec, NoiseSpec, SimulateSpec};
 
 /// The whole spec file as written.
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SpecFile {
     pub experiment: ExperimentSpec,
@@ -33,7 +34,7 @@ pub struct SpecFile {
     pub report: ReportSpec,
 }
 
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ExperimentSpec {
     /// Names the output folder: lower-case letters, digits and `-`.
@@ -44,7 +45,7 @@ pub struct ExperimentSpec {
     pub seed: u64,
 }
 
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct DataSpec {
     /// CSV file, relative to the spec file.
@@ -65,7 +66,7 @@ pub struct DataSpec {
     pub missing: MissingPolicy,
 }
 
-#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum MissingPolicy {
     /// An empty cell in a used column is an error.
@@ -75,7 +76,7 @@ pub enum MissingPolicy {
     DropRows,
 }
 
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SplitSpec {
     /// Fraction of rows locked away as the final test set; 0 = none.
@@ -115,7 +116,7 @@ impl Default for SplitSpec {
     }
 }
 
-#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum SplitMethod {
     #[default]
@@ -130,22 +131,34 @@ pub enum SplitMethod {
 /// The table is read flat (every family's keys in one struct) so that an
 /// unknown key is reported at its own line and column; [`validate`] then
 /// checks that each key belongs to the family and builds a [`FamilySpec`].
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(
+    description = "One model family and its grid of settings; each family takes only its own \
+                   grid keys (see docs/spec.md)."
+)]
 pub struct CandidateSpec {
     pub family: FamilyName,
+    /// Tells apart two candidates of one family in ids: a-z, 0-9 and `-`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub label: Option<String>,
+    /// Columns this candidate uses instead of `[data] features`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub features: Option<Vec<String>>,
+    /// linear, polynomial: fit an intercept (default true).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub intercept: Option<bool>,
+    /// polynomial: the degrees to compare.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub degree: Option<Vec<usize>>,
+    /// nearest-neighbors: the neighbour counts to compare.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub k: Option<Vec<usize>>,
+    /// ridge, lasso, smoothing-spline, thin-plate: the penalties to compare.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub penalty: Option<Vec<f64>>,
+    /// spline (whole numbers), smoothing-spline and thin-plate: effective
+    /// degrees of freedom to compare.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub df: Option<Vec<f64>>,
     /// thin-plate: knots of the low-rank fit used above `exact_limit` rows.
@@ -157,7 +170,7 @@ pub struct CandidateSpec {
 }
 
 /// The model families a candidate may name.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum FamilyName {
     Linear,
@@ -433,7 +446,7 @@ impl FamilySpec {
     }
 }
 
-#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ChooseSpec {
     #[serde(default)]
@@ -443,7 +456,7 @@ pub struct ChooseSpec {
 }
 
 /// Scoring metric for regression targets.
-#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Metric {
     #[default]
@@ -454,7 +467,7 @@ pub enum Metric {
 }
 
 /// How the winner is chosen from the cross-validated scores.
-#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Rule {
     /// The best cross-validated score.
@@ -465,7 +478,7 @@ pub enum Rule {
     OneSe,
 }
 
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ReportSpec {
     #[serde(default = "default_formats")]
@@ -484,7 +497,9 @@ fn default_formats() -> Vec<ReportFormat> {
     vec![ReportFormat::Markdown]
 }
 
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord)]
+#[derive(
+    Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord, JsonSchema,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum ReportFormat {
     Markdown,

@@ -5,6 +5,7 @@ mod compare;
 mod inspect;
 mod run;
 mod scaffold;
+mod schema;
 mod simulate;
 mod verify;
 
@@ -31,6 +32,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Folds(args) => inspect::folds(&args),
         Command::Compare(args) => compare::compare(&args),
         Command::New(args) => scaffold::scaffold(&args),
+        Command::Schema => schema::schema(),
     }
 }
 

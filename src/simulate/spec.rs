@@ -4,6 +4,7 @@
 
 use std::collections::BTreeMap;
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use super::expr;
@@ -11,7 +12,7 @@ use crate::error::SpecError;
 use crate::spec::{SplitMethod, SplitSpec};
 
 /// `[simulate]` as written.
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SimulateSpec {
     /// The true regression function over the named inputs.
@@ -50,7 +51,7 @@ fn default_target() -> String {
 
 /// The distribution of one input, written as a one-key table
 /// (`{ uniform = [a, b] }`), the same in TOML and YAML.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(try_from = "InputTable", into = "InputTable")]
 pub enum InputSpec {
     /// Uniform on [a, b].
@@ -62,7 +63,7 @@ pub enum InputSpec {
 }
 
 /// The table an input is written as.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize)]
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 struct InputTable {
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -105,14 +106,14 @@ impl From<InputSpec> for InputTable {
 }
 
 /// The noise distribution, written `{ normal = sd }`.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(from = "NoiseTable", into = "NoiseTable")]
 pub enum NoiseSpec {
     /// Normal with mean 0 and this standard deviation.
     Normal(f64),
 }
 
-#[derive(Debug, Clone, Copy, Deserialize, Serialize)]
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 struct NoiseTable {
     normal: f64,
@@ -132,7 +133,7 @@ impl From<NoiseSpec> for NoiseTable {
     }
 }
 
-#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Design {
     #[default]

@@ -12,6 +12,7 @@ mod reports;
 mod reproducible;
 mod ridge_lasso;
 mod scaffold;
+mod schema;
 mod simulation;
 mod smoothing_spline;
 mod splines;

@@ -1,0 +1,101 @@
+//! `heldout schema`: the JSON Schema accepts the demo specs and rejects a
+//! misspelt key, checked by a general-purpose validator (the `jsonschema`
+//! package from PyPI, see tests/fixtures/schema/check_specs.py); its text is
+//! pinned by an insta snapshot so changes to the spec's shape are reviewed.
+
+use std::process::Command;
+
+use crate::util;
+
+fn schema_text() -> String {
+    let output = util::run_in(&util::crate_root(), &["schema"]);
+    assert_eq!(
+        output.status.code(),
+        Some(0),
+        "{}",
+        util::stderr_of(&output)
+    );
+    util::stdout_of(&output)
+}
+
+#[test]
+fn schema_names_every_family_and_forbids_unknown_keys() {
+    let schema: serde_json::Value = serde_json::from_str(&schema_text()).unwrap();
+    assert_eq!(schema["additionalProperties"], false);
+    let defs = &schema["$defs"];
+    assert_eq!(defs["CandidateSpec"]["additionalProperties"], false);
+    let families: Vec<&str> = defs["FamilyName"]["enum"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_str().unwrap())
+        .collect();
+    for family in [
+        "linear",
+        "polynomial",
+        "nearest-neighbors",
+        "smoothing-spline",
+        "spline",
+        "thin-plate",
+        "ridge",
+        "lasso",
+    ] {
+        assert!(families.contains(&family), "{family} missing: {families:?}");
+    }
+    insta::assert_snapshot!("spec_schema", schema_text());
+}
+
+/// Why the Python validator cannot run here, or `None` when it can.
+fn validator_unavailable() -> Option<String> {
+    match Command::new("python3")
+        .args(["-c", "import tomllib, jsonschema"])
+        .output()
+    {
+        Err(e) => Some(format!("python3 could not be started ({e})")),
+        Ok(out) if !out.status.success() => Some(format!(
+            "`import tomllib, jsonschema` failed (needs Python >= 3.11 and \
+             `python3 -m pip install jsonschema==4.26.0`): {}",
+            String::from_utf8_lossy(&out.stderr)
+                .lines()
+                .last()
+                .unwrap_or("no message")
+        )),
+        Ok(_) => None,
+    }
+}
+
+#[test]
+fn a_general_purpose_validator_accepts_the_demo_specs_and_rejects_a_typo() {
+    if let Some(why) = validator_unavailable() {
+        eprintln!("schema: SKIPPED the jsonschema validation: {why}");
+        return;
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let schema = dir.path().join("schema.json");
+    std::fs::write(&schema, schema_text()).unwrap();
+    let root = util::crate_root();
+    let demo = std::fs::read_to_string(root.join("specs/heat-demand.toml")).unwrap();
+    let typo = dir.path().join("typo.toml");
+    std::fs::write(&typo, demo.replacen("repeats = 3", "repeat = 3", 1)).unwrap();
+    let specs = [
+        root.join("specs/heat-demand.toml"),
+        root.join("specs/heat-demand-simulation.toml"),
+        typo.clone(),
+    ];
+    let output = Command::new("python3")
+        .arg(root.join("tests/fixtures/schema/check_specs.py"))
+        .arg(&schema)
+        .args(&specs)
+        .output()
+        .expect("python3 could not be started");
+    assert!(output.status.success(), "{}", util::stderr_of(&output));
+    let lines: Vec<String> = util::stdout_of(&output).lines().map(String::from).collect();
+    assert_eq!(lines.len(), 3, "{lines:?}");
+    assert!(lines[0].starts_with("ok "), "{}", lines[0]);
+    assert!(lines[1].starts_with("ok "), "{}", lines[1]);
+    assert!(
+        lines[2].starts_with("invalid ") && lines[2].contains("'repeat'"),
+        "the misspelt key must be named: {}",
+        lines[2]
+    );
+}
