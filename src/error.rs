@@ -135,9 +135,10 @@ pub enum FitError {
         rows: usize,
     },
     #[error(
-        "{setting}: a smoothing spline's effective df must lie in (2, {distinct}], where \
+        "{setting}: a smoothing spline's effective df must lie in [2, {distinct}], where \
          {distinct} is the number of distinct values of feature \"{feature}\" in the training \
-         rows (df = 2 is the straight line); choose a df in that range"
+         rows (df = 2 is the straight line, df = {distinct} interpolates); choose a df in that \
+         range"
     )]
     DfOutOfRange {
         setting: String,

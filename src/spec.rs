@@ -928,7 +928,21 @@ fn validate_candidate(
             check_grid(k, 1, usize::MAX, &format!("{key}.k"), "k", invalid)
         }
         FamilySpec::Spline { df, .. } => check_grid(df, 1, 50, &format!("{key}.df"), "df", invalid),
-        FamilySpec::SmoothingSpline { grid, .. } => check_smoother_grid(grid, key, invalid),
+        FamilySpec::SmoothingSpline { grid, .. } => {
+            check_smoother_grid(grid, key, invalid)?;
+            if let SmootherGrid::Df(values) = grid {
+                if let Some(df) = values.iter().find(|&&d| d < 2.0) {
+                    return Err(invalid(
+                        &format!("{key}.df"),
+                        format!(
+                            "df = {df} is below 2: every smoothing spline contains the \
+                             least-squares line (df = 2, the limit of an unbounded penalty)"
+                        ),
+                    ));
+                }
+            }
+            Ok(())
+        }
         FamilySpec::ThinPlate {
             grid,
             knots,
@@ -1104,6 +1118,19 @@ candidate:
             .to_string();
         assert!(err.contains("candidate[1] (polynomial).degree"), "{err}");
         assert!(err.contains("degree = 0"), "{err}");
+    }
+
+    #[test]
+    fn smoothing_spline_df_below_two_is_refused_and_two_is_allowed() {
+        let with = |settings: &str| {
+            let text = MINIMAL.replace("family = \"polynomial\"\ndegree = [1, 2]", settings);
+            let spec = parse(Path::new("s.toml"), &text).unwrap();
+            validate(Path::new("s.toml"), &spec).map_err(|e| e.to_string())
+        };
+        with("family = \"smoothing-spline\"\ndf = [2, 3, 5, 8, 12, 20]").unwrap();
+        let err = with("family = \"smoothing-spline\"\ndf = [1.5, 3]").unwrap_err();
+        assert!(err.contains("candidate[1] (smoothing-spline).df"), "{err}");
+        assert!(err.contains("df = 1.5 is below 2"), "{err}");
     }
 
     #[test]

@@ -25,8 +25,9 @@
 //!   of squares, so the fit is the same; the trace of the collapsed weighted
 //!   smoother equals the trace of the smoother over all rows. Values that
 //!   differ in the last bit are distinct knots.
-//! - **df grid.** A target df must lie in (2, m]: df → 2 is the weighted
-//!   least-squares line (λ → ∞), df = m interpolates the knot means (λ = 0).
+//! - **df grid.** A target df must lie in [2, m]: df = 2 is the weighted
+//!   least-squares line (the limit λ → ∞, fitted as that line), df = m
+//!   interpolates the knot means (λ = 0).
 //!   λ is found by Brent's bracketing root finder (Brent 1973, *Algorithms for
 //!   Minimization without Derivatives*, ch. 4) on log λ, independently for
 //!   each setting, until the trace matches to 1e-11 relative or the bracket
@@ -173,9 +174,31 @@ impl Prepared {
         })
     }
 
-    /// The fit for penalty `lambda` ≥ 0 on the unit scale.
+    /// The fit for penalty `lambda` ≥ 0 on the unit scale; `lambda` = ∞ is
+    /// the limit, the weighted least-squares line.
     fn fit(&self, lambda: f64) -> Result<KnotFit, Singular> {
         let weight = &self.knots.weight;
+        if lambda == f64::INFINITY {
+            // Hat diagonal of a weighted line: 1/Σw + (tᵢ − t̄)²/Sₜₜ per row.
+            let total: f64 = weight.iter().sum();
+            let t = &self.knots.t;
+            let t_bar = weighted_sum(t, weight) / total;
+            let s_tt: f64 = t
+                .iter()
+                .zip(weight)
+                .map(|(t, w)| w * (t - t_bar) * (t - t_bar))
+                .sum();
+            let leverage: Vec<f64> = t
+                .iter()
+                .map(|t| 1.0 / total + (t - t_bar) * (t - t_bar) / s_tt)
+                .collect();
+            return Ok(KnotFit {
+                values: self.line.clone(),
+                slopes: vec![self.line_slope; t.len()],
+                trace: weighted_sum(&leverage, weight),
+                leverage,
+            });
+        }
         if lambda == 0.0 {
             // Interpolation of the knot means: S = I.
             let values = self.knots.mean_y.clone();
@@ -412,6 +435,9 @@ impl SmoothingSpline {
             SmootherGrid::Df(values) => {
                 let df = values[index];
                 let distinct = prepared.knots.count();
+                if df == 2.0 {
+                    return Ok(f64::INFINITY);
+                }
                 if !(df > 2.0 && df <= distinct as f64) {
                     return Err(FitError::DfOutOfRange {
                         setting: setting.to_string(),

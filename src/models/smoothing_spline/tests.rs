@@ -343,10 +343,10 @@ fn two_distinct_values_give_the_line_through_their_means() {
 
 #[test]
 fn df_outside_its_range_is_an_error() {
-    // Source: the trace of a cubic smoothing spline lies in (2, m] (common
+    // Source: the trace of a cubic smoothing spline lies in [2, m] (common
     // practice); outside it no penalty exists, and the error names the setting.
     let (x, y) = invented(12, 0.0, 1.0, 8);
-    for df in [2.0, 12.5] {
+    for df in [1.5, 12.5] {
         let err = spline(SmootherGrid::Df(vec![df]))
             .fit_path(&column(&x), &y, &column(&[0.5]), false)
             .unwrap_err();
@@ -358,13 +358,52 @@ fn df_outside_its_range_is_an_error() {
                 distinct: 12,
             }
         );
-        assert!(err.to_string().contains("(2, 12]"), "{err}");
+        assert!(err.to_string().contains("[2, 12]"), "{err}");
     }
     // df = m is allowed: the interpolating spline.
     let fit = &spline(SmootherGrid::Df(vec![12.0]))
         .fit_path(&column(&x), &y, &column(&[0.5]), true)
         .unwrap()[0];
     assert_eq!(fit.train_pred, y);
+}
+
+#[test]
+fn df_two_is_the_least_squares_line_with_its_leave_one_out() {
+    // df = 2 is the limit of an unbounded penalty: the least-squares line
+    // (common practice), its trace 2, and leave-one-out equal to refitting
+    // the line without each row; with a tie, so weights enter.
+    let (mut x, y) = invented(20, -2.0, 5.0, 11);
+    x[7] = x[3];
+    let model = spline(SmootherGrid::Df(vec![2.0, 5.0]));
+    let fits = model.fit_path(&column(&x), &y, &column(&x), true).unwrap();
+    let line = straight_line(&x, &y);
+    for (got, want) in fits[0].train_pred.iter().zip(&line) {
+        assert!(relative(*got, *want) < 1e-12, "{got} vs {want}");
+    }
+    for (got, want) in fits[0].eval_pred.iter().zip(&line) {
+        assert!(relative(*got, *want) < 1e-12, "{got} vs {want}");
+    }
+    assert!((fits[0].effective_df - 2.0).abs() < 1e-12);
+    assert!(fits[1].effective_df > 4.999);
+    let shortcut = model.leave_one_out(&column(&x), &y).unwrap().unwrap();
+    for i in 0..x.len() {
+        let keep: Vec<usize> = (0..x.len()).filter(|&r| r != i).collect();
+        let x_rest: Vec<f64> = keep.iter().map(|&r| x[r]).collect();
+        let y_rest: Vec<f64> = keep.iter().map(|&r| y[r]).collect();
+        let n = x_rest.len() as f64;
+        let (xm, ym) = (
+            x_rest.iter().sum::<f64>() / n,
+            y_rest.iter().sum::<f64>() / n,
+        );
+        let sxy: f64 = x_rest
+            .iter()
+            .zip(&y_rest)
+            .map(|(a, b)| (a - xm) * (b - ym))
+            .sum();
+        let sxx: f64 = x_rest.iter().map(|a| (a - xm) * (a - xm)).sum();
+        let refit = ym + sxy / sxx * (x[i] - xm);
+        assert!(relative(shortcut[0][i], refit) <= 1e-9, "row {i}");
+    }
 }
 
 #[test]
