@@ -11,6 +11,7 @@ mod reports;
 mod reproducible;
 mod ridge_lasso;
 mod simulation;
+mod simulation_report;
 mod smoothing_spline;
 mod splines;
 mod split_reference;
