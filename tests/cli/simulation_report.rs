@@ -11,9 +11,9 @@ use crate::simulation::{demo_spec, heldout_ok, number};
 
 const FIGURE: &str = "bias-variance.svg";
 /// Colours of the figure (src/report/figures/palette.rs): expected error is
-/// ink, squared bias claret, variance lichen teal, the noise floor muted.
+/// ink, squared bias ember orange, variance lichen teal, the noise floor muted.
 const INK: &str = "#1D232B";
-const BIAS: &str = "#9E1F3A";
+const BIAS: &str = "#D0711C";
 const VARIANCE: &str = "#3C9A8A";
 const MUTED: &str = "#555E6A";
 

@@ -333,7 +333,7 @@ fn caption(
         ""
     };
     format!(
-        "Expected test error (ink circles) and its parts, squared bias (claret squares) and \
+        "Expected test error (ink circles) and its parts, squared bias (orange squares) and \
          variance (teal triangles), of every setting against its effective degrees of \
          freedom{panels}{scale}. Each value averages {replicates} simulated training sets of \
          {n} rows, evaluated at {m} test points. The dashed line is the noise floor σ² = \

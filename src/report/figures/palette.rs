@@ -21,9 +21,10 @@ pub const SERIES: [RGBColor; 5] = [
     RGBColor(0x8a, 0x7f, 0xc0), // heather
 ];
 
-/// Squared bias in the bias–variance figure (claret, a series colour: the
-/// figure's colours stand for quantities, and its panels name the family).
-pub const BIAS: RGBColor = SERIES[2];
+/// Squared bias in the bias–variance figure (ember orange, a series colour:
+/// the figure's colours stand for quantities, and its panels name the family).
+/// Claret would sit too close to ink under protanopia (tested below).
+pub const BIAS: RGBColor = SERIES[1];
 /// Variance in the bias–variance figure (lichen teal).
 pub const VARIANCE: RGBColor = SERIES[3];
 
