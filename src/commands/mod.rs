@@ -3,6 +3,7 @@
 
 mod compare;
 mod inspect;
+mod render;
 mod run;
 mod simulate;
 mod verify;
@@ -29,6 +30,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Plan(args) => inspect::plan(&args),
         Command::Folds(args) => inspect::folds(&args),
         Command::Compare(args) => compare::compare(&args),
+        Command::Report(args) => render::report(&args),
     }
 }
 
@@ -114,13 +116,7 @@ fn finish(
 ) -> anyhow::Result<Evaluation> {
     let mut results = results::assemble(&plan, fits);
     results.simulation = simulation;
-    let stem = spec_path
-        .file_stem()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    // The same spec in YAML gives the same bytes, so the command names the
-    // TOML form; the report says a YAML twin works alike.
-    let regenerate = format!("heldout verify {stem}.toml\nheldout run {stem}.toml");
+    let regenerate = regenerate_command(spec_path);
     let spec_text = report::spec_as_read(&plan.spec.spec);
     let inputs = report::ReportInputs {
         regenerate: &regenerate,
@@ -136,6 +132,17 @@ fn finish(
         receipt,
         summary,
     })
+}
+
+/// The commands a report gives for regenerating its outputs, run from the
+/// spec's folder. The same spec in YAML gives the same bytes, so they name
+/// the TOML form; the report says a YAML twin works alike.
+fn regenerate_command(spec_path: &Path) -> String {
+    let stem = spec_path
+        .file_stem()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    format!("heldout verify {stem}.toml\nheldout run {stem}.toml")
 }
 
 /// Whether progress may be drawn on stderr.

@@ -57,6 +57,19 @@ pub fn render_outputs(
         "results.json".to_string(),
         results::to_json(results).into_bytes(),
     )];
+    outputs.extend(render_reports(results, formats, inputs)?);
+    Ok(outputs)
+}
+
+/// The report files alone, in the order of [`render_outputs`]: the figures as
+/// `figures/*.svg`, then the reports asked for; nothing when none is asked
+/// for. `heldout report` writes these from stored results.
+pub fn render_reports(
+    results: &Results,
+    formats: &[ReportFormat],
+    inputs: &ReportInputs<'_>,
+) -> Result<Vec<(String, Vec<u8>)>, ReportError> {
+    let mut outputs = Vec::new();
     if formats.is_empty() {
         return Ok(outputs);
     }

@@ -7,6 +7,7 @@ mod bad_input;
 mod cv_reference;
 mod demo;
 mod nist;
+mod report_command;
 mod reports;
 mod reproducible;
 mod ridge_lasso;
