@@ -51,6 +51,19 @@ pub enum Command {
         `test`). The algorithm is written out in docs/splits.md."
     )]
     Folds(FoldsArgs),
+    /// Re-render report.md, report.html and the figures from the stored
+    /// results.json, fitting nothing (templates change, numbers don't).
+    #[command(
+        after_help = "Example (after upgrading heldout, or to restore deleted report files):\n  \
+        heldout report specs/heat-demand.toml --out out\n\n\
+        Reads out/<experiment name>/results.json and writes the figures and the\n\
+        reports the spec's [report] formats ask for beside it. results.json and\n\
+        the receipt are left as they are. The stored results must belong to the\n\
+        spec as it is now: if the spec's meaning or its data file changed since\n\
+        `heldout run`, this says which and exits 2; run the spec again (cached\n\
+        fits are reused)."
+    )]
+    Report(ReportArgs),
     /// Say what changed between two results.json files: inputs, candidates
     /// added or removed, every number that moved (absolute and relative), and
     /// whether the choice changed. Markdown on stdout, for a pull-request comment.
@@ -104,7 +117,7 @@ pub struct RunArgs {
     /// Spec files (TOML or YAML) to run, one after another.
     #[arg(required = true, value_name = "SPEC")]
     pub specs: Vec<PathBuf>,
-    /// Folder for outputs; each experiment writes into <OUT>/<name>/.
+    /// Folder for outputs; each experiment writes into DIR/NAME/ (NAME: the experiment name).
     #[arg(long, value_name = "DIR", default_value = "out")]
     pub out: PathBuf,
     #[command(flatten)]
@@ -174,6 +187,19 @@ pub struct NewArgs {
     /// Overwrite --output if it exists.
     #[arg(long)]
     pub force: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// Spec files whose reports to re-render, one after another.
+    #[arg(required = true, value_name = "SPEC")]
+    pub specs: Vec<PathBuf>,
+    /// Folder where `run` wrote outputs; reads and writes DIR/NAME/ (NAME: the experiment name).
+    #[arg(long, value_name = "DIR", default_value = "out")]
+    pub out: PathBuf,
+    /// Print nothing but errors and notes.
+    #[arg(long, short)]
+    pub quiet: bool,
 }
 
 #[derive(Debug, Args)]

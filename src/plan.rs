@@ -248,7 +248,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
 }
 
 /// `path` resolved against the spec's folder when relative.
-fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
+pub fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
     if path.is_absolute() {
         path.to_path_buf()
     } else {

@@ -1,9 +1,11 @@
 //! The results of an experiment as written to `results.json`
-//! (schema `heldout-results/1`, DESIGN.md §2.3), and their assembly from a
-//! plan and its fits. Numbers are serialised with shortest round-trip
-//! formatting, so the JSON holds the exact bits.
+//! (schema `heldout-results/1`, DESIGN.md §2.3), their assembly from a plan
+//! and its fits, and reading them back (`heldout report`). Numbers are
+//! serialised with shortest round-trip formatting, so the JSON holds the
+//! exact bits; JSON has no NaN or infinity, so those are written as `null`
+//! and read back as NaN (see [`lenient`]).
 
-use serde::{Serialize, Serializer};
+use serde::{Deserialize, Serialize, Serializer};
 
 use crate::assess::{self, Choice, SettingScore};
 use crate::execute::CandidateFits;
@@ -12,9 +14,9 @@ use crate::spec::{Metric, Rule, SplitMethod};
 
 pub const SCHEMA: &str = "heldout-results/1";
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Results {
-    pub schema: &'static str,
+    pub schema: String,
     pub experiment: String,
     pub title: Option<String>,
     /// Digests of what produced these numbers (also in the receipt).
@@ -33,11 +35,13 @@ pub struct Results {
     /// Simulation specs only: `simulation` (the bias–variance decomposition
     /// of every setting) and `simulation_summary` (setup, oracle and
     /// cross-validation's choices), flattened into the top level.
-    #[serde(flatten)]
+    /// (Read back by [`from_json`], not by the derived deserialiser, so that
+    /// a malformed section is an error rather than silently absent.)
+    #[serde(flatten, skip_deserializing)]
     pub simulation: Option<crate::simulate::SimulationOutput>,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Inputs {
     pub tool: String,
     /// blake3 of the spec's meaning (see `receipt::spec_digest`).
@@ -47,7 +51,7 @@ pub struct Inputs {
     pub folds: String,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct RowCounts {
     /// Rows kept after dropping rows with missing cells.
     pub total: usize,
@@ -56,7 +60,7 @@ pub struct RowCounts {
     pub dropped: usize,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct DataSummary {
     /// The table path as written in the spec.
     pub table: String,
@@ -71,10 +75,11 @@ pub struct DataSummary {
     pub order: Option<String>,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SplitSummary {
     pub method: SplitMethod,
     pub seed: u64,
+    #[serde(deserialize_with = "lenient::number")]
     pub holdout: f64,
     /// Folds per repeat.
     pub folds: usize,
@@ -83,24 +88,31 @@ pub struct SplitSummary {
     pub fold_rows: [usize; 2],
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct CandidateResult {
     pub id: String,
     pub family: String,
     pub features: Vec<String>,
     pub setting: serde_json::Map<String, serde_json::Value>,
+    #[serde(deserialize_with = "lenient::number")]
     pub effective_df: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub train_score: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub cv_score: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub cv_se: f64,
+    #[serde(deserialize_with = "lenient::numbers")]
     pub fold_scores: Vec<f64>,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct ChoiceSummary {
     /// The setting with the best cross-validated score.
     pub best: String,
+    #[serde(deserialize_with = "lenient::number")]
     pub best_cv_score: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub best_cv_se: f64,
     /// one-se: scores no worse than this were eligible.
     pub threshold: Option<f64>,
@@ -108,16 +120,19 @@ pub struct ChoiceSummary {
     pub eligible: usize,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct FinalFit {
     pub id: String,
     /// Score on the locked test set; absent without a test set.
     pub test_score: Option<f64>,
     /// Training score of the refit on all non-test rows.
+    #[serde(deserialize_with = "lenient::number")]
     pub train_score: f64,
     /// Name → value in the raw units of the features, intercept first.
     #[serde(
+        default,
         serialize_with = "ordered_map",
+        deserialize_with = "lenient::ordered_pairs",
         skip_serializing_if = "Option::is_none"
     )]
     pub coefficients: Option<Vec<(String, f64)>>,
@@ -129,7 +144,7 @@ pub struct FinalFit {
 /// refitted on all non-test rows), at the training rows and at the locked
 /// test rows. At most [`PREDICTION_POINTS`] rows of each set are kept, evenly
 /// spaced in row order, so `results.json` stays small.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Predictions {
     /// The one feature the chosen fit uses; absent when it uses several (the
     /// report then plots observed against predicted).
@@ -139,14 +154,20 @@ pub struct Predictions {
     pub test: Option<PredictionSet>,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct PredictionSet {
     /// Rows in the set; the arrays hold at most [`PREDICTION_POINTS`] of them.
     pub rows: usize,
     /// Values of `feature`, when there is one feature.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_numbers"
+    )]
     pub x: Option<Vec<f64>>,
+    #[serde(deserialize_with = "lenient::numbers")]
     pub observed: Vec<f64>,
+    #[serde(deserialize_with = "lenient::numbers")]
     pub predicted: Vec<f64>,
 }
 
@@ -279,7 +300,7 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
         fold_sizes.max().unwrap_or(0),
     ];
     Results {
-        schema: SCHEMA,
+        schema: SCHEMA.to_string(),
         experiment: spec.experiment.name.clone(),
         title: spec.experiment.title.clone(),
         inputs: Inputs {
@@ -338,6 +359,94 @@ fn setting_value_json(value: crate::models::SettingValue) -> serde_json::Value {
     match value {
         crate::models::SettingValue::Count(n) => serde_json::Value::from(n),
         crate::models::SettingValue::Real(v) => serde_json::Value::from(v),
+    }
+}
+
+/// Why stored results cannot be read back.
+#[derive(Debug, thiserror::Error)]
+pub enum ReadError {
+    #[error("not JSON: {0}")]
+    Json(#[from] serde_json::Error),
+    #[error("schema {found:?}, but this heldout reads {SCHEMA:?}")]
+    Schema { found: String },
+}
+
+/// Reads results written by [`to_json`]. Numbers come back bit for bit;
+/// `null` (a NaN or infinity when written) comes back as NaN, and an absent
+/// test score or one-SE threshold that the rest of the results say was
+/// computed comes back as `Some(NaN)`.
+pub fn from_json(text: &str) -> Result<Results, ReadError> {
+    let mut value: serde_json::Value = serde_json::from_str(text)?;
+    let found = value["schema"].as_str().unwrap_or_default().to_string();
+    if found != SCHEMA {
+        return Err(ReadError::Schema { found });
+    }
+    let simulation = match value.as_object_mut() {
+        Some(object) if object.contains_key("simulation") => {
+            let mut part = serde_json::Map::new();
+            for key in ["simulation", "simulation_summary"] {
+                if let Some(v) = object.remove(key) {
+                    part.insert(key.to_string(), v);
+                }
+            }
+            Some(crate::simulate::SimulationOutput::deserialize(
+                serde_json::Value::Object(part),
+            )?)
+        }
+        _ => None,
+    };
+    let mut results = Results::deserialize(value)?;
+    results.simulation = simulation;
+    if results.rows.test > 0 {
+        results.test_score.get_or_insert(f64::NAN);
+        results.final_fit.test_score.get_or_insert(f64::NAN);
+    }
+    if results.rule == Rule::OneSe {
+        results.choice.threshold.get_or_insert(f64::NAN);
+    }
+    Ok(results)
+}
+
+/// Deserialisers for numbers that may have been written as `null`.
+pub mod lenient {
+    use serde::{Deserialize, Deserializer};
+
+    fn or_nan(value: Option<f64>) -> f64 {
+        value.unwrap_or(f64::NAN)
+    }
+
+    pub fn number<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+        Ok(or_nan(Option::deserialize(d)?))
+    }
+
+    pub fn numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
+        let values: Vec<Option<f64>> = Vec::deserialize(d)?;
+        Ok(values.into_iter().map(or_nan).collect())
+    }
+
+    pub fn optional_numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Vec<f64>>, D::Error> {
+        let values: Option<Vec<Option<f64>>> = Option::deserialize(d)?;
+        Ok(values.map(|v| v.into_iter().map(or_nan).collect()))
+    }
+
+    /// A JSON object of numbers, in the order it is written.
+    pub fn ordered_pairs<'de, D: Deserializer<'de>>(
+        d: D,
+    ) -> Result<Option<Vec<(String, f64)>>, D::Error> {
+        let map: Option<serde_json::Map<String, serde_json::Value>> = Option::deserialize(d)?;
+        map.map(|m| {
+            m.into_iter()
+                .map(|(name, v)| match v {
+                    serde_json::Value::Null => Ok((name, f64::NAN)),
+                    serde_json::Value::Number(n) => n
+                        .as_f64()
+                        .map(|x| (name, x))
+                        .ok_or_else(|| serde::de::Error::custom("a coefficient is not a double")),
+                    _ => Err(serde::de::Error::custom("a coefficient is not a number")),
+                })
+                .collect()
+        })
+        .transpose()
     }
 }
 

@@ -3,6 +3,7 @@
 
 mod compare;
 mod inspect;
+mod render;
 mod run;
 mod scaffold;
 mod schema;
@@ -33,6 +34,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Compare(args) => compare::compare(&args),
         Command::New(args) => scaffold::scaffold(&args),
         Command::Schema => schema::schema(),
+        Command::Report(args) => render::report(&args),
     }
 }
 
@@ -118,13 +120,7 @@ fn finish(
 ) -> anyhow::Result<Evaluation> {
     let mut results = results::assemble(&plan, fits);
     results.simulation = simulation;
-    let stem = spec_path
-        .file_stem()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    // The same spec in YAML gives the same bytes, so the command names the
-    // TOML form; the report says a YAML twin works alike.
-    let regenerate = format!("heldout verify {stem}.toml\nheldout run {stem}.toml");
+    let regenerate = regenerate_command(spec_path);
     let spec_text = report::spec_as_read(&plan.spec.spec);
     let inputs = report::ReportInputs {
         regenerate: &regenerate,
@@ -140,6 +136,17 @@ fn finish(
         receipt,
         summary,
     })
+}
+
+/// The commands a report gives for regenerating its outputs, run from the
+/// spec's folder. The same spec in YAML gives the same bytes, so they name
+/// the TOML form; the report says a YAML twin works alike.
+fn regenerate_command(spec_path: &Path) -> String {
+    let stem = spec_path
+        .file_stem()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    format!("heldout verify {stem}.toml\nheldout run {stem}.toml")
 }
 
 /// Whether progress may be drawn on stderr.

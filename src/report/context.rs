@@ -5,7 +5,7 @@
 use minijinja::{context, Value};
 use serde::Serialize;
 
-use super::figures::Figure;
+use super::figures::{Figure, Section};
 use crate::results::{CandidateResult, Results};
 
 /// Everything a report needs besides the results and figures.
@@ -26,6 +26,8 @@ struct FigureView<'a> {
     alt: &'a str,
     /// The SVG markup, whose texts plotters has already XML-escaped.
     svg: &'a str,
+    /// Shown in the simulation section rather than with the other figures.
+    simulation: bool,
 }
 
 /// A family and how many settings of it were compared.
@@ -70,18 +72,43 @@ pub fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Figure]) -
             }),
         }
     }
-    let figure_views: Vec<FigureView<'_>> = figures
-        .iter()
-        .enumerate()
-        .map(|(i, f)| FigureView {
-            number: i + 1,
-            file: &f.file,
-            title: &f.title,
-            caption: &f.caption,
-            alt: &f.alt,
-            svg: &f.svg,
-        })
-        .collect();
+    // Numbered in reading order: the evidence figures, then the simulation's.
+    let mut figure_views: Vec<FigureView<'_>> = Vec::new();
+    for section in [Section::Evidence, Section::Simulation] {
+        for f in figures.iter().filter(|f| f.section == section) {
+            figure_views.push(FigureView {
+                number: figure_views.len() + 1,
+                file: &f.file,
+                title: &f.title,
+                caption: &f.caption,
+                alt: &f.alt,
+                svg: &f.svg,
+                simulation: section == Section::Simulation,
+            });
+        }
+    }
+    let (simulation_figures, figure_views): (Vec<FigureView<'_>>, Vec<FigureView<'_>>) =
+        figure_views.into_iter().partition(|f| f.simulation);
+    // The tables list each candidate's settings by effective df.
+    let candidates: Vec<&CandidateResult> =
+        super::table_order(&results.candidates, |c| &c.id, |c| c.effective_df)
+            .into_iter()
+            .map(|i| &results.candidates[i])
+            .collect();
+    let (simulation_rows, choice_rows) = match &results.simulation {
+        Some(sim) => {
+            let order = super::table_order(&sim.simulation, |s| &s.id, |s| s.effective_df);
+            let rows: Vec<_> = order.iter().map(|&i| &sim.simulation[i]).collect();
+            // The choice table follows the same order.
+            let choices = &sim.simulation_summary.cv.choices;
+            let chosen: Vec<_> = rows
+                .iter()
+                .filter_map(|s| choices.iter().find(|c| c.id == s.id))
+                .collect();
+            (Value::from_serialize(&rows), Value::from_serialize(&chosen))
+        }
+        None => (Value::from(()), Value::from(())),
+    };
     let provenance = vec![
         Provenance {
             what: "tool".into(),
@@ -124,6 +151,10 @@ pub fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Figure]) -
         spec_fence => code_fence(inputs.spec_text),
         provenance => Value::from_serialize(&provenance),
         figures => Value::from_serialize(&figure_views),
+        simulation_figures => Value::from_serialize(&simulation_figures),
+        candidates => Value::from_serialize(&candidates),
+        simulation_rows,
+        choice_rows,
         cautions => super::CAUTIONS.to_vec(),
     }
 }

@@ -10,6 +10,8 @@ pub mod html;
 pub mod markdown;
 pub mod terminal;
 
+use std::cmp::Ordering;
+
 use crate::results::{self, Results};
 use crate::spec::{Metric, ReportFormat};
 
@@ -55,6 +57,19 @@ pub fn render_outputs(
         "results.json".to_string(),
         results::to_json(results).into_bytes(),
     )];
+    outputs.extend(render_reports(results, formats, inputs)?);
+    Ok(outputs)
+}
+
+/// The report files alone, in the order of [`render_outputs`]: the figures as
+/// `figures/*.svg`, then the reports asked for; nothing when none is asked
+/// for. `heldout report` writes these from stored results.
+pub fn render_reports(
+    results: &Results,
+    formats: &[ReportFormat],
+    inputs: &ReportInputs<'_>,
+) -> Result<Vec<(String, Vec<u8>)>, ReportError> {
+    let mut outputs = Vec::new();
     if formats.is_empty() {
         return Ok(outputs);
     }
@@ -141,6 +156,45 @@ pub fn split_phrase(results: &Results) -> String {
     }
 }
 
+/// Positions of `items` in order of effective degrees of freedom, least
+/// flexible first. The sort is stable, so ties keep the given (spec) order;
+/// a NaN df sorts last.
+pub fn by_effective_df<T>(items: &[T], df: impl Fn(&T) -> f64) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..items.len()).collect();
+    order.sort_by(|&a, &b| {
+        let (x, y) = (df(&items[a]), df(&items[b]));
+        match (x.is_nan(), y.is_nan()) {
+            (true, true) => Ordering::Equal,
+            (true, false) => Ordering::Greater,
+            (false, true) => Ordering::Less,
+            (false, false) => x.partial_cmp(&y).unwrap_or(Ordering::Equal),
+        }
+    });
+    order
+}
+
+/// Positions of `items` as the reports' tables list them: grouped by
+/// candidate (family name or label: the stem of the id), candidates in order
+/// of first appearance, and within each by [`by_effective_df`].
+pub fn table_order<T>(items: &[T], id: impl Fn(&T) -> &str, df: impl Fn(&T) -> f64) -> Vec<usize> {
+    let mut stems: Vec<&str> = Vec::new();
+    for item in items {
+        let stem = figures::stem(id(item));
+        if !stems.contains(&stem) {
+            stems.push(stem);
+        }
+    }
+    let mut order = Vec::with_capacity(items.len());
+    for stem in stems {
+        let members: Vec<usize> = (0..items.len())
+            .filter(|&i| figures::stem(id(&items[i])) == stem)
+            .collect();
+        let within = by_effective_df(&members, |&i| df(&items[i]));
+        order.extend(within.into_iter().map(|k| members[k]));
+    }
+    order
+}
+
 /// A number for people: four significant digits, scientific when very large
 /// or small. Deterministic: uses only Rust's own float formatting.
 pub fn format_number(value: f64) -> String {
@@ -221,6 +275,42 @@ mod tests {
         assert_eq!(format_df(4.0), "4");
         assert_eq!(format_df(240.0), "240");
         assert_eq!(format_df(4.25), "4.250");
+    }
+
+    #[test]
+    fn tables_order_settings_by_effective_df_within_each_candidate() {
+        // (id, effective df): a family listed by k runs from most to least
+        // flexible; a tie keeps spec order; NaN goes last; candidates keep
+        // the order they first appear in.
+        let rows = [
+            ("nearest-neighbors/k=1", 60.0),
+            ("polynomial/degree=2", 3.0),
+            ("nearest-neighbors/k=5", 12.0),
+            ("nearest-neighbors/k=9", f64::NAN),
+            ("nearest-neighbors/k=10", 6.0),
+            ("polynomial/degree=1", 2.0),
+            ("nearest-neighbors/k=11", 6.0),
+            ("linear", 3.0),
+        ];
+        let order = table_order(&rows, |r| r.0, |r| r.1);
+        let ids: Vec<&str> = order.iter().map(|&i| rows[i].0).collect();
+        assert_eq!(
+            ids,
+            [
+                "nearest-neighbors/k=10",
+                "nearest-neighbors/k=11",
+                "nearest-neighbors/k=5",
+                "nearest-neighbors/k=1",
+                "nearest-neighbors/k=9",
+                "polynomial/degree=1",
+                "polynomial/degree=2",
+                "linear",
+            ]
+        );
+        // Every position once.
+        let mut sorted = order.clone();
+        sorted.sort_unstable();
+        assert_eq!(sorted, (0..rows.len()).collect::<Vec<_>>());
     }
 
     #[test]

@@ -7,7 +7,7 @@
 
 use std::collections::BTreeMap;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::decompose::{self, mean_and_se};
 use super::design::TestDesign;
@@ -17,9 +17,10 @@ use crate::cache;
 use crate::data::Table;
 use crate::execute::CandidateFits;
 use crate::plan::ExperimentPlan;
+use crate::results::lenient;
 
 /// The simulation's part of `results.json` (flattened into the results).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SimulationOutput {
     /// One entry per candidate setting, in results order.
     pub simulation: Vec<SimulatedSetting>,
@@ -27,35 +28,50 @@ pub struct SimulationOutput {
 }
 
 /// The decomposition of one setting's expected test error.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SimulatedSetting {
     pub id: String,
     pub family: String,
     /// Effective degrees of freedom (the mean over replicates when it varies).
+    #[serde(deserialize_with = "lenient::number")]
     pub effective_df: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub bias_sq: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub bias_sq_se: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub variance: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub variance_se: f64,
     /// σ², the irreducible error.
+    #[serde(deserialize_with = "lenient::number")]
     pub noise: f64,
     /// bias_sq + variance + noise.
+    #[serde(deserialize_with = "lenient::number")]
     pub decomposition_sum: f64,
     /// Mean squared error against independent test targets.
+    #[serde(deserialize_with = "lenient::number")]
     pub expected_mse: f64,
     /// Monte-Carlo standard error of `expected_mse`.
+    #[serde(deserialize_with = "lenient::number")]
     pub mc_se: f64,
     /// expected_mse − decomposition_sum: Monte-Carlo error of the test noise.
+    #[serde(deserialize_with = "lenient::number")]
     pub identity_gap: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub identity_gap_se: f64,
     /// Expected training mean squared error, and its standard error.
+    #[serde(deserialize_with = "lenient::number")]
     pub train_mse: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub train_mse_se: f64,
     /// Mean over replicates of the cross-validated score (the spec's metric).
+    #[serde(deserialize_with = "lenient::number")]
     pub cv_estimate: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub cv_estimate_se: f64,
     /// With `test_grid`: the average fit and the variance at each grid point.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pointwise: Option<PointwiseCurve>,
 }
 
@@ -87,70 +103,90 @@ impl SimulatedSetting {
     }
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct PointwiseCurve {
+    #[serde(deserialize_with = "lenient::numbers")]
     pub mean_fit: Vec<f64>,
+    #[serde(deserialize_with = "lenient::numbers")]
     pub bias_sq: Vec<f64>,
+    #[serde(deserialize_with = "lenient::numbers")]
     pub variance: Vec<f64>,
 }
 
 /// The setup, the oracle and cross-validation's choices.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct SimulationSummary {
     pub truth: String,
     pub target: String,
     pub inputs: BTreeMap<String, InputSpec>,
+    #[serde(deserialize_with = "lenient::number")]
     pub noise_sd: f64,
     /// σ².
+    #[serde(deserialize_with = "lenient::number")]
     pub noise: f64,
     pub train_size: usize,
     pub replicates: usize,
     /// `random` (inputs drawn per replicate) or `fixed`.
-    pub design: &'static str,
+    pub design: String,
     pub test: TestSummary,
     /// The setting with the lowest expected error.
     pub oracle: String,
+    #[serde(deserialize_with = "lenient::number")]
     pub oracle_expected_mse: f64,
     pub cv: ChoiceSummary,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct TestSummary {
     /// `points` (drawn once) or `grid` (evenly spaced).
-    pub kind: &'static str,
+    pub kind: String,
     pub count: usize,
     /// With a grid: the input it spans, the points and the truth there.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub input: Option<String>,
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_numbers"
+    )]
     pub x: Option<Vec<f64>>,
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_numbers"
+    )]
     pub truth: Option<Vec<f64>>,
 }
 
 /// What the spec's cross-validation and rule chose over the replicates.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct ChoiceSummary {
     /// Every setting in results order, with how often it was chosen.
     pub choices: Vec<ChoiceRow>,
     /// Replicates on which the choice was the oracle.
     pub chose_oracle: usize,
     /// Mean over replicates of expected_mse(choice) − expected_mse(oracle).
+    #[serde(deserialize_with = "lenient::number")]
     pub mean_excess: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub mean_excess_se: f64,
     /// Mean over replicates of expected_mse(choice).
+    #[serde(deserialize_with = "lenient::number")]
     pub expected_mse: f64,
     /// The chosen id, replicate by replicate.
     pub chosen_by_replicate: Vec<String>,
 }
 
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct ChoiceRow {
     pub id: String,
     pub count: usize,
+    #[serde(deserialize_with = "lenient::number")]
     pub share: f64,
+    #[serde(deserialize_with = "lenient::number")]
     pub expected_mse: f64,
     /// expected_mse − the oracle's.
+    #[serde(deserialize_with = "lenient::number")]
     pub excess: f64,
 }
 
@@ -261,14 +297,14 @@ pub fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> S
         .expect("a simulation plan has a [simulate] table");
     let test = match setup.test {
         TestDesign::Grid(m) => TestSummary {
-            kind: "grid",
+            kind: "grid".to_string(),
             count: m,
             input: Some(setup.names[0].clone()),
             x: Some(plan.test_x.column(0).iter().copied().collect()),
             truth: Some(plan.test_truth.clone()),
         },
         TestDesign::Points(m) => TestSummary {
-            kind: "points",
+            kind: "points".to_string(),
             count: m,
             input: None,
             x: None,
@@ -287,7 +323,8 @@ pub fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> S
             "fixed"
         } else {
             "random"
-        },
+        }
+        .to_string(),
         test,
         oracle: settings[oracle].id.clone(),
         oracle_expected_mse: best,

@@ -98,8 +98,9 @@ fn folds_chain_forward_in_time_and_the_run_verifies() {
     assert_eq!(results["split"]["fold_rows"], serde_json::json!([6, 7]));
     let report = std::fs::read_to_string(dir.path().join("out/ordered/report.md")).unwrap();
     assert!(
-        report.contains("forward-chaining cross-validation in order of"),
-        "the report names the method:\n{report}"
+        report.contains("forward-chaining cross-validation in order of")
+            && report.contains("the latest by day, later than every row the choice saw"),
+        "the report names the method and the test set:\n{report}"
     );
     let verify = util::run_in(dir.path(), &["verify", "spec.toml", "--quiet"]);
     expect_ok(&verify, "heldout verify");

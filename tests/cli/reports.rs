@@ -22,12 +22,12 @@ fn run_demo(dir: &Path) -> PathBuf {
     dir.join("out/heat-demand")
 }
 
-fn read(path: &Path) -> String {
+pub fn read(path: &Path) -> String {
     std::fs::read_to_string(path).unwrap_or_else(|e| panic!("cannot read {}: {e}", path.display()))
 }
 
 /// The inline `<svg>…</svg>` blocks of a page, in order.
-fn inline_svgs(html: &str) -> Vec<&str> {
+pub fn inline_svgs(html: &str) -> Vec<&str> {
     let mut found = Vec::new();
     let mut rest = html;
     while let Some(start) = rest.find("<svg ") {
@@ -40,7 +40,7 @@ fn inline_svgs(html: &str) -> Vec<&str> {
 
 /// The page with each inline SVG replaced by its size and digest (the SVGs
 /// are pinned by their own snapshots).
-fn without_svgs(html: &str) -> String {
+pub fn without_svgs(html: &str) -> String {
     let mut out = html.to_string();
     for svg in inline_svgs(html) {
         let digest = blake3::hash(svg.as_bytes()).to_hex();
@@ -252,6 +252,84 @@ fn reports_without_a_test_set_and_with_several_features() {
     assert!(html.contains("holdout = 0"));
     let markdown = read(&out.join("report.md"));
     assert!(markdown.contains("no independent final score"));
+}
+
+#[test]
+fn tables_list_settings_by_effective_df_while_results_keep_spec_order() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = run_demo(dir.path());
+    let results = util::read_json(&out.join("results.json"));
+    let candidates = results["candidates"].as_array().unwrap();
+    // results.json keeps spec order: k = 1, 2, 3, … (most flexible first).
+    let neighbours: Vec<&str> = candidates
+        .iter()
+        .filter(|c| c["family"] == "nearest-neighbors")
+        .map(|c| c["id"].as_str().unwrap())
+        .collect();
+    assert_eq!(neighbours[0], "nearest-neighbors/k=1");
+    assert_eq!(neighbours[neighbours.len() - 1], "nearest-neighbors/k=80");
+    let df_of = |id: &str| {
+        candidates
+            .iter()
+            .find(|c| c["id"] == id)
+            .unwrap_or_else(|| panic!("{id} not in results"))["effective_df"]
+            .as_f64()
+            .unwrap()
+    };
+
+    // The Markdown table: every setting once, each candidate's settings by
+    // effective df, candidates in spec order.
+    let markdown = read(&out.join("report.md"));
+    let table = &markdown[markdown.find("## Every candidate and setting").unwrap()..];
+    let table = &table[..table.find("\n##").unwrap()];
+    assert!(table.contains("its settings by effective degrees of freedom, least flexible first"));
+    let rows: Vec<&str> = table
+        .lines()
+        .filter(|l| l.starts_with("| ") && !l.starts_with("| candidate"))
+        .map(|l| l[2..].split(" |").next().unwrap())
+        .collect();
+    assert_eq!(rows.len(), candidates.len());
+    let stem = |id: &str| id.split('/').next().unwrap().to_string();
+    let mut stems: Vec<String> = rows.iter().map(|id| stem(id)).collect();
+    stems.dedup();
+    let spec_stems: Vec<String> = {
+        let mut all: Vec<String> = candidates
+            .iter()
+            .map(|c| stem(c["id"].as_str().unwrap()))
+            .collect();
+        all.dedup();
+        all
+    };
+    assert_eq!(
+        stems, spec_stems,
+        "candidates in spec order, each in one block"
+    );
+    for pair in rows.windows(2) {
+        if stem(pair[0]) == stem(pair[1]) {
+            assert!(
+                df_of(pair[0]) <= df_of(pair[1]),
+                "{} before {}",
+                pair[0],
+                pair[1]
+            );
+        }
+    }
+    let first = rows
+        .iter()
+        .position(|id| id.starts_with("nearest"))
+        .unwrap();
+    assert_eq!(rows[first], "nearest-neighbors/k=80");
+
+    // The HTML table lists the same rows in the same order.
+    let html = read(&out.join("report.html"));
+    let section = &html[html.find("<section id=\"settings\">").unwrap()..];
+    let section = &section[..section.find("</table>").unwrap()];
+    let html_rows: Vec<String> = section
+        .split("<th scope=\"row\"><code>")
+        .skip(1)
+        .map(|r| r[..r.find("</code>").unwrap()].replace("&#x2f;", "/"))
+        .collect();
+    assert_eq!(html_rows, rows);
 }
 
 // ---------------------------------------------------------------------------

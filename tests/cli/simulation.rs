@@ -10,7 +10,7 @@ use serde_json::Value;
 use crate::util;
 
 /// Runs `heldout` in `dir` with a cache folder inside it (never the caller's).
-fn heldout(dir: &Path, args: &[&str]) -> Output {
+pub fn heldout(dir: &Path, args: &[&str]) -> Output {
     let mut command = util::heldout();
     command
         .current_dir(dir)
@@ -22,7 +22,7 @@ fn heldout(dir: &Path, args: &[&str]) -> Output {
         .expect("the heldout binary could not be started")
 }
 
-fn heldout_ok(dir: &Path, args: &[&str]) -> Output {
+pub fn heldout_ok(dir: &Path, args: &[&str]) -> Output {
     let output = heldout(dir, args);
     assert!(
         output.status.success(),
@@ -48,7 +48,7 @@ fn fit_counts(output: &Output) -> (usize, usize) {
 }
 
 /// The demo simulation spec with `replicates` replicates, as `specs/<file>`.
-fn demo_spec(dir: &Path, file: &str, replicates: usize) {
+pub fn demo_spec(dir: &Path, file: &str, replicates: usize) {
     let text =
         std::fs::read_to_string(util::crate_root().join("specs/heat-demand-simulation.toml"))
             .unwrap();
@@ -65,7 +65,7 @@ fn results(dir: &Path) -> Value {
     util::read_json(&dir.join("out/heat-demand-simulation/results.json"))
 }
 
-fn number(v: &Value, key: &str) -> f64 {
+pub fn number(v: &Value, key: &str) -> f64 {
     v[key]
         .as_f64()
         .unwrap_or_else(|| panic!("{key} missing in {v}"))

@@ -11,7 +11,7 @@ use super::axis::Axis;
 use super::palette::{CONTEXT, INK, MUTED};
 use super::{
     draw_svg, family_styles, legend, polyline, style_mesh, style_of, Figure, FigureError, Marker,
-    Swatch,
+    Section, Swatch,
 };
 use crate::report::format_number;
 use crate::results::{PredictionSet, Results};
@@ -240,5 +240,6 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
             ),
         },
         svg,
+        section: Section::Evidence,
     })
 }

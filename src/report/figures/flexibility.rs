@@ -10,7 +10,7 @@ use super::axis::Axis;
 use super::palette::{INK, MUTED};
 use super::{
     draw_svg, family_styles, legend, metric_axis_words, polyline, stem, style_mesh, Figure,
-    FigureError, Marker, Swatch,
+    FigureError, Marker, Section, Swatch,
 };
 use crate::report::format_number;
 use crate::results::{CandidateResult, Results};
@@ -183,6 +183,7 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
             results.chosen
         ),
         svg,
+        section: Section::Evidence,
     })
 }
 

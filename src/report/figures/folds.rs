@@ -10,7 +10,7 @@ use super::axis::Axis;
 use super::palette::INK;
 use super::{
     draw_svg, family_styles, legend, metric_axis_words, style_mesh, style_of, text, text_width,
-    Figure, FigureError, Swatch, TEXT_BODY,
+    Figure, FigureError, Section, Swatch, TEXT_BODY,
 };
 use crate::results::{CandidateResult, Results};
 
@@ -215,5 +215,6 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
                 .join(", ")
         ),
         svg,
+        section: Section::Evidence,
     })
 }

@@ -7,6 +7,7 @@
 //! stores them as `figures/<file>`; the HTML report inlines the same bytes.
 
 pub mod axis;
+pub mod decomposition;
 mod fit;
 mod flexibility;
 mod folds;
@@ -32,6 +33,17 @@ pub struct Figure {
     pub alt: String,
     /// The SVG document.
     pub svg: String,
+    /// Where the reports show it.
+    pub section: Section,
+}
+
+/// The part of a report a figure belongs to.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Section {
+    /// The figures every report has, in its Figures section.
+    Evidence,
+    /// A simulation spec's figures, in its Simulation section.
+    Simulation,
 }
 
 /// A figure could not be drawn.
@@ -46,9 +58,9 @@ pub struct FigureError {
 pub fn render_all(results: &Results) -> Result<Vec<Figure>, FigureError> {
     let mut figures = vec![flexibility::render(results)?, folds::render(results)?];
     figures.push(fit::render(results)?);
-    // Simulation specs add their figures here (squared bias, variance and
-    // noise against flexibility), after the data figure, drawn from the
-    // results' simulation section with the same helpers and palette.
+    // Simulation specs add squared bias, variance and noise against
+    // flexibility, shown in the reports' simulation section.
+    figures.extend(decomposition::render(results)?);
     Ok(figures)
 }
 

@@ -21,6 +21,13 @@ pub const SERIES: [RGBColor; 5] = [
     RGBColor(0x8a, 0x7f, 0xc0), // heather
 ];
 
+/// Squared bias in the bias–variance figure (ember orange, a series colour:
+/// the figure's colours stand for quantities, and its panels name the family).
+/// Claret would sit too close to ink under protanopia (tested below).
+pub const BIAS: RGBColor = SERIES[1];
+/// Variance in the bias–variance figure (lichen teal).
+pub const VARIANCE: RGBColor = SERIES[3];
+
 /// Text, axes and the marks of the rule (the kept setting, the threshold).
 pub const INK: RGBColor = RGBColor(0x1d, 0x23, 0x2b);
 /// Secondary text (axis labels, notes).
@@ -174,15 +181,16 @@ mod tests {
         }
     }
 
-    #[test]
-    fn series_colours_stay_apart_under_colour_vision_deficiencies() {
+    /// Asserts that every pair of `colours` stays CIEDE2000 ≥ 15 apart for
+    /// normal vision and the three simulated dichromacies.
+    fn assert_apart(colours: &[RGBColor]) {
         for (name, matrix) in [
             ("normal vision", IDENTITY),
             ("protanopia", PROTAN),
             ("deuteranopia", DEUTAN),
             ("tritanopia", TRITAN),
         ] {
-            let seen: Vec<[f64; 3]> = SERIES
+            let seen: Vec<[f64; 3]> = colours
                 .iter()
                 .map(|&c| lab(apply(&matrix, linear_rgb(c))))
                 .collect();
@@ -191,11 +199,24 @@ mod tests {
                     let difference = ciede2000(seen[i], seen[j]);
                     assert!(
                         difference >= 15.0,
-                        "{name}: colours {i} and {j} only {difference:.1} apart"
+                        "{name}: colours {:?} and {:?} only {difference:.1} apart",
+                        colours[i],
+                        colours[j]
                     );
                 }
             }
         }
+    }
+
+    #[test]
+    fn series_colours_stay_apart_under_colour_vision_deficiencies() {
+        assert_apart(&SERIES);
+    }
+
+    #[test]
+    fn bias_variance_colours_stay_apart_from_ink_and_the_noise_line() {
+        // Expected error (ink), squared bias, variance, noise floor (muted).
+        assert_apart(&[INK, BIAS, VARIANCE, MUTED]);
     }
 
     #[test]
