@@ -2,7 +2,7 @@
 //! settings on one training fold ([`Family::fit_path`]): path-aware fitting
 //! shares the expensive part (one QR, one neighbour search) across settings.
 //!
-//! Adding a family: a new file here, a variant of [`crate::spec::FamilySpec`],
+//! Adding a family: a new file here, a variant of [`crate::spec::FamilyKind`],
 //! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
@@ -26,7 +26,7 @@ use std::fmt;
 use nalgebra::DMatrix;
 
 use crate::error::FitError;
-use crate::spec::FamilySpec;
+use crate::spec::{FamilyKind, FamilySpec};
 
 /// The value of a family's tuning parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -149,46 +149,43 @@ pub(crate) fn loo_from_leverage(y: f64, fitted: f64, leverage: f64) -> Option<f6
 
 /// Turns one validated `[[candidate]]` into its family, bound to `features`.
 pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
-    match spec {
-        FamilySpec::Linear { intercept, .. } => Box::new(linear::Linear {
+    match &spec.kind {
+        FamilyKind::Linear { intercept } => Box::new(linear::Linear {
             features,
             intercept: *intercept,
         }),
-        FamilySpec::Polynomial {
-            intercept, degree, ..
-        } => Box::new(polynomial::Polynomial {
+        FamilyKind::Polynomial { intercept, degree } => Box::new(polynomial::Polynomial {
             features,
             intercept: *intercept,
             degrees: degree.clone(),
         }),
-        FamilySpec::NearestNeighbors { k, .. } => Box::new(nearest_neighbors::NearestNeighbors {
+        FamilyKind::NearestNeighbors { k } => Box::new(nearest_neighbors::NearestNeighbors {
             features,
             ks: k.clone(),
         }),
-        FamilySpec::Ridge { penalty, .. } => Box::new(ridge::Ridge {
+        FamilyKind::Ridge { penalty } => Box::new(ridge::Ridge {
             features,
             penalties: penalty.clone(),
         }),
-        FamilySpec::Lasso { penalty, .. } => Box::new(lasso::Lasso {
+        FamilyKind::Lasso { penalty } => Box::new(lasso::Lasso {
             features,
             penalties: penalty.clone(),
         }),
-        FamilySpec::Spline { df, .. } => Box::new(spline::Spline {
+        FamilyKind::Spline { df } => Box::new(spline::Spline {
             features,
             dfs: df.clone(),
         }),
-        FamilySpec::ThinPlate {
+        FamilyKind::ThinPlate {
             grid,
             knots,
             exact_limit,
-            ..
         } => Box::new(thin_plate::ThinPlate {
             features,
             grid: grid.clone(),
             knots: *knots,
             exact_limit: *exact_limit,
         }),
-        FamilySpec::SmoothingSpline { grid, .. } => Box::new(smoothing_spline::SmoothingSpline {
+        FamilyKind::SmoothingSpline { grid } => Box::new(smoothing_spline::SmoothingSpline {
             features,
             grid: grid.clone(),
         }),

@@ -144,10 +144,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
     let mut candidates = Vec::new();
     let mut feature_columns = Vec::new();
     for raw in &spec.families {
-        let features = raw
-            .features_override()
-            .map(<[String]>::to_vec)
-            .unwrap_or_else(|| setup.names.clone());
+        let features = raw.features.clone().unwrap_or_else(|| setup.names.clone());
         feature_columns.push(
             features
                 .iter()
@@ -156,7 +153,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
         );
         let family = models::build(raw, features);
         candidates.push(CandidatePlan {
-            stem: raw.label().unwrap_or(raw.family_name()).to_string(),
+            stem: raw.stem().to_string(),
             settings: family.settings(),
             family,
         });
