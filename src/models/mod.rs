@@ -19,6 +19,8 @@ pub mod ridge;
 pub mod smoothing_spline;
 pub mod spline;
 mod standardise;
+#[cfg(test)]
+mod test_support;
 pub mod thin_plate;
 
 use std::fmt;
@@ -26,7 +28,7 @@ use std::fmt;
 use nalgebra::DMatrix;
 
 use crate::error::FitError;
-use crate::spec::{FamilyKind, FamilySpec};
+use crate::spec::{FamilyKind, FamilySpec, SmootherGrid};
 
 /// The value of a family's tuning parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -145,6 +147,35 @@ pub trait Family: Send + Sync + std::fmt::Debug {
 pub(crate) fn loo_from_leverage(y: f64, fitted: f64, leverage: f64) -> Option<f64> {
     let denominator = 1.0 - leverage;
     (denominator > 1e-10).then(|| y - (y - fitted) / denominator)
+}
+
+/// One setting's leave-one-out predictions at training rows `0..rows`.
+/// `left_out(i)` is `None` when row i alone determines its own fit
+/// (leverage 1); that fails, naming `setting` and the row.
+pub(crate) fn leave_one_out_rows(
+    setting: &str,
+    rows: usize,
+    left_out: impl Fn(usize) -> Option<f64>,
+) -> Result<Vec<f64>, FitError> {
+    (0..rows)
+        .map(|i| {
+            left_out(i).ok_or_else(|| FitError::FullLeverage {
+                setting: setting.to_string(),
+                row: i + 1,
+            })
+        })
+        .collect()
+}
+
+/// The settings of a penalised smoother's grid, in spec order.
+pub(crate) fn smoother_settings(grid: &SmootherGrid) -> Vec<Setting> {
+    match grid {
+        SmootherGrid::Penalty(values) => values
+            .iter()
+            .map(|&penalty| Setting::real("penalty", penalty))
+            .collect(),
+        SmootherGrid::Df(values) => values.iter().map(|&df| Setting::real("df", df)).collect(),
+    }
 }
 
 /// Turns one validated `[[candidate]]` into its family, bound to `features`.
