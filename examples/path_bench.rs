@@ -9,7 +9,7 @@
 use std::time::Instant;
 
 use heldout::models::{self, Family};
-use heldout::spec::{FamilySpec, SmootherGrid};
+use heldout::spec::{FamilyKind, FamilySpec, SmootherGrid};
 use nalgebra::DMatrix;
 
 /// Median wall time of `reps` runs of `work`, in seconds.
@@ -35,80 +35,93 @@ fn uniform(state: &mut u64) -> f64 {
 }
 
 fn grids() -> Vec<(&'static str, FamilySpec, usize)> {
-    let one = Some(vec!["u".to_string()]);
-    let two = Some(vec!["u".to_string(), "v".to_string()]);
+    let on = |features: &[&str], kind: FamilyKind| FamilySpec {
+        label: None,
+        features: Some(features.iter().map(|f| f.to_string()).collect()),
+        kind,
+    };
+    let one = ["u"];
+    let two = ["u", "v"];
     vec![
         (
             "polynomial (12 degrees)",
-            FamilySpec::Polynomial {
-                label: None,
-                features: one.clone(),
-                intercept: true,
-                degree: (1..=12).collect(),
-            },
+            on(
+                &one,
+                FamilyKind::Polynomial {
+                    intercept: true,
+                    degree: (1..=12).collect(),
+                },
+            ),
             1,
         ),
         (
             "nearest-neighbors, 1 feature (8 k)",
-            FamilySpec::NearestNeighbors {
-                label: None,
-                features: one.clone(),
-                k: vec![1, 2, 5, 10, 20, 50, 100, 200],
-            },
+            on(
+                &one,
+                FamilyKind::NearestNeighbors {
+                    k: vec![1, 2, 5, 10, 20, 50, 100, 200],
+                },
+            ),
             1,
         ),
         (
             "nearest-neighbors, 2 features (8 k)",
-            FamilySpec::NearestNeighbors {
-                label: None,
-                features: two.clone(),
-                k: vec![1, 2, 5, 10, 20, 50, 100, 200],
-            },
+            on(
+                &two,
+                FamilyKind::NearestNeighbors {
+                    k: vec![1, 2, 5, 10, 20, 50, 100, 200],
+                },
+            ),
             2,
         ),
         (
             "ridge (12 penalties)",
-            FamilySpec::Ridge {
-                label: None,
-                features: two.clone(),
-                penalty: (0..12).map(|i| 10f64.powi(i - 4)).collect(),
-            },
+            on(
+                &two,
+                FamilyKind::Ridge {
+                    penalty: (0..12).map(|i| 10f64.powi(i - 4)).collect(),
+                },
+            ),
             2,
         ),
         (
             "lasso (12 penalties)",
-            FamilySpec::Lasso {
-                label: None,
-                features: two.clone(),
-                penalty: (0..12).map(|i| 10f64.powi(i - 8)).collect(),
-            },
+            on(
+                &two,
+                FamilyKind::Lasso {
+                    penalty: (0..12).map(|i| 10f64.powi(i - 8)).collect(),
+                },
+            ),
             2,
         ),
         (
             "smoothing-spline (12 penalties)",
-            FamilySpec::SmoothingSpline {
-                label: None,
-                features: one.clone(),
-                grid: SmootherGrid::Penalty((0..12).map(|i| 10f64.powi(i - 6)).collect()),
-            },
+            on(
+                &one,
+                FamilyKind::SmoothingSpline {
+                    grid: SmootherGrid::Penalty((0..12).map(|i| 10f64.powi(i - 6)).collect()),
+                },
+            ),
             1,
         ),
         (
             "smoothing-spline (8 df)",
-            FamilySpec::SmoothingSpline {
-                label: None,
-                features: one.clone(),
-                grid: SmootherGrid::Df(vec![3.0, 4.0, 5.0, 6.0, 8.0, 12.0, 20.0, 40.0]),
-            },
+            on(
+                &one,
+                FamilyKind::SmoothingSpline {
+                    grid: SmootherGrid::Df(vec![3.0, 4.0, 5.0, 6.0, 8.0, 12.0, 20.0, 40.0]),
+                },
+            ),
             1,
         ),
         (
             "spline (8 df)",
-            FamilySpec::Spline {
-                label: None,
-                features: one,
-                df: vec![2, 3, 4, 5, 6, 8, 10, 12],
-            },
+            on(
+                &one,
+                FamilyKind::Spline {
+                    df: vec![2, 3, 4, 5, 6, 8, 10, 12],
+                },
+            ),
             1,
         ),
     ]
@@ -117,20 +130,20 @@ fn grids() -> Vec<(&'static str, FamilySpec, usize)> {
 /// The same family with only the `index`-th setting of its grid.
 fn single(spec: &FamilySpec, index: usize) -> FamilySpec {
     let mut spec = spec.clone();
-    match &mut spec {
-        FamilySpec::Polynomial { degree, .. } => *degree = vec![degree[index]],
-        FamilySpec::NearestNeighbors { k, .. } => *k = vec![k[index]],
-        FamilySpec::Ridge { penalty, .. } | FamilySpec::Lasso { penalty, .. } => {
+    match &mut spec.kind {
+        FamilyKind::Polynomial { degree, .. } => *degree = vec![degree[index]],
+        FamilyKind::NearestNeighbors { k } => *k = vec![k[index]],
+        FamilyKind::Ridge { penalty } | FamilyKind::Lasso { penalty } => {
             *penalty = vec![penalty[index]]
         }
-        FamilySpec::SmoothingSpline { grid, .. } | FamilySpec::ThinPlate { grid, .. } => {
+        FamilyKind::SmoothingSpline { grid } | FamilyKind::ThinPlate { grid, .. } => {
             *grid = match grid {
                 SmootherGrid::Penalty(v) => SmootherGrid::Penalty(vec![v[index]]),
                 SmootherGrid::Df(v) => SmootherGrid::Df(vec![v[index]]),
             }
         }
-        FamilySpec::Spline { df, .. } => *df = vec![df[index]],
-        FamilySpec::Linear { .. } => {}
+        FamilyKind::Spline { df } => *df = vec![df[index]],
+        FamilyKind::Linear { .. } => {}
     }
     spec
 }
@@ -168,7 +181,7 @@ fn main() {
     for (name, spec, dims) in grids().into_iter().filter(|(n, ..)| n.contains(&filter)) {
         let x = train.columns(0, dims).into_owned();
         let x_eval = eval.columns(0, dims).into_owned();
-        let features: Vec<String> = spec.features_override().unwrap_or_default().to_vec();
+        let features: Vec<String> = spec.features.clone().unwrap_or_default();
         let family: Box<dyn Family> = models::build(&spec, features.clone());
         if let Err(e) = family.fit_path(&x, &y, &x_eval, false) {
             println!("{name:<38} skipped: {e}");

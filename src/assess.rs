@@ -34,6 +34,22 @@ impl SettingScore {
     }
 }
 
+/// The score of setting `setting` on each fold, in fold order, from
+/// `fold_predictions` (per fold, per setting: predictions at the fold's
+/// validation rows) and `fold_targets` (per fold: the observed values there).
+pub fn fold_scores(
+    metric: Metric,
+    fold_predictions: &[Vec<Vec<f64>>],
+    fold_targets: &[Vec<f64>],
+    setting: usize,
+) -> Vec<f64> {
+    fold_predictions
+        .iter()
+        .zip(fold_targets)
+        .map(|(grid, observed)| metric.score(observed, &grid[setting]))
+        .collect()
+}
+
 /// Mean and standard error of the mean (sample SD / √n), summed in order.
 pub fn mean_and_standard_error(values: &[f64]) -> (f64, f64) {
     let n = values.len() as f64;

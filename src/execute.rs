@@ -3,6 +3,7 @@
 //! parallel with rayon and are gathered in task order, so the numbers do not
 //! depend on the number of threads. Each task first asks the cache.
 
+use nalgebra::DMatrix;
 use rayon::prelude::*;
 
 use crate::cache::{self, Cache, CacheKey, Lookup};
@@ -103,9 +104,9 @@ pub fn tasks(plan: &ExperimentPlan) -> Vec<Task> {
 
 /// The matrices of one task: training design and target, evaluation design.
 struct TaskData {
-    x_train: nalgebra::DMatrix<f64>,
+    x_train: DMatrix<f64>,
     y_train: Vec<f64>,
-    x_eval: nalgebra::DMatrix<f64>,
+    x_eval: DMatrix<f64>,
 }
 
 fn task_data(plan: &ExperimentPlan, task: Task) -> TaskData {
@@ -209,7 +210,7 @@ fn run_task(
     let data = task_data(plan, task);
     let candidate = &plan.candidates[task.candidate];
     let fitted = if task.rows == TaskRows::LeaveOneOut {
-        leave_one_out(candidate.family.as_ref(), &data)
+        leave_one_out(candidate.family.as_ref(), &data.x_train, &data.y_train)
     } else {
         candidate.family.fit_path(
             &data.x_train,
@@ -239,24 +240,30 @@ fn run_task(
     })
 }
 
-/// Leave-one-out predictions for every row and setting, as `SettingFit`s whose
-/// `eval_pred` holds them in row order: the family's shortcut when it has one,
-/// otherwise one refit per left-out row (in parallel, gathered in order).
-fn leave_one_out(family: &dyn Family, data: &TaskData) -> Result<Vec<SettingFit>, FitError> {
-    let predictions = match family.leave_one_out(&data.x_train, &data.y_train) {
+/// Leave-one-out predictions for every training row and setting, as
+/// `SettingFit`s whose `eval_pred` holds them in row order: the family's
+/// shortcut when it has one (hat diagonal, neighbour exclusion), otherwise
+/// one refit per left-out row (in parallel, gathered in order). Shared by
+/// table specs and simulation replicates.
+pub(crate) fn leave_one_out(
+    family: &dyn Family,
+    x_train: &DMatrix<f64>,
+    y_train: &[f64],
+) -> Result<Vec<SettingFit>, FitError> {
+    let predictions = match family.leave_one_out(x_train, y_train) {
         Some(shortcut) => shortcut?,
         None => {
-            let n = data.y_train.len();
+            let n = y_train.len();
             let per_row: Vec<Vec<f64>> = (0..n)
                 .into_par_iter()
                 .map(|i| {
                     let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
-                    let x_rest = data.x_train.select_rows(&keep);
-                    let y_rest: Vec<f64> = keep.iter().map(|&r| data.y_train[r]).collect();
+                    let x_rest = x_train.select_rows(&keep);
+                    let y_rest: Vec<f64> = keep.iter().map(|&r| y_train[r]).collect();
                     let fits = family.fit_path(
                         &x_rest,
                         &y_rest,
-                        &data.x_train.rows(i, 1).into_owned(),
+                        &x_train.rows(i, 1).into_owned(),
                         false,
                     )?;
                     Ok(fits.into_iter().map(|f| f.eval_pred[0]).collect())

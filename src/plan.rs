@@ -9,7 +9,7 @@ use nalgebra::DMatrix;
 use crate::data::{self, Table, TableRequest};
 use crate::error::DataError;
 use crate::models::{self, Family, Setting};
-use crate::spec::{FamilySpec, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
+use crate::spec::{FamilyKind, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
 use crate::split::{self, Assignment, FoldScheme};
 
 /// One candidate of the spec, ready to fit.
@@ -68,8 +68,8 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     let mut candidate_features = Vec::new();
     for candidate in &spec.families {
         let features = candidate
-            .features_override()
-            .map(<[String]>::to_vec)
+            .features
+            .clone()
             .unwrap_or_else(|| data_spec.features.clone());
         for f in &features {
             if !numeric.contains(f) {
@@ -195,10 +195,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
         .map(|(candidate, features)| {
             let family = models::build(candidate, features);
             CandidatePlan {
-                stem: candidate
-                    .label()
-                    .unwrap_or(candidate.family_name())
-                    .to_string(),
+                stem: candidate.stem().to_string(),
                 settings: family.settings(),
                 family,
             }
@@ -208,13 +205,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     // A feature with no spread over the fitting rows breaks these fits; say so
     // now, naming the column, rather than once per fold.
     for (candidate, raw) in candidates.iter().zip(&spec.families) {
-        let needs_spread = !matches!(
-            raw,
-            FamilySpec::Linear {
-                intercept: false,
-                ..
-            }
-        );
+        let needs_spread = !matches!(raw.kind, FamilyKind::Linear { intercept: false });
         if !needs_spread {
             continue;
         }

@@ -234,17 +234,11 @@ pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
     for (c, (candidate, fit)) in plan.candidates.iter().zip(fits).enumerate() {
         for (s, setting) in candidate.settings.iter().enumerate() {
             let full = &fit.full[s];
-            let fold_scores: Vec<f64> = fit
-                .fold_predictions
-                .iter()
-                .zip(&fold_targets)
-                .map(|(grid, observed)| metric.score(observed, &grid[s]))
-                .collect();
             let score = SettingScore::new(
                 candidate.id(setting),
                 full.effective_df,
                 metric.score(&train_target, &full.train_pred),
-                fold_scores,
+                assess::fold_scores(metric, &fit.fold_predictions, &fold_targets, s),
             );
             let mut setting_map = serde_json::Map::new();
             if let Some((name, value)) = setting.param {

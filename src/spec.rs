@@ -200,50 +200,45 @@ pub const THIN_PLATE_MIN_KNOTS: usize = 4;
 /// Thin-plate bounds: most knots, and the largest `exact_limit`.
 pub const THIN_PLATE_MAX_ROWS: usize = 5000;
 
-/// A validated candidate: one variant per family, with its own settings.
+/// A validated candidate: what every family shares (its label and its own
+/// feature list) and, in [`FamilyKind`], the family with its settings.
 #[derive(Debug, Clone, PartialEq)]
-pub enum FamilySpec {
+pub struct FamilySpec {
+    /// Replaces the family name in candidate ids.
+    pub label: Option<String>,
+    /// The candidate's own feature list, when it overrides `[data] features`.
+    pub features: Option<Vec<String>>,
+    pub kind: FamilyKind,
+}
+
+/// One variant per family, with that family's own settings and grid.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FamilyKind {
     Linear {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         intercept: bool,
     },
     Polynomial {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         intercept: bool,
         degree: Vec<usize>,
     },
     NearestNeighbors {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         k: Vec<usize>,
     },
     SmoothingSpline {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         grid: SmootherGrid,
     },
     Spline {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         df: Vec<usize>,
     },
     ThinPlate {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         grid: SmootherGrid,
         knots: usize,
         exact_limit: usize,
     },
     Ridge {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         penalty: Vec<f64>,
     },
     Lasso {
-        label: Option<String>,
-        features: Option<Vec<String>>,
         penalty: Vec<f64>,
     },
 }
@@ -278,7 +273,7 @@ impl CandidateSpec {
             FamilyName::ThinPlate => &["penalty", "df", "knots", "exact_limit"],
             FamilyName::Ridge | FamilyName::Lasso => &["penalty"],
         };
-        let family = FamilySpec::name_of(self.family);
+        let family = self.family.as_str();
         if let Some(stray) = self
             .family_keys()
             .into_iter()
@@ -322,28 +317,18 @@ impl CandidateSpec {
                 ),
             )),
         };
-        let label = self.label.clone();
-        let features = self.features.clone();
-        Ok(match self.family {
-            FamilyName::Linear => FamilySpec::Linear {
-                label,
-                features,
+        let kind = match self.family {
+            FamilyName::Linear => FamilyKind::Linear {
                 intercept: self.intercept.unwrap_or(true),
             },
-            FamilyName::Polynomial => FamilySpec::Polynomial {
-                label,
-                features,
+            FamilyName::Polynomial => FamilyKind::Polynomial {
                 intercept: self.intercept.unwrap_or(true),
                 degree: required(&self.degree, "degree")?,
             },
-            FamilyName::NearestNeighbors => FamilySpec::NearestNeighbors {
-                label,
-                features,
+            FamilyName::NearestNeighbors => FamilyKind::NearestNeighbors {
                 k: required(&self.k, "k")?,
             },
-            FamilyName::SmoothingSpline => FamilySpec::SmoothingSpline {
-                label,
-                features,
+            FamilyName::SmoothingSpline => FamilyKind::SmoothingSpline {
                 grid: smoother_grid()?,
             },
             FamilyName::Spline => {
@@ -352,9 +337,7 @@ impl CandidateSpec {
                     .iter()
                     .map(|&d| (d.fract() == 0.0 && d >= 1.0).then_some(d as usize))
                     .collect();
-                FamilySpec::Spline {
-                    label,
-                    features,
+                FamilyKind::Spline {
                     df: whole.ok_or_else(|| {
                         (
                             "df".to_string(),
@@ -364,30 +347,30 @@ impl CandidateSpec {
                     })?,
                 }
             }
-            FamilyName::ThinPlate => FamilySpec::ThinPlate {
-                label,
-                features,
+            FamilyName::ThinPlate => FamilyKind::ThinPlate {
                 grid: smoother_grid()?,
                 knots: self.knots.unwrap_or(THIN_PLATE_KNOTS),
                 exact_limit: self.exact_limit.unwrap_or(THIN_PLATE_EXACT_LIMIT),
             },
-            FamilyName::Ridge => FamilySpec::Ridge {
-                label,
-                features,
+            FamilyName::Ridge => FamilyKind::Ridge {
                 penalty: required_reals(&self.penalty, "penalty")?,
             },
-            FamilyName::Lasso => FamilySpec::Lasso {
-                label,
-                features,
+            FamilyName::Lasso => FamilyKind::Lasso {
                 penalty: required_reals(&self.penalty, "penalty")?,
             },
+        };
+        Ok(FamilySpec {
+            label: self.label.clone(),
+            features: self.features.clone(),
+            kind,
         })
     }
 }
 
-impl FamilySpec {
-    fn name_of(family: FamilyName) -> &'static str {
-        match family {
+impl FamilyName {
+    /// The family's name as written in the spec.
+    fn as_str(self) -> &'static str {
+        match self {
             FamilyName::Linear => "linear",
             FamilyName::Polynomial => "polynomial",
             FamilyName::NearestNeighbors => "nearest-neighbors",
@@ -398,51 +381,32 @@ impl FamilySpec {
             FamilyName::Lasso => "lasso",
         }
     }
+}
 
-    fn family(&self) -> FamilyName {
+impl FamilyKind {
+    fn name(&self) -> FamilyName {
         match self {
-            FamilySpec::Linear { .. } => FamilyName::Linear,
-            FamilySpec::Polynomial { .. } => FamilyName::Polynomial,
-            FamilySpec::NearestNeighbors { .. } => FamilyName::NearestNeighbors,
-            FamilySpec::SmoothingSpline { .. } => FamilyName::SmoothingSpline,
-            FamilySpec::Spline { .. } => FamilyName::Spline,
-            FamilySpec::ThinPlate { .. } => FamilyName::ThinPlate,
-            FamilySpec::Ridge { .. } => FamilyName::Ridge,
-            FamilySpec::Lasso { .. } => FamilyName::Lasso,
+            FamilyKind::Linear { .. } => FamilyName::Linear,
+            FamilyKind::Polynomial { .. } => FamilyName::Polynomial,
+            FamilyKind::NearestNeighbors { .. } => FamilyName::NearestNeighbors,
+            FamilyKind::SmoothingSpline { .. } => FamilyName::SmoothingSpline,
+            FamilyKind::Spline { .. } => FamilyName::Spline,
+            FamilyKind::ThinPlate { .. } => FamilyName::ThinPlate,
+            FamilyKind::Ridge { .. } => FamilyName::Ridge,
+            FamilyKind::Lasso { .. } => FamilyName::Lasso,
         }
     }
+}
 
+impl FamilySpec {
     /// The family's name as written in the spec.
     pub fn family_name(&self) -> &'static str {
-        Self::name_of(self.family())
+        self.kind.name().as_str()
     }
 
-    /// The optional label that replaces the family name in candidate ids.
-    pub fn label(&self) -> Option<&str> {
-        match self {
-            FamilySpec::Linear { label, .. }
-            | FamilySpec::Polynomial { label, .. }
-            | FamilySpec::NearestNeighbors { label, .. }
-            | FamilySpec::SmoothingSpline { label, .. }
-            | FamilySpec::Spline { label, .. }
-            | FamilySpec::ThinPlate { label, .. }
-            | FamilySpec::Ridge { label, .. }
-            | FamilySpec::Lasso { label, .. } => label.as_deref(),
-        }
-    }
-
-    /// The candidate's own feature list, when it overrides `[data] features`.
-    pub fn features_override(&self) -> Option<&[String]> {
-        match self {
-            FamilySpec::Linear { features, .. }
-            | FamilySpec::Polynomial { features, .. }
-            | FamilySpec::NearestNeighbors { features, .. }
-            | FamilySpec::SmoothingSpline { features, .. }
-            | FamilySpec::Spline { features, .. }
-            | FamilySpec::ThinPlate { features, .. }
-            | FamilySpec::Ridge { features, .. }
-            | FamilySpec::Lasso { features, .. } => features.as_deref(),
-        }
+    /// The stem of the candidate's ids: its label, or else its family name.
+    pub fn stem(&self) -> &str {
+        self.label.as_deref().unwrap_or(self.family_name())
     }
 }
 
@@ -706,22 +670,18 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
     let mut ids = BTreeSet::new();
     let mut families = Vec::with_capacity(spec.candidates.len());
     for (index, raw) in spec.candidates.iter().enumerate() {
-        let key = format!(
-            "candidate[{}] ({})",
-            index + 1,
-            FamilySpec::name_of(raw.family)
-        );
+        let key = format!("candidate[{}] ({})", index + 1, raw.family.as_str());
         let candidate = raw
             .to_family()
             .map_err(|(sub, message)| invalid(&format!("{key}.{sub}"), message))?;
         validate_candidate(&candidate, &key, &invalid)?;
-        let wanted = match candidate {
-            FamilySpec::SmoothingSpline { .. } => Some(1),
-            FamilySpec::ThinPlate { .. } => Some(2),
+        let wanted = match candidate.kind {
+            FamilyKind::SmoothingSpline { .. } => Some(1),
+            FamilyKind::ThinPlate { .. } => Some(2),
             _ => None,
         };
-        let features = candidate.features_override().unwrap_or(&default_features);
-        if let (Some(sim), Some(own)) = (&spec.simulate, candidate.features_override()) {
+        let features = candidate.features.as_deref().unwrap_or(&default_features);
+        if let (Some(sim), Some(own)) = (&spec.simulate, candidate.features.as_deref()) {
             let inputs = sim.input_names();
             if let Some(unknown) = own.iter().find(|f| !inputs.contains(f)) {
                 let names: Vec<&str> = inputs.iter().map(String::as_str).collect();
@@ -748,7 +708,7 @@ pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecErr
                 ),
             ));
         }
-        let stem = candidate.label().unwrap_or(candidate.family_name());
+        let stem = candidate.stem();
         if !ids.insert(stem.to_string()) {
             return Err(invalid(
                 &key,
@@ -904,7 +864,7 @@ fn validate_candidate(
     key: &str,
     invalid: &impl Fn(&str, String) -> SpecError,
 ) -> Result<(), SpecError> {
-    if let Some(label) = candidate.label() {
+    if let Some(label) = &candidate.label {
         let ok = !label.is_empty()
             && label
                 .chars()
@@ -916,19 +876,19 @@ fn validate_candidate(
             ));
         }
     }
-    if let Some(features) = candidate.features_override() {
+    if let Some(features) = &candidate.features {
         validate_feature_list(features, &format!("{key}.features"), invalid)?;
     }
-    match candidate {
-        FamilySpec::Linear { .. } => Ok(()),
-        FamilySpec::Polynomial { degree, .. } => {
+    match &candidate.kind {
+        FamilyKind::Linear { .. } => Ok(()),
+        FamilyKind::Polynomial { degree, .. } => {
             check_grid(degree, 1, 30, &format!("{key}.degree"), "degree", invalid)
         }
-        FamilySpec::NearestNeighbors { k, .. } => {
+        FamilyKind::NearestNeighbors { k } => {
             check_grid(k, 1, usize::MAX, &format!("{key}.k"), "k", invalid)
         }
-        FamilySpec::Spline { df, .. } => check_grid(df, 1, 50, &format!("{key}.df"), "df", invalid),
-        FamilySpec::SmoothingSpline { grid, .. } => {
+        FamilyKind::Spline { df } => check_grid(df, 1, 50, &format!("{key}.df"), "df", invalid),
+        FamilyKind::SmoothingSpline { grid } => {
             check_smoother_grid(grid, key, invalid)?;
             if let SmootherGrid::Df(values) = grid {
                 if let Some(df) = values.iter().find(|&&d| d < 2.0) {
@@ -943,11 +903,10 @@ fn validate_candidate(
             }
             Ok(())
         }
-        FamilySpec::ThinPlate {
+        FamilyKind::ThinPlate {
             grid,
             knots,
             exact_limit,
-            ..
         } => {
             check_smoother_grid(grid, key, invalid)?;
             if let SmootherGrid::Df(values) = grid {
@@ -980,7 +939,7 @@ fn validate_candidate(
             }
             Ok(())
         }
-        FamilySpec::Ridge { penalty, .. } | FamilySpec::Lasso { penalty, .. } => {
+        FamilyKind::Ridge { penalty } | FamilyKind::Lasso { penalty } => {
             check_real_grid(penalty, 0.0, &format!("{key}.penalty"), "penalty", invalid)
         }
     }
@@ -1070,6 +1029,12 @@ family = "polynomial"
 degree = [1, 2]
 "#;
 
+    /// Parses and validates `text` as `s.toml`; the error's text on failure.
+    fn check(text: &str) -> Result<Vec<FamilySpec>, String> {
+        let spec = parse(Path::new("s.toml"), text).map_err(|e| e.to_string())?;
+        validate(Path::new("s.toml"), &spec).map_err(|e| e.to_string())
+    }
+
     #[test]
     fn minimal_spec_takes_defaults() {
         let spec = parse(Path::new("s.toml"), MINIMAL).unwrap();
@@ -1082,16 +1047,14 @@ degree = [1, 2]
 
     #[test]
     fn unknown_candidate_key_suggests_the_near_one() {
-        let text = MINIMAL.replace("degree = [1, 2]", "degre = [1, 2]");
-        let err = parse(Path::new("s.toml"), &text).unwrap_err().to_string();
+        let err = check(&MINIMAL.replace("degree = [1, 2]", "degre = [1, 2]")).unwrap_err();
         assert!(err.contains("did you mean `degree`"), "{err}");
         assert!(err.starts_with("s.toml:"), "{err}");
     }
 
     #[test]
     fn unknown_top_level_key_has_line_and_column() {
-        let text = MINIMAL.replace("seed = 1", "seed = 1\nsed = 2");
-        let err = parse(Path::new("s.toml"), &text).unwrap_err().to_string();
+        let err = check(&MINIMAL.replace("seed = 1", "seed = 1\nsed = 2")).unwrap_err();
         assert!(err.starts_with("s.toml:5:1:"), "{err}");
         assert!(err.contains("did you mean `seed`"), "{err}");
     }
@@ -1111,11 +1074,7 @@ candidate:
 
     #[test]
     fn bad_values_name_their_key() {
-        let text = MINIMAL.replace("degree = [1, 2]", "degree = [0, 2]");
-        let spec = parse(Path::new("s.toml"), &text).unwrap();
-        let err = validate(Path::new("s.toml"), &spec)
-            .unwrap_err()
-            .to_string();
+        let err = check(&MINIMAL.replace("degree = [1, 2]", "degree = [0, 2]")).unwrap_err();
         assert!(err.contains("candidate[1] (polynomial).degree"), "{err}");
         assert!(err.contains("degree = 0"), "{err}");
     }
@@ -1137,9 +1096,7 @@ candidate:
     fn thin_plate_settings_are_checked_before_fitting() {
         let two = MINIMAL.replace(r#"features = ["x"]"#, r#"features = ["x", "z"]"#);
         let with = |settings: &str| {
-            let text = two.replace("family = \"polynomial\"\ndegree = [1, 2]", settings);
-            let spec = parse(Path::new("s.toml"), &text).unwrap();
-            validate(Path::new("s.toml"), &spec).map_err(|e| e.to_string())
+            check(&two.replace("family = \"polynomial\"\ndegree = [1, 2]", settings))
         };
         with("family = \"thin-plate\"\ndf = [3.5, 8]\nknots = 50\nexact_limit = 100").unwrap();
         let err = with("family = \"thin-plate\"\ndf = [5, 3]").unwrap_err();

@@ -205,12 +205,8 @@ impl Family for Lasso {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::models::linear::Linear;
     use crate::models::penalised_reference;
-
-    fn relative(a: f64, b: f64) -> f64 {
-        (a - b).abs() / b.abs().max(f64::MIN_POSITIVE)
-    }
+    use crate::models::test_support::{assert_grid_equals_separate_fits, relative};
 
     fn fixture_problem() -> (penalised_reference::Fixture, LassoProblem) {
         let f = penalised_reference::load();
@@ -240,9 +236,7 @@ mod tests {
             features: f.features.clone(),
             penalties: vec![lambda_max, 2.0 * lambda_max, lambda_max * (1.0 - 1e-6)],
         };
-        let fits = lasso
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-            .unwrap();
+        let fits = f.fit(&lasso, true);
         let y_mean = f.y_train.iter().sum::<f64>() / f.y_train.len() as f64;
         for fit in &fits[..2] {
             assert_eq!(fit.effective_df, 1.0);
@@ -302,9 +296,7 @@ mod tests {
             features: f.features.clone(),
             penalties,
         };
-        let fits = lasso
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
-            .unwrap();
+        let fits = f.fit(&lasso, false);
         for pair in fits.windows(2) {
             assert!(pair[1].effective_df >= pair[0].effective_df, "{pair:?}");
         }
@@ -317,31 +309,18 @@ mod tests {
         // Invariant (DESIGN.md §5): warm starts change the route, not the answer.
         let f = penalised_reference::load();
         let penalties = penalised_reference::penalties(&f, "lasso");
-        let lasso = Lasso {
+        let lasso = |penalties| Lasso {
             features: f.features.clone(),
-            penalties: penalties.clone(),
+            penalties,
         };
-        let whole = lasso
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-            .unwrap();
-        for (penalty, together) in penalties.into_iter().zip(&whole) {
-            let alone = Lasso {
-                features: f.features.clone(),
-                penalties: vec![penalty],
-            };
-            let alone = &alone
-                .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-                .unwrap()[0];
-            let pairs = together
-                .eval_pred
-                .iter()
-                .chain(&together.train_pred)
-                .zip(alone.eval_pred.iter().chain(&alone.train_pred));
-            for (a, b) in pairs {
-                assert!(relative(*a, *b) <= 1e-9, "penalty {penalty}: {a} vs {b}");
-            }
-            assert_eq!(together.effective_df, alone.effective_df);
-        }
+        assert_grid_equals_separate_fits(
+            &lasso(penalties.clone()),
+            |s| lasso(vec![penalties[s]]),
+            &f.x_train,
+            &f.y_train,
+            &f.x_eval,
+            1e-9,
+        );
     }
 
     #[test]
@@ -353,16 +332,8 @@ mod tests {
             features: f.features.clone(),
             penalties: vec![0.0],
         };
-        let linear = Linear {
-            features: f.features.clone(),
-            intercept: true,
-        };
-        let a = &lasso
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
-            .unwrap()[0];
-        let b = &linear
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
-            .unwrap()[0];
+        let a = &f.fit(&lasso, false)[0];
+        let b = &f.least_squares(false);
         for (p, q) in a.eval_pred.iter().zip(&b.eval_pred) {
             assert!(relative(*p, *q) <= 1e-9, "{p} vs {q}");
         }

@@ -11,7 +11,9 @@ use super::double_double::DoubleDouble;
 use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
-use super::{loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit};
+use super::{
+    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit,
+};
 use crate::error::FitError;
 
 /// Least squares on the features, with or without an intercept.
@@ -104,16 +106,9 @@ impl Family for Linear {
             let design = self.design(x_train, &self.scales(x_train));
             let leverages = cumulative_leverages(&design);
             let last = design.ncols() - 1;
-            let loo = (0..y_train.len())
-                .map(|i| {
-                    loo_from_leverage(y_train[i], fits[0].eval_pred[i], leverages[(i, last)]).ok_or(
-                        FitError::FullLeverage {
-                            setting: "linear".into(),
-                            row: i + 1,
-                        },
-                    )
-                })
-                .collect::<Result<Vec<f64>, FitError>>()?;
+            let loo = leave_one_out_rows("linear", y_train.len(), |i| {
+                loo_from_leverage(y_train[i], fits[0].eval_pred[i], leverages[(i, last)])
+            })?;
             Ok(vec![loo])
         }))
     }
@@ -203,6 +198,7 @@ impl Family for Linear {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::models::test_support::shortcut_beside_refits;
 
     #[test]
     fn recovers_an_exact_plane() {
@@ -225,7 +221,6 @@ mod tests {
     }
 
     #[test]
-    #[allow(clippy::needless_range_loop)] // row i indexes several parallel arrays
     fn hat_diagonal_shortcut_equals_refits() {
         // Identity (common practice for least squares): the leave-one-out
         // shortcut equals refitting without each row, to 1e-9 relative.
@@ -238,23 +233,9 @@ mod tests {
             features: vec!["a".into(), "b".into()],
             intercept: true,
         };
-        let shortcut = linear.leave_one_out(&x, &y).unwrap().unwrap();
-        for i in 0..n {
-            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
-            let y_rest: Vec<f64> = keep.iter().map(|&r| y[r]).collect();
-            let refit = linear
-                .fit_path(
-                    &x.select_rows(&keep),
-                    &y_rest,
-                    &x.rows(i, 1).into_owned(),
-                    false,
-                )
-                .unwrap();
-            let (a, b) = (shortcut[0][i], refit[0].eval_pred[0]);
-            assert!(
-                (a - b).abs() <= 1e-9 * b.abs().max(1.0),
-                "row {i}: {a} vs {b}"
-            );
+        for pair in shortcut_beside_refits(&linear, &x, &y) {
+            let (a, b) = (pair.shortcut, pair.refit);
+            assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{pair}");
         }
     }
 

@@ -2,7 +2,7 @@
 //! settings on one training fold ([`Family::fit_path`]): path-aware fitting
 //! shares the expensive part (one QR, one neighbour search) across settings.
 //!
-//! Adding a family: a new file here, a variant of [`crate::spec::FamilySpec`],
+//! Adding a family: a new file here, a variant of [`crate::spec::FamilyKind`],
 //! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
@@ -19,6 +19,8 @@ pub mod ridge;
 pub mod smoothing_spline;
 pub mod spline;
 mod standardise;
+#[cfg(test)]
+mod test_support;
 pub mod thin_plate;
 
 use std::fmt;
@@ -26,7 +28,7 @@ use std::fmt;
 use nalgebra::DMatrix;
 
 use crate::error::FitError;
-use crate::spec::FamilySpec;
+use crate::spec::{FamilyKind, FamilySpec, SmootherGrid};
 
 /// The value of a family's tuning parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -147,48 +149,74 @@ pub(crate) fn loo_from_leverage(y: f64, fitted: f64, leverage: f64) -> Option<f6
     (denominator > 1e-10).then(|| y - (y - fitted) / denominator)
 }
 
+/// One setting's leave-one-out predictions at training rows `0..rows`.
+/// `left_out(i)` is `None` when row i alone determines its own fit
+/// (leverage 1); that fails, naming `setting` and the row.
+pub(crate) fn leave_one_out_rows(
+    setting: &str,
+    rows: usize,
+    left_out: impl Fn(usize) -> Option<f64>,
+) -> Result<Vec<f64>, FitError> {
+    (0..rows)
+        .map(|i| {
+            left_out(i).ok_or_else(|| FitError::FullLeverage {
+                setting: setting.to_string(),
+                row: i + 1,
+            })
+        })
+        .collect()
+}
+
+/// The settings of a penalised smoother's grid, in spec order.
+pub(crate) fn smoother_settings(grid: &SmootherGrid) -> Vec<Setting> {
+    match grid {
+        SmootherGrid::Penalty(values) => values
+            .iter()
+            .map(|&penalty| Setting::real("penalty", penalty))
+            .collect(),
+        SmootherGrid::Df(values) => values.iter().map(|&df| Setting::real("df", df)).collect(),
+    }
+}
+
 /// Turns one validated `[[candidate]]` into its family, bound to `features`.
 pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
-    match spec {
-        FamilySpec::Linear { intercept, .. } => Box::new(linear::Linear {
+    match &spec.kind {
+        FamilyKind::Linear { intercept } => Box::new(linear::Linear {
             features,
             intercept: *intercept,
         }),
-        FamilySpec::Polynomial {
-            intercept, degree, ..
-        } => Box::new(polynomial::Polynomial {
+        FamilyKind::Polynomial { intercept, degree } => Box::new(polynomial::Polynomial {
             features,
             intercept: *intercept,
             degrees: degree.clone(),
         }),
-        FamilySpec::NearestNeighbors { k, .. } => Box::new(nearest_neighbors::NearestNeighbors {
+        FamilyKind::NearestNeighbors { k } => Box::new(nearest_neighbors::NearestNeighbors {
             features,
             ks: k.clone(),
         }),
-        FamilySpec::Ridge { penalty, .. } => Box::new(ridge::Ridge {
+        FamilyKind::Ridge { penalty } => Box::new(ridge::Ridge {
             features,
             penalties: penalty.clone(),
         }),
-        FamilySpec::Lasso { penalty, .. } => Box::new(lasso::Lasso {
+        FamilyKind::Lasso { penalty } => Box::new(lasso::Lasso {
             features,
             penalties: penalty.clone(),
         }),
-        FamilySpec::Spline { df, .. } => Box::new(spline::Spline {
+        FamilyKind::Spline { df } => Box::new(spline::Spline {
             features,
             dfs: df.clone(),
         }),
-        FamilySpec::ThinPlate {
+        FamilyKind::ThinPlate {
             grid,
             knots,
             exact_limit,
-            ..
         } => Box::new(thin_plate::ThinPlate {
             features,
             grid: grid.clone(),
             knots: *knots,
             exact_limit: *exact_limit,
         }),
-        FamilySpec::SmoothingSpline { grid, .. } => Box::new(smoothing_spline::SmoothingSpline {
+        FamilyKind::SmoothingSpline { grid } => Box::new(smoothing_spline::SmoothingSpline {
             features,
             grid: grid.clone(),
         }),

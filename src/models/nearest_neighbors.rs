@@ -176,19 +176,18 @@ impl Standardised {
 }
 
 impl NearestNeighbors {
-    /// Leave-one-out predictions: each training row's neighbours among the others.
-    fn loo_by_exclusion(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Result<Vec<Vec<f64>>, FitError> {
-        let n = x_train.nrows();
-        let k_max = self.ks.iter().copied().max().unwrap_or(1);
-        if n <= k_max {
+    fn k_max(&self) -> usize {
+        self.ks.iter().copied().max().unwrap_or(1)
+    }
+
+    /// The training points standardised for distances, once the fold is
+    /// known to hold `needed` rows and no constant feature.
+    fn space(&self, x_train: &DMatrix<f64>, needed: usize) -> Result<Standardised, FitError> {
+        if x_train.nrows() < needed {
             return Err(FitError::TooFewRows {
-                setting: format!("k={k_max}"),
-                needed: k_max + 1,
-                available: n,
+                setting: format!("k={}", self.k_max()),
+                needed,
+                available: x_train.nrows(),
             });
         }
         require_spread(
@@ -196,7 +195,19 @@ impl NearestNeighbors {
             x_train,
             "it cannot be standardised for distances",
         )?;
-        let space = Standardised::fit(x_train);
+        Ok(Standardised::fit(x_train))
+    }
+
+    /// Leave-one-out predictions: each training row's neighbours among the others.
+    fn loo_by_exclusion(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+    ) -> Result<Vec<Vec<f64>>, FitError> {
+        let n = x_train.nrows();
+        let k_max = self.k_max();
+        // Each row's k_max neighbours come from the other rows.
+        let space = self.space(x_train, k_max + 1)?;
         let mut scratch = Vec::with_capacity(n);
         let sums: Vec<Vec<f64>> = space
             .points
@@ -245,20 +256,8 @@ impl Family for NearestNeighbors {
         final_fit: bool,
     ) -> Result<Vec<SettingFit>, FitError> {
         let n = x_train.nrows();
-        let k_max = self.ks.iter().copied().max().unwrap_or(1);
-        if n < k_max {
-            return Err(FitError::TooFewRows {
-                setting: format!("k={k_max}"),
-                needed: k_max,
-                available: n,
-            });
-        }
-        require_spread(
-            &self.features,
-            x_train,
-            "it cannot be standardised for distances",
-        )?;
-        let space = Standardised::fit(x_train);
+        let k_max = self.k_max();
+        let space = self.space(x_train, k_max)?;
         let mut scratch = Vec::with_capacity(n);
         let mut predict_all = |queries: &[f64]| -> Vec<Vec<f64>> {
             queries
@@ -376,9 +375,9 @@ mod search_tests {
 #[cfg(test)]
 mod leave_one_out_tests {
     use super::*;
+    use crate::models::test_support::shortcut_beside_refits;
 
     #[test]
-    #[allow(clippy::needless_range_loop)] // row i indexes several parallel arrays
     fn exclusion_equals_refits_with_ties() {
         // Identity: leaving row i out of the search equals refitting without
         // it; repeated values make boundary ties likely.
@@ -389,20 +388,8 @@ mod leave_one_out_tests {
             features: vec!["x".into()],
             ks: vec![1, 4, 9],
         };
-        let shortcut = knn.leave_one_out(&x, &y).unwrap().unwrap();
-        for i in 0..n {
-            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
-            let refit = knn
-                .fit_path(
-                    &x.select_rows(&keep),
-                    &keep.iter().map(|&r| y[r]).collect::<Vec<_>>(),
-                    &x.rows(i, 1).into_owned(),
-                    false,
-                )
-                .unwrap();
-            for (s, fit) in refit.iter().enumerate() {
-                assert_eq!(shortcut[s][i], fit.eval_pred[0], "row {i}, setting {s}");
-            }
+        for pair in shortcut_beside_refits(&knn, &x, &y) {
+            assert_eq!(pair.shortcut, pair.refit, "{pair}");
         }
     }
 }

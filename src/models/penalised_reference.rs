@@ -14,6 +14,7 @@ use nalgebra::DMatrix;
 use serde_json::Value;
 
 use super::lasso::{Lasso, LassoProblem};
+use super::linear::Linear;
 use super::ridge::{Ridge, RidgePath};
 use super::standardise::{centre, Standardiser};
 use super::{Family, SettingFit};
@@ -30,6 +31,25 @@ pub(crate) struct Fixture {
     pub y_train: Vec<f64>,
     pub x_eval: DMatrix<f64>,
     pub expected: Value,
+}
+
+impl Fixture {
+    /// Fits `family`'s grid on the training rows, predicting the evaluation rows.
+    pub(crate) fn fit(&self, family: &dyn Family, final_fit: bool) -> Vec<SettingFit> {
+        family
+            .fit_path(&self.x_train, &self.y_train, &self.x_eval, final_fit)
+            .expect("the family fits the fixture")
+    }
+
+    /// Least squares with an intercept on every feature (the `linear` family),
+    /// which ridge and lasso reach at penalty 0.
+    pub(crate) fn least_squares(&self, final_fit: bool) -> SettingFit {
+        let linear = Linear {
+            features: self.features.clone(),
+            intercept: true,
+        };
+        self.fit(&linear, final_fit).remove(0)
+    }
 }
 
 fn fixture_dir() -> PathBuf {
@@ -177,9 +197,7 @@ fn ridge_matches_scikit_learn() {
         features: fixture.features.clone(),
         penalties: penalties.clone(),
     };
-    let fits = ridge
-        .fit_path(&fixture.x_train, &fixture.y_train, &fixture.x_eval, true)
-        .expect("ridge fits");
+    let fits = fixture.fit(&ridge, true);
     let path = RidgePath::new(&fixture.x_train, &fixture.y_train).expect("factorised");
     let standardised: Vec<Vec<f64>> = penalties.iter().map(|&l| path.coefficients(l)).collect();
     let worst = compare("ridge", &fixture, &fits, &standardised, RIDGE_TOL);
@@ -194,9 +212,7 @@ fn lasso_matches_scikit_learn() {
         features: fixture.features.clone(),
         penalties: penalties.clone(),
     };
-    let fits = lasso
-        .fit_path(&fixture.x_train, &fixture.y_train, &fixture.x_eval, true)
-        .expect("lasso fits");
+    let fits = fixture.fit(&lasso, true);
     let z = Standardiser::fit(&fixture.x_train).apply(&fixture.x_train);
     let (_, y_centred) = centre(&fixture.y_train);
     let problem = LassoProblem::new(&z, &y_centred);

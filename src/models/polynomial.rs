@@ -18,7 +18,7 @@ use super::double_double::DoubleDouble;
 use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
-use super::{loo_from_leverage, require_spread, Family, Setting, SettingFit};
+use super::{leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Least-squares polynomials of the listed degrees.
@@ -323,15 +323,9 @@ impl Polynomial {
             .zip(fits)
             .map(|(&degree, fit)| {
                 let column = self.columns_for(degree) - 1;
-                (0..y_train.len())
-                    .map(|i| {
-                        loo_from_leverage(y_train[i], fit.train_pred[i], leverages[(i, column)])
-                            .ok_or_else(|| FitError::FullLeverage {
-                                setting: format!("degree={degree}"),
-                                row: i + 1,
-                            })
-                    })
-                    .collect()
+                leave_one_out_rows(&format!("degree={degree}"), y_train.len(), |i| {
+                    loo_from_leverage(y_train[i], fit.train_pred[i], leverages[(i, column)])
+                })
             })
             .collect()
     }
@@ -430,9 +424,9 @@ mod tests {
 #[cfg(test)]
 mod leave_one_out_tests {
     use super::*;
+    use crate::models::test_support::shortcut_beside_refits;
 
     #[test]
-    #[allow(clippy::needless_range_loop)] // row i indexes several parallel arrays
     fn hat_diagonal_shortcut_equals_refits() {
         // Identity (common practice for linear smoothers): the shortcut equals
         // refitting without each row, here to 1e-9 relative.
@@ -446,21 +440,9 @@ mod leave_one_out_tests {
             intercept: true,
             degrees: vec![1, 3, 5],
         };
-        let shortcut = poly.leave_one_out(&x, &y).unwrap().unwrap();
-        for i in 0..n {
-            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
-            let x_rest = x.select_rows(&keep);
-            let y_rest: Vec<f64> = keep.iter().map(|&r| y[r]).collect();
-            let refit = poly
-                .fit_path(&x_rest, &y_rest, &x.rows(i, 1).into_owned(), false)
-                .unwrap();
-            for (setting, fit) in refit.iter().enumerate() {
-                let (a, b) = (shortcut[setting][i], fit.eval_pred[0]);
-                assert!(
-                    (a - b).abs() <= 1e-9 * b.abs().max(1.0),
-                    "row {i}: {a} vs {b}"
-                );
-            }
+        for pair in shortcut_beside_refits(&poly, &x, &y) {
+            let (a, b) = (pair.shortcut, pair.refit);
+            assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{pair}");
         }
     }
 }

@@ -38,7 +38,7 @@
 use nalgebra::DMatrix;
 
 use super::standardise::{centre, predict, Standardiser};
-use super::{Family, Setting, SettingFit};
+use super::{leave_one_out_rows, Family, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Iteration cap handed to the SVD (nalgebra counts implicit-shift sweeps
@@ -152,7 +152,7 @@ impl RidgePath {
     /// In the units of the full-data standardisation Z (columns centred,
     /// ΣZ²ⱼ = n), removing row i (m = n − 1 rows remain, a = n/m) gives
     /// centred cross-products C = ZᵀZ − a·zᵢzᵢᵀ and q = Zᵀ(y − ȳ) − a·zᵢeᵢ
-    /// (eᵢ = yᵢ − ȳ; the textbook downdate of a scatter matrix), and squared
+    /// (eᵢ = yᵢ − ȳ; the standard downdate of a scatter matrix), and squared
     /// scale ratios rⱼ² = C_jj/m = 1 + 1/m − n·zᵢⱼ²/m². The left-out
     /// coefficients b solve (C + λR²) b = q. Writing b = V S η with
     /// S = diag((d² + λ)^(−1/2)) and wᵢ = S D uᵢ,
@@ -293,16 +293,9 @@ impl Ridge {
             self.penalties
                 .iter()
                 .map(|&penalty| {
-                    (0..y_train.len())
-                        .map(|i| {
-                            path.left_out(&z, &y_centred, i, penalty).ok_or_else(|| {
-                                FitError::FullLeverage {
-                                    setting: setting_name(penalty),
-                                    row: i + 1,
-                                }
-                            })
-                        })
-                        .collect()
+                    leave_one_out_rows(&setting_name(penalty), y_train.len(), |i| {
+                        path.left_out(&z, &y_centred, i, penalty)
+                    })
                 })
                 .collect(),
         )
@@ -312,12 +305,10 @@ impl Ridge {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::models::linear::Linear;
     use crate::models::penalised_reference;
-
-    fn relative(a: f64, b: f64) -> f64 {
-        (a - b).abs() / b.abs().max(f64::MIN_POSITIVE)
-    }
+    use crate::models::test_support::{
+        assert_grid_equals_separate_fits, relative, shortcut_beside_refits,
+    };
 
     #[test]
     fn zero_penalty_equals_least_squares() {
@@ -328,16 +319,8 @@ mod tests {
             features: f.features.clone(),
             penalties: vec![0.0],
         };
-        let linear = Linear {
-            features: f.features.clone(),
-            intercept: true,
-        };
-        let r = &ridge
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-            .unwrap()[0];
-        let l = &linear
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-            .unwrap()[0];
+        let r = &f.fit(&ridge, true)[0];
+        let l = &f.least_squares(true);
         for (a, b) in r.eval_pred.iter().zip(&l.eval_pred) {
             assert!(relative(*a, *b) <= 1e-11, "eval {a} vs {b}");
         }
@@ -369,16 +352,10 @@ mod tests {
             features: names,
             penalties: vec![0.0],
         };
-        let linear = Linear {
-            features: f.features.clone(),
-            intercept: true,
-        };
         let r = &ridge
             .fit_path(&widen(&f.x_train), &f.y_train, &widen(&f.x_eval), true)
             .unwrap()[0];
-        let l = &linear
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
-            .unwrap()[0];
+        let l = &f.least_squares(false);
         for (a, b) in r.eval_pred.iter().zip(&l.eval_pred) {
             assert!(relative(*a, *b) <= 1e-10, "{a} vs {b}");
         }
@@ -390,7 +367,8 @@ mod tests {
 
     #[test]
     fn effective_df_falls_strictly_with_the_penalty() {
-        // Σ d²/(d²+λ) decreases strictly in λ when any d > 0 (ESL §3.4.1).
+        // Σ d²/(d²+λ) decreases strictly in λ when any d > 0: each term
+        // d²/(d²+λ) does.
         let f = penalised_reference::load();
         let mut penalties = penalised_reference::penalties(&f, "ridge");
         penalties.sort_by(f64::total_cmp);
@@ -398,9 +376,7 @@ mod tests {
             features: f.features.clone(),
             penalties,
         };
-        let fits = ridge
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, false)
-            .unwrap();
+        let fits = f.fit(&ridge, false);
         for pair in fits.windows(2) {
             assert!(pair[1].effective_df < pair[0].effective_df, "{pair:?}");
         }
@@ -412,35 +388,21 @@ mod tests {
         // Invariant (DESIGN.md §5): the grid from one SVD equals one fit per setting.
         let f = penalised_reference::load();
         let penalties = penalised_reference::penalties(&f, "ridge");
-        let ridge = Ridge {
+        let ridge = |penalties| Ridge {
             features: f.features.clone(),
-            penalties: penalties.clone(),
+            penalties,
         };
-        let whole = ridge
-            .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-            .unwrap();
-        for (penalty, together) in penalties.into_iter().zip(&whole) {
-            let alone = Ridge {
-                features: f.features.clone(),
-                penalties: vec![penalty],
-            };
-            let alone = &alone
-                .fit_path(&f.x_train, &f.y_train, &f.x_eval, true)
-                .unwrap()[0];
-            let pairs = together
-                .eval_pred
-                .iter()
-                .chain(&together.train_pred)
-                .zip(alone.eval_pred.iter().chain(&alone.train_pred));
-            for (a, b) in pairs {
-                assert!(relative(*a, *b) <= 1e-12, "penalty {penalty}: {a} vs {b}");
-            }
-            assert_eq!(together.effective_df, alone.effective_df);
-        }
+        assert_grid_equals_separate_fits(
+            &ridge(penalties.clone()),
+            |s| ridge(vec![penalties[s]]),
+            &f.x_train,
+            &f.y_train,
+            &f.x_eval,
+            1e-12,
+        );
     }
 
     #[test]
-    #[allow(clippy::needless_range_loop)] // row i indexes several parallel arrays
     fn leave_one_out_shortcut_equals_refits() {
         // Identity (DESIGN.md §7): the hat-diagonal shortcut equals refitting
         // without each row (here to 1e-9 relative), at λ = 0 and above.
@@ -449,27 +411,11 @@ mod tests {
             features: f.features.clone(),
             penalties: vec![0.0, 0.5, 25.0, 5000.0],
         };
-        let shortcut = ridge
-            .leave_one_out(&f.x_train, &f.y_train)
-            .unwrap()
-            .unwrap();
-        let n = f.y_train.len();
         let mut worst = 0.0_f64;
-        for i in 0..n {
-            let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
-            let x_rest = f.x_train.select_rows(&keep);
-            let y_rest: Vec<f64> = keep.iter().map(|&r| f.y_train[r]).collect();
-            let refit = ridge
-                .fit_path(&x_rest, &y_rest, &f.x_train.rows(i, 1).into_owned(), false)
-                .unwrap();
-            for (setting, fit) in refit.iter().enumerate() {
-                let (a, b) = (shortcut[setting][i], fit.eval_pred[0]);
-                assert!(
-                    relative(a, b) <= 1e-9,
-                    "row {i} setting {setting}: {a} vs {b}"
-                );
-                worst = worst.max(relative(a, b));
-            }
+        for pair in shortcut_beside_refits(&ridge, &f.x_train, &f.y_train) {
+            let error = relative(pair.shortcut, pair.refit);
+            assert!(error <= 1e-9, "{pair}");
+            worst = worst.max(error);
         }
         println!("ridge leave-one-out shortcut vs refits: worst relative error {worst:e}");
     }

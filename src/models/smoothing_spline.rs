@@ -50,7 +50,10 @@ mod hermite;
 use nalgebra::DMatrix;
 
 use self::hermite::{HermiteSystem, Singular};
-use super::{loo_from_leverage, require_spread, Family, Setting, SettingFit};
+use super::{
+    leave_one_out_rows, loo_from_leverage, require_spread, smoother_settings, Family, Setting,
+    SettingFit,
+};
 use crate::error::FitError;
 use crate::spec::SmootherGrid;
 
@@ -502,13 +505,7 @@ impl Family for SmoothingSpline {
     }
 
     fn settings(&self) -> Vec<Setting> {
-        match &self.grid {
-            SmootherGrid::Penalty(values) => values
-                .iter()
-                .map(|&v| Setting::real("penalty", v))
-                .collect(),
-            SmootherGrid::Df(values) => values.iter().map(|&v| Setting::real("df", v)).collect(),
-        }
+        smoother_settings(&self.grid)
     }
 
     fn algorithm_version(&self) -> u32 {
@@ -560,19 +557,10 @@ impl Family for SmoothingSpline {
                     fits.iter()
                         .zip(self.settings())
                         .map(|(fit, setting)| {
-                            y_train
-                                .iter()
-                                .zip(&knots.knot_of_row)
-                                .enumerate()
-                                .map(|(row, (&y, &k))| {
-                                    loo_from_leverage(y, fit.values[k], fit.leverage[k]).ok_or_else(
-                                        || FitError::FullLeverage {
-                                            setting: setting.to_string(),
-                                            row: row + 1,
-                                        },
-                                    )
-                                })
-                                .collect()
+                            leave_one_out_rows(&setting.to_string(), y_train.len(), |row| {
+                                let k = knots.knot_of_row[row];
+                                loo_from_leverage(y_train[row], fit.values[k], fit.leverage[k])
+                            })
                         })
                         .collect()
                 }),

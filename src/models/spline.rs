@@ -31,7 +31,7 @@
 use nalgebra::DMatrix;
 
 use super::least_squares::{cumulative_leverages, predict_leading, NestedLeastSquares};
-use super::{loo_from_leverage, require_spread, Family, Setting, SettingFit};
+use super::{leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Additive natural cubic regression splines of the listed df per feature.
@@ -332,15 +332,9 @@ impl Spline {
                     self.fit_with_bases(&bases, df, x_train, y_train, &empty, true)?;
                 let leverages = cumulative_leverages(&design);
                 let last = design.ncols() - 1;
-                (0..y_train.len())
-                    .map(|i| {
-                        loo_from_leverage(y_train[i], fit.train_pred[i], leverages[(i, last)])
-                            .ok_or_else(|| FitError::FullLeverage {
-                                setting: format!("df={df}"),
-                                row: i + 1,
-                            })
-                    })
-                    .collect()
+                leave_one_out_rows(&format!("df={df}"), y_train.len(), |i| {
+                    loo_from_leverage(y_train[i], fit.train_pred[i], leverages[(i, last)])
+                })
             })
             .collect()
     }

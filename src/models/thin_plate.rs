@@ -36,7 +36,10 @@ mod tridiagonal;
 
 use nalgebra::DMatrix;
 
-use super::{loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit};
+use super::{
+    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, smoother_settings, Family,
+    Setting, SettingFit,
+};
 use crate::error::FitError;
 use crate::spec::SmootherGrid;
 use exact::ExactPath;
@@ -439,13 +442,7 @@ impl Family for ThinPlate {
     }
 
     fn settings(&self) -> Vec<Setting> {
-        match &self.grid {
-            SmootherGrid::Penalty(values) => values
-                .iter()
-                .map(|&p| Setting::real("penalty", p))
-                .collect(),
-            SmootherGrid::Df(values) => values.iter().map(|&d| Setting::real("df", d)).collect(),
-        }
+        smoother_settings(&self.grid)
     }
 
     fn fit_path(
@@ -491,17 +488,10 @@ impl ThinPlate {
             .zip(fits)
             .map(|(setting, (fit, leverages))| {
                 let leverages = leverages.unwrap_or_default();
-                (0..y_train.len())
-                    .map(|i| {
-                        let h = leverages.get(i).copied().unwrap_or(1.0);
-                        loo_from_leverage(y_train[i], fit.train_pred[i], h).ok_or_else(|| {
-                            FitError::FullLeverage {
-                                setting: setting.to_string(),
-                                row: i + 1,
-                            }
-                        })
-                    })
-                    .collect()
+                leave_one_out_rows(&setting.to_string(), y_train.len(), |i| {
+                    let h = leverages.get(i).copied().unwrap_or(1.0);
+                    loo_from_leverage(y_train[i], fit.train_pred[i], h)
+                })
             })
             .collect()
     }

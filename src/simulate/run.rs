@@ -18,8 +18,8 @@ use super::design::Setup;
 use crate::assess::{self, SettingScore};
 use crate::cache::{self, CacheKey, Lookup};
 use crate::error::{FitError, FitFailure, SpecError};
-use crate::execute::{CachePolicy, CandidateFits, ExecuteError, Shard, Summary};
-use crate::models::{self, Family, SettingFit};
+use crate::execute::{self, CachePolicy, CandidateFits, ExecuteError, Shard, Summary};
+use crate::models::{self, SettingFit};
 use crate::plan::CandidatePlan;
 use crate::spec::{LoadedSpec, Metric, SplitMethod, DEFAULT_FOLDS};
 use crate::split::{self, Assignment, FoldScheme};
@@ -144,10 +144,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
     let mut candidates = Vec::new();
     let mut feature_columns = Vec::new();
     for raw in &spec.families {
-        let features = raw
-            .features_override()
-            .map(<[String]>::to_vec)
-            .unwrap_or_else(|| setup.names.clone());
+        let features = raw.features.clone().unwrap_or_else(|| setup.names.clone());
         feature_columns.push(
             features
                 .iter()
@@ -156,7 +153,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
         );
         let family = models::build(raw, features);
         candidates.push(CandidatePlan {
-            stem: raw.label().unwrap_or(raw.family_name()).to_string(),
+            stem: raw.stem().to_string(),
             settings: family.settings(),
             family,
         });
@@ -310,50 +307,6 @@ pub fn replicate_keys(plan: &SimulationPlan, replicate: &Replicate) -> Vec<Vec<C
         .collect()
 }
 
-/// Leave-one-out predictions at every training row, per setting: the
-/// family's shortcut when it has one (hat diagonal, neighbour exclusion),
-/// otherwise one refit per left-out row.
-fn leave_one_out(
-    family: &dyn Family,
-    x: &DMatrix<f64>,
-    y: &[f64],
-) -> Result<Vec<SettingFit>, FitError> {
-    let per_setting = match family.leave_one_out(x, y) {
-        Some(shortcut) => shortcut?,
-        None => {
-            let n = y.len();
-            let mut per_row = Vec::with_capacity(n);
-            for i in 0..n {
-                let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
-                let y_rest: Vec<f64> = keep.iter().map(|&r| y[r]).collect();
-                let fits = family.fit_path(
-                    &x.select_rows(&keep),
-                    &y_rest,
-                    &x.rows(i, 1).into_owned(),
-                    false,
-                )?;
-                per_row.push(
-                    fits.into_iter()
-                        .map(|f| f.eval_pred[0])
-                        .collect::<Vec<f64>>(),
-                );
-            }
-            (0..family.settings().len())
-                .map(|s| per_row.iter().map(|row| row[s]).collect())
-                .collect()
-        }
-    };
-    Ok(per_setting
-        .into_iter()
-        .map(|eval_pred| SettingFit {
-            train_pred: Vec::new(),
-            eval_pred,
-            effective_df: f64::NAN,
-            coefficients: None,
-        })
-        .collect())
-}
-
 /// Fits, cross-validates and chooses on one replicate.
 pub fn run_replicate(
     plan: &SimulationPlan,
@@ -417,7 +370,7 @@ pub fn run_replicate(
         let mut fold_predictions: Vec<Vec<Vec<f64>>> = Vec::with_capacity(folds.len());
         if replicate.assignment.single_row_folds {
             let loo = through_cache(policy, &keys[c][1], || {
-                leave_one_out(family, &x, &replicate.y)
+                execute::leave_one_out(family, &x, &replicate.y)
             })?
             .map_err(|e| fail("leave-one-out".into(), e))?;
             tally(&loo);
@@ -460,16 +413,11 @@ pub fn run_replicate(
             let fit = &full.fits[s];
             let (test_pred, train_pred) = fit.eval_pred.split_at(m);
             let train_mse = Metric::Mse.score(&replicate.y, train_pred);
-            let fold_scores: Vec<f64> = fold_predictions
-                .iter()
-                .zip(&fold_targets)
-                .map(|(grid, observed)| metric.score(observed, &grid[s]))
-                .collect();
             let score = SettingScore::new(
                 candidate.id(setting),
                 fit.effective_df,
                 metric.score(&replicate.y, train_pred),
-                fold_scores,
+                assess::fold_scores(metric, &fold_predictions, &fold_targets, s),
             );
             outcome.test_pred.push(test_pred.to_vec());
             outcome.train_mse.push(train_mse);

@@ -62,21 +62,14 @@ fn f64_array(value: &Value, what: &str) -> Vec<f64> {
         .collect()
 }
 
-/// Copies the spec and its table into a fresh directory, runs
-/// `heldout run spec.toml --out out --quiet` there and returns `results.json`.
+/// Copies the spec and its table into a fresh directory, runs it there
+/// ([`util::run_results`]) and returns `results.json`.
 fn run_fixture(dir: &Path) -> Value {
     for name in ["spec.toml", "data.csv"] {
         std::fs::copy(fixture_dir().join(name), dir.join(name))
             .unwrap_or_else(|e| panic!("cannot copy {name}: {e}"));
     }
-    let output = util::run_in(dir, &["run", "spec.toml", "--out", "out", "--quiet"]);
-    assert!(
-        output.status.success(),
-        "heldout run failed with {}\nstderr:\n{}",
-        output.status,
-        util::stderr_of(&output)
-    );
-    util::read_json(&dir.join("out").join("cv-reference").join("results.json"))
+    util::run_results(dir, "cv-reference")
 }
 
 fn expected_candidates() -> serde_json::Map<String, Value> {
@@ -85,16 +78,6 @@ fn expected_candidates() -> serde_json::Map<String, Value> {
         .as_object()
         .expect("expected.json: \"candidates\" is not an object")
         .clone()
-}
-
-/// The entry of `results["candidates"]` whose `"id"` is `id`.
-fn find_candidate<'a>(results: &'a Value, id: &str) -> &'a Value {
-    results["candidates"]
-        .as_array()
-        .expect("results.json: \"candidates\" is not an array")
-        .iter()
-        .find(|c| c["id"].as_str() == Some(id))
-        .unwrap_or_else(|| panic!("results.json has no candidate with id {id:?}"))
 }
 
 #[test]
@@ -111,7 +94,7 @@ fn fold_and_train_scores_match_reference() {
     );
 
     for (id, want) in &expected {
-        let got = find_candidate(&results, id);
+        let got = util::candidate(&results, id);
         let got_folds = f64_array(&got["fold_scores"], &format!("{id} fold_scores"));
         let want_folds = f64_array(&want["fold_scores"], &format!("expected {id} fold_scores"));
         assert_eq!(got_folds.len(), FOLDS, "{id}: number of fold scores");
@@ -134,7 +117,7 @@ fn cv_score_and_standard_error_follow_fold_scores() {
     let results = run_fixture(dir.path());
 
     for (id, want) in &expected_candidates() {
-        let got = find_candidate(&results, id);
+        let got = util::candidate(&results, id);
         let folds = f64_array(&want["fold_scores"], &format!("expected {id} fold_scores"));
         let n = folds.len() as f64;
         let mean = folds.iter().sum::<f64>() / n;

@@ -80,11 +80,5 @@ fn committed_demo_receipt_verifies() {
     let dir = tempfile::tempdir().unwrap();
     copy_demo(dir.path());
     let output = util::run_in(dir.path(), &["verify", "specs/heat-demand.toml"]);
-    assert_eq!(
-        output.status.code(),
-        Some(0),
-        "{}{}",
-        util::stdout_of(&output),
-        util::stderr_of(&output)
-    );
+    util::assert_success(&output);
 }

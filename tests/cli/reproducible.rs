@@ -52,20 +52,6 @@ fn heldout_ok(dir: &Path, args: &[&str]) -> String {
     stderr
 }
 
-/// (computed, reused) from the `fits: N computed, M reused from the cache` line.
-fn fit_counts(stderr: &str) -> (usize, usize) {
-    let line = stderr
-        .lines()
-        .find(|l| l.starts_with("fits: "))
-        .unwrap_or_else(|| panic!("no `fits:` line on stderr:\n{stderr}"));
-    let numbers: Vec<usize> = line
-        .split_whitespace()
-        .filter_map(|word| word.parse().ok())
-        .collect();
-    assert_eq!(numbers.len(), 2, "unexpected fits line: {line}");
-    (numbers[0], numbers[1])
-}
-
 /// The demo spec and data in `dir` (repository layout), without the committed
 /// receipt, so that a receipt found later was written by the test's own run.
 fn demo_tree(dir: &Path) {
@@ -108,7 +94,7 @@ fn demo_baseline() -> (TempDir, Artifacts) {
     let dir = tempfile::tempdir().unwrap();
     demo_tree(dir.path());
     let stderr = heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
-    assert_eq!(fit_counts(&stderr), (DEMO_FITS, 0), "a fresh cache");
+    assert_eq!(util::fit_counts(&stderr), (DEMO_FITS, 0), "a fresh cache");
     let found = demo_artifacts(dir.path());
     (dir, found)
 }
@@ -244,7 +230,7 @@ fn working_directory_does_not_change_a_byte() {
     demo_tree(dir.path());
     let specs = dir.path().join("specs");
     let stderr = heldout_ok(&specs, &["run", "heat-demand.toml", "--out", "../out"]);
-    assert_eq!(fit_counts(&stderr), (DEMO_FITS, 0));
+    assert_eq!(util::fit_counts(&stderr), (DEMO_FITS, 0));
     assert_eq!(demo_artifacts(dir.path()), baseline);
     // The default cache is relative to the working directory.
     assert_eq!(
@@ -309,7 +295,7 @@ fn cache_recomputes_only_what_a_spec_change_touches() {
     demo_tree(dir.path());
     let spec_path = dir.path().join("specs/heat-demand.toml");
     let spec = read(&spec_path);
-    let run = || fit_counts(&heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]));
+    let run = || util::fit_counts(&heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]));
 
     assert_eq!(run(), (DEMO_FITS, 0), "cold");
     assert_eq!(run(), (0, DEMO_FITS), "warm rerun");
@@ -401,13 +387,13 @@ fn verify_ignores_a_tampered_cache_and_run_repairs_it() {
         .find(|l| l.starts_with("warning:"))
         .unwrap_or_else(|| panic!("no warning about the tampered entry:\n{stderr}"));
     assert!(warning.contains(name.as_ref()), "{warning}");
-    assert_eq!(fit_counts(&stderr), (1, DEMO_FITS - 1));
+    assert_eq!(util::fit_counts(&stderr), (1, DEMO_FITS - 1));
     assert_eq!(demo_artifacts(dir.path()), before);
 
     // The entry was rewritten whole: the next run reuses everything quietly.
     let stderr = heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
     assert!(!stderr.contains("warning"), "{stderr}");
-    assert_eq!(fit_counts(&stderr), (0, DEMO_FITS));
+    assert_eq!(util::fit_counts(&stderr), (0, DEMO_FITS));
 }
 
 // ---------------------------------------------------------------------------
@@ -424,7 +410,7 @@ fn run_killed_part_way_then_rerun_matches_an_uninterrupted_run() {
     let started = Instant::now();
     let stderr = heldout_ok(clean.path(), &["run", "specs/wavy.toml"]);
     let full_run = started.elapsed();
-    assert_eq!(fit_counts(&stderr), (SYNTHETIC_FITS, 0));
+    assert_eq!(util::fit_counts(&stderr), (SYNTHETIC_FITS, 0));
     let expected = synthetic_artifacts(clean.path());
 
     // Kill after about a third of an uninterrupted run, once at least one
@@ -469,7 +455,7 @@ fn run_killed_part_way_then_rerun_matches_an_uninterrupted_run() {
         let stderr = heldout_ok(dir.path(), &["run", "specs/wavy.toml"]);
         assert!(!stderr.contains("warning"), "{stderr}");
         assert_eq!(
-            fit_counts(&stderr),
+            util::fit_counts(&stderr),
             (SYNTHETIC_FITS - left, left),
             "every whole entry left by the killed run is reused"
         );
@@ -510,7 +496,7 @@ fn concurrent_runs_on_one_cache_agree() {
         let stderr = util::stderr_of(&output);
         assert!(output.status.success(), "{}: {stderr}", tree.display());
         assert!(!stderr.contains("warning"), "{stderr}");
-        let (fresh, reused) = fit_counts(&stderr);
+        let (fresh, reused) = util::fit_counts(&stderr);
         assert_eq!(fresh + reused, SYNTHETIC_FITS);
         computed += fresh;
     }
@@ -525,7 +511,7 @@ fn concurrent_runs_on_one_cache_agree() {
     // Whatever the interleaving, the entries are whole and the same bytes result.
     let stderr = heldout_ok(&trees[0], &["run", "--cache", cache_arg, "specs/wavy.toml"]);
     assert!(!stderr.contains("warning"), "{stderr}");
-    assert_eq!(fit_counts(&stderr), (0, SYNTHETIC_FITS));
+    assert_eq!(util::fit_counts(&stderr), (0, SYNTHETIC_FITS));
     assert_eq!(
         synthetic_artifacts(&trees[0]),
         synthetic_artifacts(&trees[1])
@@ -576,7 +562,7 @@ fn three_shards_then_assembly_match_a_single_run() {
     );
 
     let stderr = heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
-    assert_eq!(fit_counts(&stderr), (0, DEMO_FITS));
+    assert_eq!(util::fit_counts(&stderr), (0, DEMO_FITS));
     assert_eq!(demo_artifacts(dir.path()), expected);
 }
 

@@ -58,34 +58,11 @@ fn write_table(dir: &Path) {
 fn run(dir: &TempDir) -> Value {
     write_table(dir.path());
     std::fs::write(dir.path().join("spec.toml"), SPEC).expect("cannot write spec.toml");
-    let output = util::run_in(
-        dir.path(),
-        &[
-            "run",
-            "spec.toml",
-            "--out",
-            "out",
-            "--cache",
-            "cache",
-            "--quiet",
-        ],
-    );
-    assert!(
-        output.status.success(),
-        "heldout run failed with {}\nstderr:\n{}",
-        output.status,
-        util::stderr_of(&output)
-    );
-    util::read_json(&dir.path().join("out/kiln-penalties/results.json"))
+    util::run_results(dir.path(), "kiln-penalties")
 }
 
 fn df_of(results: &Value, id: &str) -> f64 {
-    results["candidates"]
-        .as_array()
-        .expect("candidates")
-        .iter()
-        .find(|c| c["id"] == id)
-        .unwrap_or_else(|| panic!("no candidate {id}"))["effective_df"]
+    util::candidate(results, id)["effective_df"]
         .as_f64()
         .expect("effective_df is a number")
 }

@@ -33,20 +33,6 @@ pub fn heldout_ok(dir: &Path, args: &[&str]) -> Output {
     output
 }
 
-/// (computed, reused) from the `fits:` line on stderr.
-fn fit_counts(output: &Output) -> (usize, usize) {
-    let stderr = util::stderr_of(output);
-    let line = stderr
-        .lines()
-        .find(|l| l.starts_with("fits: "))
-        .unwrap_or_else(|| panic!("no `fits:` line:\n{stderr}"));
-    let numbers: Vec<usize> = line
-        .split_whitespace()
-        .filter_map(|w| w.parse().ok())
-        .collect();
-    (numbers[0], numbers[1])
-}
-
 /// The demo simulation spec with `replicates` replicates, as `specs/<file>`.
 pub fn demo_spec(dir: &Path, file: &str, replicates: usize) {
     let text =
@@ -237,11 +223,14 @@ fn more_replicates_extend_and_reuse_earlier_fits() {
     let dir = tempfile::tempdir().unwrap();
     demo_spec(dir.path(), "sim.toml", 4);
     let output = heldout_ok(dir.path(), &["run", "specs/sim.toml"]);
-    assert_eq!(fit_counts(&output), (4 * 22, 0));
+    assert_eq!(util::fit_counts(&util::stderr_of(&output)), (4 * 22, 0));
     let before = results(dir.path());
     demo_spec(dir.path(), "sim.toml", 9);
     let output = heldout_ok(dir.path(), &["run", "specs/sim.toml"]);
-    assert_eq!(fit_counts(&output), (5 * 22, 4 * 22));
+    assert_eq!(
+        util::fit_counts(&util::stderr_of(&output)),
+        (5 * 22, 4 * 22)
+    );
     let after = results(dir.path());
     let chosen = |r: &Value| r["simulation_summary"]["cv"]["chosen_by_replicate"].clone();
     assert_eq!(
@@ -271,7 +260,7 @@ fn shards_fill_the_cache_for_a_final_assembly() {
     let second = heldout_ok(dir.path(), &["run", "--shard", "2/2", "specs/sim.toml"]);
     assert!(util::stderr_of(&second).contains("shard 2/2: 44 fits computed, 0 reused"));
     let assembled = heldout_ok(dir.path(), &["run", "specs/sim.toml"]);
-    assert_eq!(fit_counts(&assembled), (0, 5 * 22));
+    assert_eq!(util::fit_counts(&util::stderr_of(&assembled)), (0, 5 * 22));
     let sharded =
         std::fs::read(dir.path().join("out/heat-demand-simulation/results.json")).unwrap();
     let single = tempfile::tempdir().unwrap();
@@ -345,11 +334,5 @@ fn committed_simulation_receipt_verifies() {
         .unwrap();
     }
     let output = heldout(dir.path(), &["verify", "specs/heat-demand-simulation.toml"]);
-    assert_eq!(
-        output.status.code(),
-        Some(0),
-        "{}{}",
-        util::stdout_of(&output),
-        util::stderr_of(&output)
-    );
+    util::assert_success(&output);
 }

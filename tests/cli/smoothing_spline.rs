@@ -48,26 +48,7 @@ fn df_grid_runs_and_reports_the_requested_df() {
     let dir = tempfile::tempdir().expect("cannot create a temporary directory");
     write_table(dir.path());
     std::fs::write(dir.path().join("spec.toml"), SPEC).unwrap();
-    let cache = dir.path().join("cache");
-    let output = util::run_in(
-        dir.path(),
-        &[
-            "run",
-            "spec.toml",
-            "--out",
-            "out",
-            "--quiet",
-            "--cache",
-            cache.to_str().unwrap(),
-        ],
-    );
-    assert!(
-        output.status.success(),
-        "heldout run failed with {}\nstderr:\n{}",
-        output.status,
-        util::stderr_of(&output)
-    );
-    let results = util::read_json(&dir.path().join("out/spline-df/results.json"));
+    let results = util::run_results(dir.path(), "spline-df");
     let candidates = results["candidates"].as_array().expect("candidates array");
     let ids: Vec<&str> = candidates
         .iter()
@@ -97,19 +78,7 @@ fn df_grid_runs_and_reports_the_requested_df() {
     }
     // Recomputing without the cache reproduces every number bit for bit
     // (DESIGN.md §4: fixed-order arithmetic, no platform maths).
-    let verified = util::run_in(
-        dir.path(),
-        &[
-            "verify",
-            "spec.toml",
-            "--out",
-            "out",
-            "--quiet",
-            "--cache",
-            cache.to_str().unwrap(),
-        ],
-    );
-    assert!(verified.status.success(), "{}", util::stderr_of(&verified));
+    util::assert_success(&util::run_spec(dir.path(), "verify"));
     // Training error falls as the fit gets more flexible (common practice).
     let train: Vec<f64> = candidates
         .iter()
@@ -127,19 +96,7 @@ fn df_above_the_distinct_values_names_the_setting() {
         SPEC.replace("[2.5, 4, 8]", "[4, 60]"),
     )
     .unwrap();
-    let cache = dir.path().join("cache");
-    let output = util::run_in(
-        dir.path(),
-        &[
-            "run",
-            "spec.toml",
-            "--out",
-            "out",
-            "--quiet",
-            "--cache",
-            cache.to_str().unwrap(),
-        ],
-    );
+    let output = util::run_spec(dir.path(), "run");
     assert_eq!(
         output.status.code(),
         Some(2),

@@ -53,15 +53,6 @@ fn orchard_csv() -> String {
     csv
 }
 
-fn candidate<'a>(results: &'a Value, id: &str) -> &'a Value {
-    results["candidates"]
-        .as_array()
-        .expect("candidates is an array")
-        .iter()
-        .find(|c| c["id"] == id)
-        .unwrap_or_else(|| panic!("no candidate {id} in {results:#}"))
-}
-
 fn number(candidate: &Value, key: &str) -> f64 {
     candidate[key]
         .as_f64()
@@ -73,25 +64,7 @@ fn spline_and_thin_plate_run_under_five_fold_cross_validation() {
     let dir = TempDir::new().unwrap();
     std::fs::write(dir.path().join("spec.toml"), SPEC).unwrap();
     std::fs::write(dir.path().join("orchard.csv"), orchard_csv()).unwrap();
-    let output = util::run_in(
-        dir.path(),
-        &[
-            "run",
-            "spec.toml",
-            "--out",
-            "out",
-            "--cache",
-            "cache",
-            "--quiet",
-        ],
-    );
-    assert!(
-        output.status.success(),
-        "heldout run failed with {}\nstderr:\n{}",
-        output.status,
-        util::stderr_of(&output)
-    );
-    let results = util::read_json(&dir.path().join("out/orchard/results.json"));
+    let results = util::run_results(dir.path(), "orchard");
 
     // Effective df: 1 + 2·df basis columns for the additive spline; the
     // requested trace for the thin plate (root finding, to 1e-8 here).
@@ -103,7 +76,7 @@ fn spline_and_thin_plate_run_under_five_fold_cross_validation() {
         ("thin-plate/df=6", 6.0),
         ("thin-plate/df=12", 12.0),
     ] {
-        let c = candidate(&results, id);
+        let c = util::candidate(&results, id);
         let got = number(c, "effective_df");
         assert!(
             (got - df).abs() <= 1e-8 * df,
@@ -113,16 +86,16 @@ fn spline_and_thin_plate_run_under_five_fold_cross_validation() {
         assert_eq!(folds.len(), 5, "{id}");
         assert!(number(c, "cv_score").is_finite(), "{id}");
     }
-    assert_eq!(candidate(&results, "spline/df=3")["family"], "spline");
+    assert_eq!(util::candidate(&results, "spline/df=3")["family"], "spline");
     assert_eq!(
-        candidate(&results, "thin-plate/df=6")["family"],
+        util::candidate(&results, "thin-plate/df=6")["family"],
         "thin-plate"
     );
 
     // The truth is curved in both features, so the straight additive fit
     // (df = 1) and the nearly flat surface (df = 3.5) must lose to their more
     // flexible settings (common practice: underfitting shows in held-out error).
-    let cv = |id: &str| number(candidate(&results, id), "cv_score");
+    let cv = |id: &str| number(util::candidate(&results, id), "cv_score");
     assert!(cv("spline/df=6") < cv("spline/df=1"));
     assert!(cv("thin-plate/df=12") < cv("thin-plate/df=3.5"));
 }

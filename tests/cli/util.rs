@@ -29,6 +29,52 @@ pub fn run_in(dir: &Path, args: &[&str]) -> Output {
         .expect("the heldout binary could not be started")
 }
 
+/// Runs `heldout <command> spec.toml --out out --cache cache --quiet` in
+/// `dir`, where the test has written the spec and its table.
+pub fn run_spec(dir: &Path, command: &str) -> Output {
+    run_in(
+        dir,
+        &[
+            command,
+            "spec.toml",
+            "--out",
+            "out",
+            "--cache",
+            "cache",
+            "--quiet",
+        ],
+    )
+}
+
+/// Fails the test, showing what the process wrote, unless it exited with
+/// success (code 0).
+pub fn assert_success(output: &Output) {
+    assert!(
+        output.status.success(),
+        "heldout failed with {}\nstdout:\n{}\nstderr:\n{}",
+        output.status,
+        stdout_of(output),
+        stderr_of(output)
+    );
+}
+
+/// Runs `spec.toml` in `dir` (see [`run_spec`]), which must succeed, and
+/// returns the `results.json` of its experiment `name`.
+pub fn run_results(dir: &Path, name: &str) -> serde_json::Value {
+    assert_success(&run_spec(dir, "run"));
+    read_json(&dir.join("out").join(name).join("results.json"))
+}
+
+/// The entry of `results["candidates"]` whose `"id"` is `id`.
+pub fn candidate<'a>(results: &'a serde_json::Value, id: &str) -> &'a serde_json::Value {
+    results["candidates"]
+        .as_array()
+        .expect("results.json: \"candidates\" is not an array")
+        .iter()
+        .find(|c| c["id"].as_str() == Some(id))
+        .unwrap_or_else(|| panic!("results.json has no candidate with id {id:?}"))
+}
+
 /// Stderr of a finished process as text.
 pub fn stderr_of(output: &Output) -> String {
     String::from_utf8_lossy(&output.stderr).into_owned()
@@ -37,6 +83,21 @@ pub fn stderr_of(output: &Output) -> String {
 /// Stdout of a finished process as text.
 pub fn stdout_of(output: &Output) -> String {
     String::from_utf8_lossy(&output.stdout).into_owned()
+}
+
+/// (computed, reused) from the `fits: N computed, M reused from the cache`
+/// line on a run's stderr.
+pub fn fit_counts(stderr: &str) -> (usize, usize) {
+    let line = stderr
+        .lines()
+        .find(|l| l.starts_with("fits: "))
+        .unwrap_or_else(|| panic!("no `fits:` line on stderr:\n{stderr}"));
+    let numbers: Vec<usize> = line
+        .split_whitespace()
+        .filter_map(|word| word.parse().ok())
+        .collect();
+    assert_eq!(numbers.len(), 2, "unexpected fits line: {line}");
+    (numbers[0], numbers[1])
 }
 
 /// Reads and parses a JSON file.
