@@ -5,7 +5,6 @@
 
 use std::collections::BTreeMap;
 use std::path::Path;
-use std::process::Output;
 
 use crate::util;
 
@@ -47,21 +46,12 @@ fn write_case(dir: &Path, spec: &str) {
     std::fs::write(dir.join("data.csv"), table()).unwrap();
 }
 
-fn expect_ok(output: &Output, what: &str) {
-    assert_eq!(
-        output.status.code(),
-        Some(0),
-        "{what}\nstderr:\n{}",
-        util::stderr_of(output)
-    );
-}
-
 #[test]
 fn folds_chain_forward_in_time_and_the_run_verifies() {
     let dir = tempfile::tempdir().unwrap();
     write_case(dir.path(), SPEC);
     let folds = util::run_in(dir.path(), &["folds", "spec.toml"]);
-    expect_ok(&folds, "heldout folds");
+    util::assert_success(&folds);
 
     // Day of each data row (row numbers count data rows from 1).
     let days: Vec<usize> = table()
@@ -89,7 +79,7 @@ fn folds_chain_forward_in_time_and_the_run_verifies() {
     assert_eq!(days_of["4"], (29..=34).collect::<Vec<_>>());
 
     let run = util::run_in(dir.path(), &["run", "spec.toml", "--out", "out", "--quiet"]);
-    expect_ok(&run, "heldout run");
+    util::assert_success(&run);
     let results = util::read_json(&dir.path().join("out/ordered/results.json"));
     assert_eq!(results["split"]["method"], "ordered");
     assert_eq!(results["data"]["order"], "day");
@@ -103,7 +93,7 @@ fn folds_chain_forward_in_time_and_the_run_verifies() {
         "the report names the method and the test set:\n{report}"
     );
     let verify = util::run_in(dir.path(), &["verify", "spec.toml", "--quiet"]);
-    expect_ok(&verify, "heldout verify");
+    util::assert_success(&verify);
 }
 
 /// Runs the spec with `from` replaced by `to`; asserts exit 2 and that

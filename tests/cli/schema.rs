@@ -45,28 +45,12 @@ fn schema_names_every_family_and_forbids_unknown_keys() {
     insta::assert_snapshot!("spec_schema", schema_text());
 }
 
-/// Why the Python validator cannot run here, or `None` when it can.
-fn validator_unavailable() -> Option<String> {
-    match Command::new("python3")
-        .args(["-c", "import tomllib, jsonschema"])
-        .output()
-    {
-        Err(e) => Some(format!("python3 could not be started ({e})")),
-        Ok(out) if !out.status.success() => Some(format!(
-            "`import tomllib, jsonschema` failed (needs Python >= 3.11 and \
-             `python3 -m pip install jsonschema==4.26.0`): {}",
-            String::from_utf8_lossy(&out.stderr)
-                .lines()
-                .last()
-                .unwrap_or("no message")
-        )),
-        Ok(_) => None,
-    }
-}
-
 #[test]
 fn a_general_purpose_validator_accepts_the_demo_specs_and_rejects_a_typo() {
-    if let Some(why) = validator_unavailable() {
+    if let Some(why) = util::python_missing(
+        "tomllib, jsonschema",
+        "python3 -m pip install jsonschema==4.26.0",
+    ) {
         eprintln!("schema: SKIPPED the jsonschema validation: {why}");
         return;
     }

@@ -55,29 +55,12 @@ fn heldout_folds(dir: &Path, name: &str) -> String {
     util::stdout_of(&output)
 }
 
-/// Why the Python reference cannot run here, or `None` when it can.
-fn python_unavailable() -> Option<String> {
-    match Command::new("python3")
-        .args(["-c", "import tomllib, blake3"])
-        .output()
-    {
-        Err(e) => Some(format!("python3 could not be started ({e})")),
-        Ok(out) if !out.status.success() => Some(format!(
-            "`import tomllib, blake3` failed in python3 (needs Python >= 3.11 and \
-             `python3 -m pip install blake3==1.0.11`): {}",
-            String::from_utf8_lossy(&out.stderr)
-                .lines()
-                .last()
-                .unwrap_or("no message")
-        )),
-        Ok(_) => None,
-    }
-}
-
 /// Runs the reimplementation on `<name>.toml` in `dir` and compares its
 /// stdout byte for byte with `heldout folds`.
 fn assert_matches_reference(name: &str) {
-    if let Some(why) = python_unavailable() {
+    if let Some(why) =
+        util::python_missing("tomllib, blake3", "python3 -m pip install blake3==1.0.11")
+    {
         eprintln!("split_reference: SKIPPED the Python comparison for {name}: {why}");
         return;
     }

@@ -75,6 +75,26 @@ pub fn candidate<'a>(results: &'a serde_json::Value, id: &str) -> &'a serde_json
         .unwrap_or_else(|| panic!("results.json has no candidate with id {id:?}"))
 }
 
+/// Why `python3 -c "import <modules>"` fails here (with the pip command
+/// that would fix it), or `None` when those modules import. Tests that
+/// compare with a Python reference skip, saying so, when it is `Some`.
+pub fn python_missing(modules: &str, install: &str) -> Option<String> {
+    match Command::new("python3")
+        .args(["-c", &format!("import {modules}")])
+        .output()
+    {
+        Err(e) => Some(format!("python3 could not be started ({e})")),
+        Ok(out) if !out.status.success() => Some(format!(
+            "`import {modules}` failed in python3 (needs Python >= 3.11 and `{install}`): {}",
+            String::from_utf8_lossy(&out.stderr)
+                .lines()
+                .last()
+                .unwrap_or("no message")
+        )),
+        Ok(_) => None,
+    }
+}
+
 /// Stderr of a finished process as text.
 pub fn stderr_of(output: &Output) -> String {
     String::from_utf8_lossy(&output.stderr).into_owned()
