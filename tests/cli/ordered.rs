@@ -89,7 +89,8 @@ fn folds_chain_forward_in_time_and_the_run_verifies() {
     let report = std::fs::read_to_string(dir.path().join("out/ordered/report.md")).unwrap();
     assert!(
         report.contains("forward-chaining cross-validation in order of")
-            && report.contains("the latest by day, later than every row the choice saw"),
+            && report.contains("the latest by day, later than every row the choice saw")
+            && report.contains("no random choices, so no seed is used"),
         "the report names the method and the test set:\n{report}"
     );
     let verify = util::run_in(dir.path(), &["verify", "spec.toml", "--quiet"]);
