@@ -47,9 +47,11 @@
 
 mod hermite;
 
+use std::cell::RefCell;
+
 use nalgebra::DMatrix;
 
-use self::hermite::{HermiteSystem, Singular};
+use self::hermite::{Factor, HermiteSystem, Singular};
 use super::{
     leave_one_out_rows, loo_from_leverage, require_spread, smoother_settings, Family, Setting,
     SettingFit,
@@ -160,6 +162,10 @@ struct Prepared {
     line_slope: f64,
     /// Knot means minus the line.
     detrended: Vec<f64>,
+    /// The last penalty whose trace root finding evaluated, with its factor
+    /// and leverages: root finding ends at the penalty it returns, so the
+    /// fit there reuses them (same bits, one banded factorisation fewer).
+    last_trace: RefCell<Option<(u64, Factor, Vec<f64>)>>,
 }
 
 impl Prepared {
@@ -174,6 +180,7 @@ impl Prepared {
             line,
             line_slope,
             detrended,
+            last_trace: RefCell::new(None),
         })
     }
 
@@ -212,7 +219,14 @@ impl Prepared {
                 leverage: weight.iter().map(|w| 1.0 / w).collect(),
             });
         }
-        let factor = self.system.factor(lambda, &self.detrended)?;
+        let (factor, leverage) = match self.last_trace.take() {
+            Some((bits, factor, leverage)) if bits == lambda.to_bits() => (factor, leverage),
+            _ => {
+                let factor = self.system.factor(lambda, &self.detrended)?;
+                let leverage = factor.covariance_band().value_variances();
+                (factor, leverage)
+            }
+        };
         let solution = factor.solve();
         let values = solution
             .iter()
@@ -226,7 +240,6 @@ impl Prepared {
             .step_by(2)
             .map(|s| self.line_slope + s)
             .collect();
-        let leverage = factor.covariance_band().value_variances();
         Ok(KnotFit {
             values,
             slopes,
@@ -239,7 +252,10 @@ impl Prepared {
     fn trace(&self, lambda: f64) -> Result<f64, Singular> {
         let factor = self.system.factor(lambda, &self.detrended)?;
         let leverage = factor.covariance_band().value_variances();
-        Ok(weighted_sum(&leverage, &self.knots.weight))
+        let trace = weighted_sum(&leverage, &self.knots.weight);
+        self.last_trace
+            .replace(Some((lambda.to_bits(), factor, leverage)));
+        Ok(trace)
     }
 
     /// The unit-scale penalty whose trace is `df`, for 2 < df ≤ m.
