@@ -204,6 +204,12 @@ pub fn assign(
         rows_of_unit[unit].push(row);
     }
     let all_units: Vec<usize> = (0..identities.len()).collect();
+    // Each row's time point, for ordered splits (used by the test set and
+    // the blocks alike).
+    let time_rank = match scheme {
+        FoldScheme::Ordered { time, .. } => time_ranks(time),
+        _ => Vec::new(),
+    };
 
     // The test set: units in holdout order until it holds round(holdout ×
     // rows). Ordered splits lock away the latest time points instead, whole.
@@ -211,11 +217,10 @@ pub fn assign(
     let mut is_test_unit = vec![false; identities.len()];
     let mut taken = 0;
     let holdout_order: Vec<Vec<usize>> = match scheme {
-        FoldScheme::Ordered { time, .. } => {
-            let rank = time_ranks(time);
-            let points = rank.iter().max().map_or(0, |&r| r + 1);
+        FoldScheme::Ordered { .. } => {
+            let points = time_rank.iter().max().map_or(0, |&r| r + 1);
             let mut units_at: Vec<Vec<usize>> = vec![Vec::new(); points];
-            for (row, &r) in rank.iter().enumerate() {
+            for (row, &r) in time_rank.iter().enumerate() {
                 units_at[r].push(unit_of_row[row]);
             }
             units_at.reverse();
@@ -308,8 +313,8 @@ pub fn assign(
             }
             1
         }
-        FoldScheme::Ordered { folds: k, time } => {
-            folds.extend(forward_chain(*k, &train, &time_ranks(time))?);
+        FoldScheme::Ordered { folds: k, .. } => {
+            folds.extend(forward_chain(*k, &train, &time_rank)?);
             1
         }
     };

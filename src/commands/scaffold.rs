@@ -57,10 +57,9 @@ pub fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
         .output
         .clone()
         .unwrap_or_else(|| PathBuf::from("<stdout>.toml"));
-    let parsed = crate::spec::parse(&shown, &text)
+    crate::spec::parse(&shown, &text)
         .and_then(|spec| crate::spec::validate(&shown, &spec))
         .map_err(|e| anyhow::anyhow!("internal error: the scaffold does not load: {e}"))?;
-    debug_assert!(!parsed.is_empty());
 
     match &args.output {
         None => print!("{text}"),
@@ -321,16 +320,12 @@ fn render(s: &Scaffold) -> anyhow::Result<String> {
     }
     // The one-feature candidates use the feature most correlated with the
     // target (ties: the first in the header).
+    let strength = |i: usize| correlation(&s.profiles[i].values, &target.values).abs();
     let main = features
         .iter()
-        .copied()
-        .map(|i| (correlation(&s.profiles[i].values, &target.values).abs(), i))
-        .fold(None, |best: Option<(f64, usize)>, (r, i)| match best {
-            Some((best_r, _)) if best_r >= r => best,
-            _ => Some((r, i)),
-        })
-        .map(|(_, i)| i)
-        .unwrap_or(features[0]);
+        .map(|&i| (strength(i), i))
+        .max_by(|a, b| a.0.total_cmp(&b.0).then(b.1.cmp(&a.1)))
+        .map_or(features[0], |(_, i)| i);
     let main_profile = &s.profiles[main];
     let feature_names: Vec<&str> = features
         .iter()

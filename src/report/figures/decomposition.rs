@@ -14,8 +14,8 @@ use plotters::style::text_anchor::{HPos, VPos};
 use super::axis::Axis;
 use super::palette::{self, INK, MUTED};
 use super::{
-    draw_svg, label, legend, polyline, stem, style_mesh, text, Figure, FigureError, Marker,
-    Section, Swatch, TEXT_SMALL, TEXT_STRONG,
+    df_axis_words, draw_numeric_mesh, draw_svg, label, legend, polyline, stem, text, Figure,
+    FigureError, Marker, Section, Swatch, TEXT_SMALL, TEXT_STRONG,
 };
 use crate::report::{format_df, format_number};
 use crate::results::Results;
@@ -204,22 +204,12 @@ pub fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
                 .x_label_area_size(50)
                 .y_label_area_size(74)
                 .build_cartesian_2d(x_axis.clone(), y_axis.clone())?;
-            let x_label = |v: &f64| x_axis.label(*v);
-            let y_label = |v: &f64| y_axis.label(*v);
-            let x_words = if x_axis.is_log() {
-                "effective degrees of freedom (log scale)"
-            } else {
-                "effective degrees of freedom"
-            };
-            let mut mesh = chart.configure_mesh();
-            style_mesh(&mut mesh);
-            mesh.x_labels(12)
-                .y_labels(8)
-                .x_label_formatter(&x_label)
-                .y_label_formatter(&y_label)
-                .x_desc(x_words)
-                .y_desc("mean squared error")
-                .draw()?;
+            draw_numeric_mesh(
+                &mut chart,
+                (x_axis, y_axis),
+                8,
+                (df_axis_words(x_axis), "mean squared error"),
+            )?;
             let at = |df: f64, value: f64| chart.backend_coord(&(df, value));
 
             if noise.is_finite() {

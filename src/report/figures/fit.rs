@@ -10,8 +10,8 @@ use plotters::prelude::*;
 use super::axis::Axis;
 use super::palette::{CONTEXT, INK, MUTED};
 use super::{
-    draw_svg, family_styles, legend, polyline, style_mesh, style_of, Figure, FigureError, Marker,
-    Section, Swatch,
+    draw_numeric_mesh, draw_svg, family_styles, legend, polyline, style_of, Figure, FigureError,
+    Marker, Section, Swatch,
 };
 use crate::report::format_number;
 use crate::results::{PredictionSet, Results};
@@ -158,17 +158,7 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
             .x_label_area_size(54)
             .y_label_area_size(74)
             .build_cartesian_2d(x_axis.clone(), y_axis.clone())?;
-        let x_label = |v: &f64| x_axis.label(*v);
-        let y_label = |v: &f64| y_axis.label(*v);
-        let mut mesh = chart.configure_mesh();
-        style_mesh(&mut mesh);
-        mesh.x_labels(12)
-            .y_labels(10)
-            .x_label_formatter(&x_label)
-            .y_label_formatter(&y_label)
-            .x_desc(x_words.as_str())
-            .y_desc(y_words.as_str())
-            .draw()?;
+        draw_numeric_mesh(&mut chart, (&x_axis, &y_axis), 10, (&x_words, &y_words))?;
         let at = |p: &(f64, f64)| chart.backend_coord(p);
 
         if one_feature.is_none() {

@@ -9,8 +9,8 @@ use plotters::prelude::*;
 use super::axis::Axis;
 use super::palette::{INK, MUTED};
 use super::{
-    draw_svg, family_styles, legend, metric_axis_words, polyline, stem, style_mesh, Figure,
-    FigureError, Marker, Section, Swatch,
+    df_axis_words, draw_numeric_mesh, draw_svg, family_styles, legend, metric_axis_words, polyline,
+    stem, Figure, FigureError, Marker, Section, Swatch,
 };
 use crate::report::format_number;
 use crate::results::{CandidateResult, Results};
@@ -82,11 +82,7 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
         ));
     }
 
-    let x_words = if x_axis.is_log() {
-        "effective degrees of freedom (log scale)"
-    } else {
-        "effective degrees of freedom"
-    };
+    let x_words = df_axis_words(&x_axis);
     let y_words = metric_axis_words(results);
     let svg = draw_svg("error by flexibility", SIZE, |root| {
         let legend_bottom = legend(root, &entries, (80, 22), SIZE.0 as i32 - 24)?;
@@ -97,17 +93,7 @@ pub fn render(results: &Results) -> Result<Figure, FigureError> {
             .x_label_area_size(54)
             .y_label_area_size(74)
             .build_cartesian_2d(x_axis.clone(), y_axis.clone())?;
-        let x_label = |v: &f64| x_axis.label(*v);
-        let y_label = |v: &f64| y_axis.label(*v);
-        let mut mesh = chart.configure_mesh();
-        style_mesh(&mut mesh);
-        mesh.x_labels(12)
-            .y_labels(10)
-            .x_label_formatter(&x_label)
-            .y_label_formatter(&y_label)
-            .x_desc(x_words)
-            .y_desc(y_words.as_str())
-            .draw()?;
+        draw_numeric_mesh(&mut chart, (&x_axis, &y_axis), 10, (x_words, &y_words))?;
         let at = |df: f64, score: f64| chart.backend_coord(&(df, score));
 
         if let Some(threshold) = results.choice.threshold {

@@ -429,6 +429,37 @@ pub fn metric_axis_words(results: &Results) -> String {
     }
 }
 
+/// The words under an effective-df axis.
+pub fn df_axis_words(x_axis: &axis::Axis) -> &'static str {
+    if x_axis.is_log() {
+        "effective degrees of freedom (log scale)"
+    } else {
+        "effective degrees of freedom"
+    }
+}
+
+/// Draws the mesh of a chart whose two axes are numbers: house style, 12
+/// x ticks and `y_ticks` y ticks labelled by the axes' own formatting, and
+/// the words of each axis.
+pub fn draw_numeric_mesh(
+    chart: &mut ChartContext<'_, SVGBackend<'_>, Cartesian2d<axis::Axis, axis::Axis>>,
+    (x_axis, y_axis): (&axis::Axis, &axis::Axis),
+    y_ticks: usize,
+    (x_words, y_words): (&str, &str),
+) -> Drawn {
+    let x_label = |v: &f64| x_axis.label(*v);
+    let y_label = |v: &f64| y_axis.label(*v);
+    let mut mesh = chart.configure_mesh();
+    style_mesh(&mut mesh);
+    mesh.x_labels(12)
+        .y_labels(y_ticks)
+        .x_label_formatter(&x_label)
+        .y_label_formatter(&y_label)
+        .x_desc(x_words)
+        .y_desc(y_words)
+        .draw()
+}
+
 /// A mesh (grid, axes, tick labels, axis words) in the house style.
 pub fn style_mesh<DB: DrawingBackend>(
     mesh: &mut plotters::chart::MeshStyle<'_, '_, axis::Axis, axis::Axis, DB>,
