@@ -8,8 +8,7 @@
 
 use std::time::Instant;
 
-use heldout::models::{self, Family};
-use heldout::spec::{FamilyKind, FamilySpec, SmootherGrid};
+use heldout::spec::bind_candidate;
 use nalgebra::DMatrix;
 
 /// Median wall time of `reps` runs of `work`, in seconds.
@@ -34,119 +33,108 @@ fn uniform(state: &mut u64) -> f64 {
     ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
 }
 
-fn grids() -> Vec<(&'static str, FamilySpec, usize)> {
-    let on = |features: &[&str], kind: FamilyKind| FamilySpec {
-        label: None,
-        features: Some(features.iter().map(|f| f.to_string()).collect()),
-        kind,
-    };
-    let one = ["u"];
-    let two = ["u", "v"];
-    vec![
-        (
-            "polynomial (12 degrees)",
-            on(
-                &one,
-                FamilyKind::Polynomial {
-                    intercept: true,
-                    degree: (1..=12).collect(),
-                },
-            ),
-            1,
-        ),
-        (
-            "nearest-neighbors, 1 feature (8 k)",
-            on(
-                &one,
-                FamilyKind::NearestNeighbors {
-                    k: vec![1, 2, 5, 10, 20, 50, 100, 200],
-                },
-            ),
-            1,
-        ),
-        (
-            "nearest-neighbors, 2 features (8 k)",
-            on(
-                &two,
-                FamilyKind::NearestNeighbors {
-                    k: vec![1, 2, 5, 10, 20, 50, 100, 200],
-                },
-            ),
-            2,
-        ),
-        (
-            "ridge (12 penalties)",
-            on(
-                &two,
-                FamilyKind::Ridge {
-                    penalty: (0..12).map(|i| 10f64.powi(i - 4)).collect(),
-                },
-            ),
-            2,
-        ),
-        (
-            "lasso (12 penalties)",
-            on(
-                &two,
-                FamilyKind::Lasso {
-                    penalty: (0..12).map(|i| 10f64.powi(i - 8)).collect(),
-                },
-            ),
-            2,
-        ),
-        (
-            "smoothing-spline (12 penalties)",
-            on(
-                &one,
-                FamilyKind::SmoothingSpline {
-                    grid: SmootherGrid::Penalty((0..12).map(|i| 10f64.powi(i - 6)).collect()),
-                },
-            ),
-            1,
-        ),
-        (
-            "smoothing-spline (8 df)",
-            on(
-                &one,
-                FamilyKind::SmoothingSpline {
-                    grid: SmootherGrid::Df(vec![3.0, 4.0, 5.0, 6.0, 8.0, 12.0, 20.0, 40.0]),
-                },
-            ),
-            1,
-        ),
-        (
-            "spline (8 df)",
-            on(
-                &one,
-                FamilyKind::Spline {
-                    df: vec![2, 3, 4, 5, 6, 8, 10, 12],
-                },
-            ),
-            1,
-        ),
-    ]
+/// One benchmark: a family, its grid key and values, other keys, and how
+/// many features it takes.
+struct Grid {
+    name: &'static str,
+    family: &'static str,
+    key: &'static str,
+    values: &'static [&'static str],
+    other: &'static str,
+    dims: usize,
 }
 
-/// The same family with only the `index`-th setting of its grid.
-fn single(spec: &FamilySpec, index: usize) -> FamilySpec {
-    let mut spec = spec.clone();
-    match &mut spec.kind {
-        FamilyKind::Polynomial { degree, .. } => *degree = vec![degree[index]],
-        FamilyKind::NearestNeighbors { k } => *k = vec![k[index]],
-        FamilyKind::Ridge { penalty } | FamilyKind::Lasso { penalty } => {
-            *penalty = vec![penalty[index]]
-        }
-        FamilyKind::SmoothingSpline { grid } | FamilyKind::ThinPlate { grid, .. } => {
-            *grid = match grid {
-                SmootherGrid::Penalty(v) => SmootherGrid::Penalty(vec![v[index]]),
-                SmootherGrid::Df(v) => SmootherGrid::Df(vec![v[index]]),
-            }
-        }
-        FamilyKind::Spline { df } => *df = vec![df[index]],
-        FamilyKind::Linear { .. } => {}
+impl Grid {
+    /// The candidate as TOML lines, with the whole grid or only setting `index`.
+    fn candidate(&self, index: Option<usize>) -> String {
+        let values = match index {
+            Some(i) => self.values[i].to_string(),
+            None => self.values.join(", "),
+        };
+        let grid = if self.key.is_empty() {
+            String::new()
+        } else {
+            format!("{} = [{values}]", self.key)
+        };
+        format!("family = \"{}\"\n{grid}\n{}", self.family, self.other)
     }
-    spec
 }
+
+const GRIDS: &[Grid] = &[
+    Grid {
+        name: "polynomial (12 degrees)",
+        family: "polynomial",
+        key: "degree",
+        values: &[
+            "1", "2", "3", "4", "5", "6", "7", "8", "9", "10", "11", "12",
+        ],
+        other: "",
+        dims: 1,
+    },
+    Grid {
+        name: "nearest-neighbors, 1 feature (8 k)",
+        family: "nearest-neighbors",
+        key: "k",
+        values: &["1", "2", "5", "10", "20", "50", "100", "200"],
+        other: "",
+        dims: 1,
+    },
+    Grid {
+        name: "nearest-neighbors, 2 features (8 k)",
+        family: "nearest-neighbors",
+        key: "k",
+        values: &["1", "2", "5", "10", "20", "50", "100", "200"],
+        other: "",
+        dims: 2,
+    },
+    Grid {
+        name: "ridge (12 penalties)",
+        family: "ridge",
+        key: "penalty",
+        values: &[
+            "1e-4", "1e-3", "1e-2", "1e-1", "1", "1e1", "1e2", "1e3", "1e4", "1e5", "1e6", "1e7",
+        ],
+        other: "",
+        dims: 2,
+    },
+    Grid {
+        name: "lasso (12 penalties)",
+        family: "lasso",
+        key: "penalty",
+        values: &[
+            "1e-8", "1e-7", "1e-6", "1e-5", "1e-4", "1e-3", "1e-2", "1e-1", "1", "1e1", "1e2",
+            "1e3",
+        ],
+        other: "",
+        dims: 2,
+    },
+    Grid {
+        name: "smoothing-spline (12 penalties)",
+        family: "smoothing-spline",
+        key: "penalty",
+        values: &[
+            "1e-6", "1e-5", "1e-4", "1e-3", "1e-2", "1e-1", "1", "1e1", "1e2", "1e3", "1e4", "1e5",
+        ],
+        other: "",
+        dims: 1,
+    },
+    Grid {
+        name: "smoothing-spline (8 df)",
+        family: "smoothing-spline",
+        key: "df",
+        values: &["3", "4", "5", "6", "8", "12", "20", "40"],
+        other: "",
+        dims: 1,
+    },
+    Grid {
+        name: "spline (8 df)",
+        family: "spline",
+        key: "df",
+        values: &["2", "3", "4", "5", "6", "8", "10", "12"],
+        other: "",
+        dims: 1,
+    },
+];
 
 fn main() {
     let args: Vec<String> = std::env::args().collect();
@@ -178,11 +166,16 @@ fn main() {
         "grid/max",
         "speed-up"
     );
-    for (name, spec, dims) in grids().into_iter().filter(|(n, ..)| n.contains(&filter)) {
-        let x = train.columns(0, dims).into_owned();
-        let x_eval = eval.columns(0, dims).into_owned();
-        let features: Vec<String> = spec.features.clone().unwrap_or_default();
-        let family: Box<dyn Family> = models::build(&spec, features.clone());
+    for grid in GRIDS.iter().filter(|g| g.name.contains(&filter)) {
+        let name = grid.name;
+        let x = train.columns(0, grid.dims).into_owned();
+        let x_eval = eval.columns(0, grid.dims).into_owned();
+        let features: Vec<String> = ["u", "v"][..grid.dims]
+            .iter()
+            .map(|f| f.to_string())
+            .collect();
+        let bind = |index| bind_candidate(&grid.candidate(index), features.clone()).expect("grid");
+        let family = bind(None);
         if let Err(e) = family.fit_path(&x, &y, &x_eval, false) {
             println!("{name:<38} skipped: {e}");
             continue;
@@ -193,7 +186,7 @@ fn main() {
         let settings = family.settings().len();
         let singles: Vec<f64> = (0..settings)
             .map(|s| {
-                let one = models::build(&single(&spec, s), features.clone());
+                let one = bind(Some(s));
                 median_seconds(reps, || {
                     one.fit_path(&x, &y, &x_eval, false).expect("fits");
                 })

@@ -1,14 +1,19 @@
-//! Content-addressed store of fitted grids: one entry per (family, grid,
-//! training fold), keyed by a blake3 digest of exactly what determines it.
+//! Content-addressed store of bytes: one entry per fit of a family's grid on
+//! one set of training rows, keyed by a blake3 digest of exactly what
+//! determines it. The cache knows nothing of models: callers hand it an
+//! explicit task identity and digests, and get back the bytes they stored.
 //!
-//! The key covers the tool version, the family with its features and grid, the
-//! family's algorithm version, whether coefficients were asked for, and the
-//! bytes of the training matrix, training target and evaluation matrix. So a
-//! changed data value, fold or setting misses, while a new title or an added
-//! candidate leaves every other entry valid.
+//! The key (see [`key`] and `docs/reproducibility.md`) covers the key recipe
+//! version [`FORMAT`], the tool version, the task identity (family name and
+//! algorithm version, features, every grid value as bits, as the family
+//! registry encodes it), whether the final fit's coefficients were asked for,
+//! the digests of the feature and target columns, and the digest of the
+//! task's rows. So a changed data value, fold or setting misses, while a new
+//! title or an added candidate leaves every other entry valid. Changing the
+//! recipe changes `FORMAT`, so old entries are never read as new ones.
 //!
-//! An entry is `blake3(payload) ‖ payload` (postcard encoding). A read checks
-//! the digest; an entry that fails it is reported, ignored and overwritten.
+//! An entry is `blake3(payload) ‖ payload`. A read checks the digest; an
+//! entry that fails it is reported, ignored and overwritten.
 //! Writes go to a unique temporary file that is renamed into place, so
 //! concurrent runs sharing a folder never see half an entry, and a run killed
 //! part-way leaves only whole entries behind.
@@ -17,10 +22,10 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
 
 use crate::error::CacheError;
-use crate::models::{Family, SettingFit};
 
 /// Version of the entry format and key recipe; bump to orphan old entries.
-const FORMAT: &str = "heldout fit cache v1";
+/// v2: explicit task identities instead of a debug rendering of the family.
+const FORMAT: &str = "heldout fit cache v2";
 
 /// A 32-byte cache key.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -32,11 +37,12 @@ impl CacheKey {
     }
 }
 
-/// Computes the key of one fit of `family`'s grid from digests of what it
-/// reads: its feature columns and the target (each digested once per run, see
-/// [`digest_values`]) and its training and evaluation rows ([`digest_rows`]).
+/// Computes the key of one task from its explicit `identity` (what is
+/// fitted), whether it is a final fit, and digests of what it reads: its
+/// feature columns and the target (each digested once per run, see
+/// [`digest_values`]) and its training and evaluation rows.
 pub fn key(
-    family: &dyn Family,
+    identity: &[u8],
     final_fit: bool,
     feature_digests: &[[u8; 32]],
     target_digest: &[u8; 32],
@@ -45,15 +51,9 @@ pub fn key(
     let mut hasher = blake3::Hasher::new();
     hasher.update(FORMAT.as_bytes());
     hasher.update(env!("CARGO_PKG_VERSION").as_bytes());
-    let identity = format!(
-        "{}\u{1f}{}\u{1f}{:?}\u{1f}{}",
-        family.family(),
-        family.algorithm_version(),
-        family,
-        final_fit
-    );
     hasher.update(&(identity.len() as u64).to_le_bytes());
-    hasher.update(identity.as_bytes());
+    hasher.update(identity);
+    hasher.update(&[u8::from(final_fit)]);
     hasher.update(&(feature_digests.len() as u64).to_le_bytes());
     for digest in feature_digests {
         hasher.update(digest);
@@ -93,7 +93,7 @@ pub fn digest_rows(rows: &[usize]) -> [u8; 32] {
 /// What a lookup found.
 #[derive(Debug)]
 pub enum Lookup {
-    Hit(Vec<SettingFit>),
+    Hit(Vec<u8>),
     Miss,
     /// The entry exists but failed its integrity check; it must be recomputed.
     Corrupt(String),
@@ -142,14 +142,16 @@ impl Cache {
                 path.display()
             ));
         }
-        match postcard::from_bytes::<Vec<SettingFit>>(payload) {
-            Ok(fits) => Lookup::Hit(fits),
-            Err(e) => Lookup::Corrupt(format!("{}: cannot decode: {e}", path.display())),
-        }
+        Lookup::Hit(payload.to_vec())
+    }
+
+    /// Where an entry lives, for messages about its content.
+    pub fn describe(&self, key: &CacheKey) -> String {
+        self.path_of(key).display().to_string()
     }
 
     /// Stores an entry atomically.
-    pub fn put(&self, key: &CacheKey, fits: &[SettingFit]) -> Result<(), CacheError> {
+    pub fn put(&self, key: &CacheKey, payload: &[u8]) -> Result<(), CacheError> {
         let path = self.path_of(key);
         let dir = path.parent().expect("entries live in a sub-folder");
         let io = |error| CacheError::Io {
@@ -157,10 +159,9 @@ impl Cache {
             error,
         };
         std::fs::create_dir_all(dir).map_err(io)?;
-        let payload = postcard::to_allocvec(fits).map_err(|e| CacheError::Encode(e.to_string()))?;
         let mut bytes = Vec::with_capacity(32 + payload.len());
-        bytes.extend_from_slice(blake3::hash(&payload).as_bytes());
-        bytes.extend_from_slice(&payload);
+        bytes.extend_from_slice(blake3::hash(payload).as_bytes());
+        bytes.extend_from_slice(payload);
         let temporary = dir.join(format!(
             ".{}.{}.{}.tmp",
             key.hex(),
@@ -176,16 +177,8 @@ impl Cache {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::models::polynomial::Polynomial;
 
-    fn fits() -> Vec<SettingFit> {
-        vec![SettingFit {
-            train_pred: vec![1.0, 2.5],
-            eval_pred: vec![0.1 + 0.2],
-            effective_df: 3.0,
-            coefficients: Some(vec![("intercept".into(), -1e-300)]),
-        }]
-    }
+    const PAYLOAD: &[u8] = b"any bytes \x00\xff";
 
     #[test]
     fn entries_round_trip_bit_for_bit() {
@@ -193,9 +186,9 @@ mod tests {
         let cache = Cache::new(dir.path());
         let key = CacheKey([7; 32]);
         assert!(matches!(cache.get(&key), Lookup::Miss));
-        cache.put(&key, &fits()).unwrap();
+        cache.put(&key, PAYLOAD).unwrap();
         match cache.get(&key) {
-            Lookup::Hit(read) => assert_eq!(read, fits()),
+            Lookup::Hit(read) => assert_eq!(read, PAYLOAD),
             other => panic!("{other:?}"),
         }
     }
@@ -205,7 +198,7 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::new(dir.path());
         let key = CacheKey([9; 32]);
-        cache.put(&key, &fits()).unwrap();
+        cache.put(&key, PAYLOAD).unwrap();
         let path = cache.path_of(&key);
         let mut bytes = std::fs::read(&path).unwrap();
         let last = bytes.len() - 1;
@@ -215,22 +208,18 @@ mod tests {
     }
 
     #[test]
-    fn keys_follow_data_and_grid_not_names() {
-        let family = |degrees: Vec<usize>| Polynomial {
-            features: vec!["x".into()],
-            intercept: true,
-            degrees,
-        };
+    fn keys_follow_identity_data_and_rows() {
         let x = [digest_values(&[0.0, 1.0, 2.0, 3.0])];
         let y = digest_values(&[1.0, 2.0, 0.0, 5.0]);
         let rows = digest_rows(&[0, 1, 2]);
-        let base = key(&family(vec![1, 2]), false, &x, &y, &rows);
-        assert_eq!(base, key(&family(vec![1, 2]), false, &x, &y, &rows));
-        assert_ne!(base, key(&family(vec![1, 3]), false, &x, &y, &rows));
+        let base = key(b"family a", false, &x, &y, &rows);
+        assert_eq!(base, key(b"family a", false, &x, &y, &rows));
+        assert_ne!(base, key(b"family b", false, &x, &y, &rows));
         let other_y = digest_values(&[1.0, 2.0, 0.0, 5.5]);
-        assert_ne!(base, key(&family(vec![1, 2]), false, &x, &other_y, &rows));
+        assert_ne!(base, key(b"family a", false, &x, &other_y, &rows));
         let other_rows = digest_rows(&[0, 1, 3]);
-        assert_ne!(base, key(&family(vec![1, 2]), false, &x, &y, &other_rows));
-        assert_ne!(base, key(&family(vec![1, 2]), true, &x, &y, &rows));
+        assert_ne!(base, key(b"family a", false, &x, &y, &other_rows));
+        assert_ne!(base, key(b"family a", true, &x, &y, &rows));
+        assert_ne!(base, key(b"family a", false, &[], &y, &rows));
     }
 }

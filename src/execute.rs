@@ -2,6 +2,10 @@
 //! fit per candidate on all non-test rows. Tasks are independent; they run in
 //! parallel with rayon and are gathered in task order, so the numbers do not
 //! depend on the number of threads. Each task first asks the cache.
+//!
+//! This is the one fit pipeline: a table's plan and every simulation
+//! replicate's plan come through here, so both share one cache read-through,
+//! one task identity and one rows-digest recipe.
 
 use nalgebra::DMatrix;
 use rayon::prelude::*;
@@ -72,6 +76,15 @@ pub struct Summary {
     pub corrupt: Vec<String>,
 }
 
+impl Summary {
+    /// Adds another part's counts and warnings to this one.
+    pub fn absorb(&mut self, part: Summary) {
+        self.computed += part.computed;
+        self.reused += part.reused;
+        self.corrupt.extend(part.corrupt);
+    }
+}
+
 /// Why execution stopped.
 #[derive(Debug, thiserror::Error)]
 pub enum ExecuteError {
@@ -115,6 +128,9 @@ fn task_data(plan: &ExperimentPlan, task: Task) -> TaskData {
     let (train, eval) = match task.rows {
         TaskRows::Fold(f) => (a.fold_train(f), a.folds[f].valid.clone()),
         TaskRows::LeaveOneOut => (a.train.clone(), a.train.clone()),
+        TaskRows::Full if plan.full_fit.training_as_evaluation => {
+            (a.train.clone(), [&a.test[..], &a.train[..]].concat())
+        }
         TaskRows::Full => (a.train.clone(), a.test.clone()),
     };
     TaskData {
@@ -131,6 +147,7 @@ fn rows_digest(plan: &ExperimentPlan, non_test: &[u8; 32], rows: TaskRows) -> [u
     let (kind, eval): (&[u8], &[usize]) = match rows {
         TaskRows::Fold(f) => (b"fold", &a.folds[f].valid),
         TaskRows::LeaveOneOut => (b"leave-one-out", &[]),
+        TaskRows::Full if plan.full_fit.training_as_evaluation => (b"full+training", &a.test),
         TaskRows::Full => (b"full", &a.test),
     };
     let mut hasher = blake3::Hasher::new();
@@ -147,16 +164,17 @@ pub fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
     tasks
         .iter()
         .map(|task| {
-            let family = plan.candidates[task.candidate].family.as_ref();
-            let features: Vec<[u8; 32]> = family
+            let candidate = &plan.candidates[task.candidate];
+            let features: Vec<[u8; 32]> = candidate
+                .family
                 .features()
                 .iter()
                 .map(|f| plan.column_digests[f])
                 .collect();
             let rows = rows_digest(plan, &non_test, task.rows);
             cache::key(
-                family,
-                task.rows == TaskRows::Full,
+                &candidate.identity,
+                task.rows == TaskRows::Full && plan.full_fit.final_fit,
                 &features,
                 target,
                 &rows,
@@ -166,6 +184,14 @@ pub fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
 }
 
 fn describe_rows(plan: &ExperimentPlan, rows: TaskRows) -> String {
+    let rows = describe_fold(plan, rows);
+    match &plan.origin {
+        Some(origin) => format!("{origin}, {rows}"),
+        None => rows,
+    }
+}
+
+fn describe_fold(plan: &ExperimentPlan, rows: TaskRows) -> String {
     match rows {
         TaskRows::Fold(f) => {
             let fold = &plan.assignment.folds[f];
@@ -196,13 +222,18 @@ fn run_task(
     let mut corrupt = None;
     if let (Some(cache), Some(key)) = (policy.read, key) {
         match cache.get(key) {
-            Lookup::Hit(fits) => {
-                return Ok(TaskOutcome {
-                    fits,
-                    reused: true,
-                    corrupt: None,
-                })
-            }
+            Lookup::Hit(bytes) => match postcard::from_bytes::<Vec<SettingFit>>(&bytes) {
+                Ok(fits) => {
+                    return Ok(TaskOutcome {
+                        fits,
+                        reused: true,
+                        corrupt: None,
+                    })
+                }
+                Err(e) => {
+                    corrupt = Some(format!("{}: cannot decode: {e}", cache.describe(key)));
+                }
+            },
             Lookup::Miss => {}
             Lookup::Corrupt(why) => corrupt = Some(why),
         }
@@ -216,7 +247,7 @@ fn run_task(
             &data.x_train,
             &data.y_train,
             &data.x_eval,
-            task.rows == TaskRows::Full,
+            task.rows == TaskRows::Full && plan.full_fit.final_fit,
         )
     };
     let mut fits = fitted.map_err(|cause| FitFailure {
@@ -228,10 +259,18 @@ fn run_task(
         // Only validation predictions of a fold are ever used.
         for fit in &mut fits {
             fit.train_pred = Vec::new();
+            fit.coefficients = None;
+        }
+    } else if plan.full_fit.training_as_evaluation {
+        // The rows after the test rows are the training rows.
+        let tests = plan.assignment.test.len();
+        for fit in &mut fits {
+            fit.train_pred = fit.eval_pred.split_off(tests);
         }
     }
     if let (Some(cache), Some(key)) = (policy.write, key) {
-        cache.put(key, &fits)?;
+        let bytes = postcard::to_allocvec(&fits).map_err(|e| CacheError::Encode(e.to_string()))?;
+        cache.put(key, &bytes)?;
     }
     Ok(TaskOutcome {
         fits,
@@ -285,6 +324,17 @@ pub(crate) fn leave_one_out(
             coefficients: None,
         })
         .collect())
+}
+
+/// Runs every task in parallel and returns the gathered fits.
+/// `on_done` is called once per finished task, from any thread.
+pub fn run_all(
+    plan: &ExperimentPlan,
+    policy: CachePolicy<'_>,
+    on_done: &(dyn Fn() + Sync),
+) -> Result<(Vec<CandidateFits>, Summary), ExecuteError> {
+    let (fits, summary) = run(plan, policy, None, on_done)?;
+    Ok((fits.unwrap_or_default(), summary))
 }
 
 /// Runs the tasks (all, or one shard's) in parallel. Returns the gathered

@@ -3,24 +3,39 @@
 //! assigned to the test set and folds. Nothing is fitted here.
 
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 use nalgebra::DMatrix;
 
 use crate::data::{self, Table, TableRequest};
 use crate::error::DataError;
-use crate::models::{self, Family, Setting};
-use crate::spec::{FamilyKind, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
+use crate::models::{Family, Setting};
+use crate::spec::{FamilySpec, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
 use crate::split::{self, Assignment, FoldScheme};
 
 /// One candidate of the spec, ready to fit.
+#[derive(Clone)]
 pub struct CandidatePlan {
     /// Family name, or the candidate's `label`; the first part of every id.
     pub stem: String,
-    pub family: Box<dyn Family>,
+    pub family: Arc<dyn Family>,
     pub settings: Vec<Setting>,
+    /// The explicit identity of this candidate's fits (family, algorithm
+    /// version, features, every setting as bits): what cache keys name.
+    pub identity: Vec<u8>,
 }
 
 impl CandidatePlan {
+    /// A validated candidate, ready to fit.
+    pub fn from_spec(spec: &FamilySpec) -> Self {
+        CandidatePlan {
+            stem: spec.stem().to_string(),
+            family: Arc::clone(&spec.family),
+            settings: spec.family.settings(),
+            identity: spec.identity(),
+        }
+    }
+
     /// `polynomial/degree=3`, or the stem alone for a family without settings.
     pub fn id(&self, setting: &Setting) -> String {
         match setting.param {
@@ -39,6 +54,31 @@ pub struct ExperimentPlan {
     pub candidates: Vec<CandidatePlan>,
     /// Digest of every numeric column read (for cache keys).
     pub column_digests: std::collections::BTreeMap<String, [u8; 32]>,
+    /// What the fit on all non-test rows yields besides test predictions.
+    pub full_fit: FullFit,
+    /// Where these rows come from, when not from the table alone
+    /// (`replicate 3`); failures name it before the fold.
+    pub origin: Option<String>,
+}
+
+/// What the fit on all non-test rows must yield besides its predictions at
+/// the test rows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct FullFit {
+    /// The final fit: raw-unit coefficients and the family's own training
+    /// predictions (a table; replicate 1 of a simulation).
+    pub final_fit: bool,
+    /// Training predictions evaluated as extra rows after the test rows,
+    /// without the final-fit work (every simulation replicate needs them).
+    pub training_as_evaluation: bool,
+}
+
+impl FullFit {
+    /// A table's final fit.
+    pub const FINAL: FullFit = FullFit {
+        final_fit: true,
+        training_as_evaluation: false,
+    };
 }
 
 impl ExperimentPlan {
@@ -65,18 +105,12 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     let split_spec = spec.spec.split.clone();
 
     let mut numeric = vec![data_spec.target.clone()];
-    let mut candidate_features = Vec::new();
     for candidate in &spec.families {
-        let features = candidate
-            .features
-            .clone()
-            .unwrap_or_else(|| data_spec.features.clone());
-        for f in &features {
+        for f in &candidate.features {
             if !numeric.contains(f) {
                 numeric.push(f.clone());
             }
         }
-        candidate_features.push(features);
     }
     for f in &data_spec.features {
         if !numeric.contains(f) {
@@ -188,27 +222,12 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
         }
     }
 
-    let candidates: Vec<CandidatePlan> = spec
-        .families
-        .iter()
-        .zip(candidate_features)
-        .map(|(candidate, features)| {
-            let family = models::build(candidate, features);
-            CandidatePlan {
-                stem: candidate.stem().to_string(),
-                settings: family.settings(),
-                family,
-            }
-        })
-        .collect();
+    let candidates: Vec<CandidatePlan> =
+        spec.families.iter().map(CandidatePlan::from_spec).collect();
 
     // A feature with no spread over the fitting rows breaks these fits; say so
     // now, naming the column, rather than once per fold.
-    for (candidate, raw) in candidates.iter().zip(&spec.families) {
-        let needs_spread = !matches!(raw.kind, FamilyKind::Linear { intercept: false });
-        if !needs_spread {
-            continue;
-        }
+    for candidate in candidates.iter().filter(|c| c.family.needs_spread()) {
         for feature in candidate.family.features() {
             let column = table.column(feature);
             let first = column[assignment.train[0]];
@@ -235,6 +254,8 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
         target,
         assignment,
         candidates,
+        full_fit: FullFit::FINAL,
+        origin: None,
     })
 }
 

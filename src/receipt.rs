@@ -71,13 +71,13 @@ pub fn path_for(spec: &Path) -> PathBuf {
 }
 
 /// A spec's meaning: the parsed spec with the candidates' defaults spelled
-/// out, so that writing them or not is the same meaning.
+/// out (each family's own, from the family registry), so that writing them
+/// or not is the same meaning. It is itself a spec that runs and means the
+/// same thing.
 pub fn canonical_spec(spec: &SpecFile) -> SpecFile {
     let mut normal = spec.clone();
     for candidate in &mut normal.candidates {
-        if candidate.family != crate::spec::FamilyName::NearestNeighbors {
-            candidate.intercept.get_or_insert(true);
-        }
+        *candidate = candidate.with_defaults();
     }
     if let Some(sim) = &mut normal.simulate {
         // `noise = { normal = sd }` means `noise_sd = sd`.

@@ -71,6 +71,35 @@ mod tests {
     use super::*;
 
     #[test]
+    fn the_schema_lists_exactly_the_registered_families_with_their_keys() {
+        let schema: Value = serde_json::from_str(&schema_text().unwrap()).unwrap();
+        let alternatives = schema["$defs"]["CandidateSpec"]["oneOf"]
+            .as_array()
+            .unwrap();
+        let listed: Vec<&str> = alternatives
+            .iter()
+            .map(|a| a["properties"]["family"]["const"].as_str().unwrap())
+            .collect();
+        assert_eq!(listed, crate::models::registry::names());
+        for (alternative, def) in alternatives.iter().zip(crate::models::registry::FAMILIES) {
+            assert_eq!(alternative["additionalProperties"], false);
+            let mut keys: Vec<&str> = alternative["properties"]
+                .as_object()
+                .unwrap()
+                .keys()
+                .map(String::as_str)
+                .collect();
+            keys.sort_unstable();
+            let mut expected: Vec<&str> = ["family", "label", "features"]
+                .into_iter()
+                .chain(def.keys.iter().map(|k| k.name))
+                .collect();
+            expected.sort_unstable();
+            assert_eq!(keys, expected, "{}", def.name);
+        }
+    }
+
+    #[test]
     fn null_alternatives_are_dropped_and_others_kept() {
         let mut value = serde_json::json!({
             "a": {"type": ["string", "null"]},

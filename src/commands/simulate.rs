@@ -9,7 +9,7 @@ use anyhow::Context;
 
 use super::Evaluation;
 use crate::cache::Cache;
-use crate::execute::{CachePolicy, Shard, Summary};
+use crate::execute::{self, CachePolicy, Shard, Summary};
 use crate::simulate::{self, SimulateError};
 use crate::spec::LoadedSpec;
 
@@ -107,13 +107,11 @@ pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<()> {
     let mut fits = vec![0usize; plan.candidates.len()];
     let mut cached = vec![0usize; plan.candidates.len()];
     for r in 0..setup.replicates {
-        let replicate = plan.replicate(r)?;
-        for (c, keys) in simulate::run::replicate_keys(&plan, &replicate)
-            .iter()
-            .enumerate()
-        {
-            fits[c] += keys.len();
-            cached[c] += keys.iter().filter(|k| cache.contains(k)).count();
+        let experiment = plan.replicate_plan(&plan.replicate(r)?);
+        let tasks = execute::tasks(&experiment);
+        for (task, key) in tasks.iter().zip(execute::task_keys(&experiment, &tasks)) {
+            fits[task.candidate] += 1;
+            cached[task.candidate] += usize::from(cache.contains(&key));
         }
     }
     for (c, candidate) in plan.candidates.iter().enumerate() {

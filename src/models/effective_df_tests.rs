@@ -14,7 +14,7 @@ use super::nearest_neighbors::NearestNeighbors;
 use super::polynomial::Polynomial;
 use super::smoothing_spline::SmoothingSpline;
 use super::Family;
-use crate::spec::SmootherGrid;
+use crate::models::SmootherGrid;
 
 const ROWS: usize = 120;
 

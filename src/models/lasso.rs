@@ -30,6 +30,7 @@
 
 use nalgebra::DMatrix;
 
+use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
 use super::standardise::{centre, predict, Standardiser};
 use super::{Family, Setting, SettingFit};
 use crate::error::FitError;
@@ -47,6 +48,24 @@ pub struct Lasso {
     pub features: Vec<String>,
     /// Penalties λ ≥ 0 in spec order.
     pub penalties: Vec<f64>,
+}
+
+/// The registry entry of `lasso` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "lasso",
+    about: "L1-penalised least squares on standardised features, by coordinate descent with warm starts.",
+    keys: &[PENALTY],
+    feature_count: None,
+    version: 1,
+    default_grid: "penalty = [0.001, 0.01, 0.1, 1]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    Ok(Box::new(Lasso {
+        features,
+        penalties: settings.real_grid("penalty", 0.0)?,
+    }))
 }
 
 /// One training fold's sufficient statistics for coordinate descent.

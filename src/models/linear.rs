@@ -11,6 +11,7 @@ use super::double_double::DoubleDouble;
 use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
+use super::registry::{FamilyDef, SettingProblem, Settings, INTERCEPT};
 use super::{
     leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit,
 };
@@ -21,6 +22,24 @@ use crate::error::FitError;
 pub struct Linear {
     pub features: Vec<String>,
     pub intercept: bool,
+}
+
+/// The registry entry of `linear` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "linear",
+    about: "Ordinary least squares on the features as given.",
+    keys: &[INTERCEPT],
+    feature_count: None,
+    version: 1,
+    default_grid: "",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    Ok(Box::new(Linear {
+        features,
+        intercept: settings.flag("intercept"),
+    }))
 }
 
 /// The affine map of one feature onto a well-scaled column.
@@ -115,6 +134,11 @@ impl Family for Linear {
 
     fn family(&self) -> &'static str {
         "linear"
+    }
+
+    fn needs_spread(&self) -> bool {
+        // A line through the origin neither centres nor scales by spread.
+        self.intercept
     }
 
     fn features(&self) -> &[String] {

@@ -2,8 +2,8 @@
 //! settings on one training fold ([`Family::fit_path`]): path-aware fitting
 //! shares the expensive part (one QR, one neighbour search) across settings.
 //!
-//! Adding a family: a new file here, a variant of [`crate::spec::FamilyKind`],
-//! one arm in [`build`], and its tests (see `DEVELOPERS.md`).
+//! Adding a family: a new file here declaring its [`registry::FamilyDef`],
+//! one line in [`registry::FAMILIES`], and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
 #[cfg(test)]
@@ -15,6 +15,7 @@ pub mod nearest_neighbors;
 #[cfg(test)]
 mod penalised_reference;
 pub mod polynomial;
+pub mod registry;
 pub mod ridge;
 pub mod smoothing_spline;
 pub mod spline;
@@ -28,7 +29,7 @@ use std::fmt;
 use nalgebra::DMatrix;
 
 use crate::error::FitError;
-use crate::spec::{FamilyKind, FamilySpec, SmootherGrid};
+use crate::models::registry::{SettingProblem, Settings};
 
 /// The value of a family's tuning parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -106,9 +107,10 @@ pub trait Family: Send + Sync + std::fmt::Debug {
     /// The grid, in the order the spec lists it.
     fn settings(&self) -> Vec<Setting>;
 
-    /// Version of the fitting algorithm; bump it when numbers may change.
-    fn algorithm_version(&self) -> u32 {
-        1
+    /// Whether every feature must vary over the fitting rows (all families
+    /// but a line through the origin centre or scale their features).
+    fn needs_spread(&self) -> bool {
+        true
     }
 
     /// Fits every setting on `(x_train, y_train)` and predicts at `x_eval`
@@ -167,59 +169,39 @@ pub(crate) fn leave_one_out_rows(
         .collect()
 }
 
-/// The settings of a penalised smoother's grid, in spec order.
-pub(crate) fn smoother_settings(grid: &SmootherGrid) -> Vec<Setting> {
-    match grid {
-        SmootherGrid::Penalty(values) => values
-            .iter()
-            .map(|&penalty| Setting::real("penalty", penalty))
-            .collect(),
-        SmootherGrid::Df(values) => values.iter().map(|&df| Setting::real("df", df)).collect(),
-    }
+/// The grid of a penalised smoother: penalties, or target degrees of freedom
+/// (each turned into a penalty by root finding on the smoother's trace).
+#[derive(Debug, Clone, PartialEq)]
+pub enum SmootherGrid {
+    Penalty(Vec<f64>),
+    Df(Vec<f64>),
 }
 
-/// Turns one validated `[[candidate]]` into its family, bound to `features`.
-pub fn build(spec: &FamilySpec, features: Vec<String>) -> Box<dyn Family> {
-    match &spec.kind {
-        FamilyKind::Linear { intercept } => Box::new(linear::Linear {
-            features,
-            intercept: *intercept,
-        }),
-        FamilyKind::Polynomial { intercept, degree } => Box::new(polynomial::Polynomial {
-            features,
-            intercept: *intercept,
-            degrees: degree.clone(),
-        }),
-        FamilyKind::NearestNeighbors { k } => Box::new(nearest_neighbors::NearestNeighbors {
-            features,
-            ks: k.clone(),
-        }),
-        FamilyKind::Ridge { penalty } => Box::new(ridge::Ridge {
-            features,
-            penalties: penalty.clone(),
-        }),
-        FamilyKind::Lasso { penalty } => Box::new(lasso::Lasso {
-            features,
-            penalties: penalty.clone(),
-        }),
-        FamilyKind::Spline { df } => Box::new(spline::Spline {
-            features,
-            dfs: df.clone(),
-        }),
-        FamilyKind::ThinPlate {
-            grid,
-            knots,
-            exact_limit,
-        } => Box::new(thin_plate::ThinPlate {
-            features,
-            grid: grid.clone(),
-            knots: *knots,
-            exact_limit: *exact_limit,
-        }),
-        FamilyKind::SmoothingSpline { grid } => Box::new(smoothing_spline::SmoothingSpline {
-            features,
-            grid: grid.clone(),
-        }),
+impl SmootherGrid {
+    /// Exactly one of `penalty` (≥ 0) and `df` (≥ 1), checked as a grid.
+    pub(crate) fn from_settings(settings: &Settings) -> Result<Self, SettingProblem> {
+        match (settings.reals("penalty"), settings.reals("df")) {
+            (Some(_), None) => Ok(SmootherGrid::Penalty(settings.real_grid("penalty", 0.0)?)),
+            (None, Some(_)) => Ok(SmootherGrid::Df(settings.real_grid("df", 1.0)?)),
+            _ => Err(SettingProblem::new(
+                "penalty",
+                format!(
+                    "family \"{}\" needs exactly one grid: `penalty = [...]` or `df = [...]`",
+                    settings.family()
+                ),
+            )),
+        }
+    }
+
+    /// The settings of the grid, in spec order.
+    pub(crate) fn settings(&self) -> Vec<Setting> {
+        match self {
+            SmootherGrid::Penalty(values) => values
+                .iter()
+                .map(|&penalty| Setting::real("penalty", penalty))
+                .collect(),
+            SmootherGrid::Df(values) => values.iter().map(|&df| Setting::real("df", df)).collect(),
+        }
     }
 }
 

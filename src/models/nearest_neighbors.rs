@@ -15,6 +15,7 @@
 
 use nalgebra::DMatrix;
 
+use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings};
 use super::{mean_and_sd, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
@@ -23,6 +24,29 @@ use crate::error::FitError;
 pub struct NearestNeighbors {
     pub features: Vec<String>,
     pub ks: Vec<usize>,
+}
+
+/// The registry entry of `nearest-neighbors` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "nearest-neighbors",
+    about: "The mean target of the k nearest training rows (features standardised).",
+    keys: &[KeyDef {
+        name: "k",
+        kind: KeyKind::Counts,
+        default: None,
+        about: "The neighbour counts to compare.",
+    }],
+    feature_count: None,
+    version: 1,
+    default_grid: "k = [1, 3, 5, 10, 20, 40]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    Ok(Box::new(NearestNeighbors {
+        features,
+        ks: settings.whole_grid("k", 1, usize::MAX)?,
+    }))
 }
 
 /// Training points in standardised coordinates, row-major for fast scans.

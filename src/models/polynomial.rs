@@ -18,6 +18,7 @@ use super::double_double::DoubleDouble;
 use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
+use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT};
 use super::{leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
@@ -27,6 +28,33 @@ pub struct Polynomial {
     pub features: Vec<String>,
     pub intercept: bool,
     pub degrees: Vec<usize>,
+}
+
+/// The registry entry of `polynomial` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "polynomial",
+    about: "Polynomials of one or more features, one Householder QR per fold for the whole degree grid.",
+    keys: &[
+        INTERCEPT,
+        KeyDef {
+            name: "degree",
+            kind: KeyKind::Counts,
+            default: None,
+            about: "The degrees to compare (1 to 30).",
+        },
+    ],
+    feature_count: None,
+    version: 1,
+    default_grid: "degree = [1, 2, 3, 4, 5, 6, 8, 10]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    Ok(Box::new(Polynomial {
+        features,
+        intercept: settings.flag("intercept"),
+        degrees: settings.whole_grid("degree", 1, 30)?,
+    }))
 }
 
 /// The map of one feature's training range onto [-1, 1]: t = (x − centre) / half_width.

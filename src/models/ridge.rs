@@ -37,6 +37,7 @@
 
 use nalgebra::DMatrix;
 
+use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
 use super::standardise::{centre, predict, Standardiser};
 use super::{leave_one_out_rows, Family, Setting, SettingFit};
 use crate::error::FitError;
@@ -51,6 +52,25 @@ pub struct Ridge {
     pub features: Vec<String>,
     /// Penalties λ ≥ 0 in spec order.
     pub penalties: Vec<f64>,
+}
+
+/// The registry entry of `ridge` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "ridge",
+    about:
+        "L2-penalised least squares on standardised features, the whole penalty grid from one SVD.",
+    keys: &[PENALTY],
+    feature_count: None,
+    version: 1,
+    default_grid: "penalty = [0.01, 0.1, 1, 10, 100]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    Ok(Box::new(Ridge {
+        features,
+        penalties: settings.real_grid("penalty", 0.0)?,
+    }))
 }
 
 /// One training fold, factorised: everything the penalty grid needs.

@@ -52,18 +52,45 @@ use std::cell::RefCell;
 use nalgebra::DMatrix;
 
 use self::hermite::{Factor, HermiteSystem, Singular};
+use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY, SMOOTHER_DF};
 use super::{
-    leave_one_out_rows, loo_from_leverage, require_spread, smoother_settings, Family, Setting,
-    SettingFit,
+    leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit,
+    SmootherGrid,
 };
 use crate::error::FitError;
-use crate::spec::SmootherGrid;
 
 /// Cubic smoothing splines of one feature for a grid of penalties or df.
 #[derive(Debug, Clone)]
 pub struct SmoothingSpline {
     pub features: Vec<String>,
     pub grid: SmootherGrid,
+}
+
+/// The registry entry of `smoothing-spline` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "smoothing-spline",
+    about: "Cubic smoothing splines of one feature over a grid of penalties or effective df.",
+    keys: &[PENALTY, SMOOTHER_DF],
+    feature_count: Some(1),
+    version: 1,
+    default_grid: "df = [2, 3, 4, 6, 9, 14, 20]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    let grid = SmootherGrid::from_settings(settings)?;
+    if let SmootherGrid::Df(values) = &grid {
+        if let Some(df) = values.iter().find(|&&d| d < 2.0) {
+            return Err(SettingProblem::new(
+                "df",
+                format!(
+                    "df = {df} is below 2: every smoothing spline contains the \
+                     least-squares line (df = 2, the limit of an unbounded penalty)"
+                ),
+            ));
+        }
+    }
+    Ok(Box::new(SmoothingSpline { features, grid }))
 }
 
 /// Relative agreement sought between a target df and the trace reached.
@@ -521,11 +548,7 @@ impl Family for SmoothingSpline {
     }
 
     fn settings(&self) -> Vec<Setting> {
-        smoother_settings(&self.grid)
-    }
-
-    fn algorithm_version(&self) -> u32 {
-        1
+        self.grid.settings()
     }
 
     fn fit_path(

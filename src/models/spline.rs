@@ -31,6 +31,7 @@
 use nalgebra::DMatrix;
 
 use super::least_squares::{cumulative_leverages, predict_leading, NestedLeastSquares};
+use super::registry::{check_whole_grid, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings};
 use super::{leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit};
 use crate::error::FitError;
 
@@ -39,6 +40,38 @@ use crate::error::FitError;
 pub struct Spline {
     pub features: Vec<String>,
     pub dfs: Vec<usize>,
+}
+
+/// The registry entry of `spline` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "spline",
+    about: "Natural cubic regression splines, an additive basis per feature.",
+    keys: &[KeyDef {
+        name: "df",
+        kind: KeyKind::Reals,
+        default: None,
+        about: "Basis columns per feature to compare (whole numbers, 1 to 50).",
+    }],
+    feature_count: None,
+    version: 1,
+    default_grid: "df = [1, 2, 3, 4, 6, 8, 12]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    let given = settings.real_grid("df", f64::NEG_INFINITY)?;
+    let whole: Option<Vec<usize>> = given
+        .iter()
+        .map(|&d| (d.fract() == 0.0 && d >= 1.0).then_some(d as usize))
+        .collect();
+    let dfs = whole.ok_or_else(|| {
+        SettingProblem::new(
+            "df",
+            "spline df must be whole numbers ≥ 1 (basis columns per feature)".to_string(),
+        )
+    })?;
+    check_whole_grid(&dfs, 1, 50, "df")?;
+    Ok(Box::new(Spline { features, dfs }))
 }
 
 /// Knots of one feature and the second derivatives of its cardinal basis.

@@ -36,12 +36,14 @@ mod tridiagonal;
 
 use nalgebra::DMatrix;
 
+use super::registry::{
+    FamilyDef, KeyDef, KeyKind, KeyValue, SettingProblem, Settings, PENALTY, SMOOTHER_DF,
+};
 use super::{
-    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, smoother_settings, Family,
-    Setting, SettingFit,
+    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, Setting,
+    SettingFit, SmootherGrid,
 };
 use crate::error::FitError;
-use crate::spec::SmootherGrid;
 use exact::ExactPath;
 use low_rank::{knot_rows, LowRankPath};
 
@@ -54,6 +56,81 @@ pub struct ThinPlate {
     pub knots: usize,
     /// Largest training fold fitted exactly.
     pub exact_limit: usize,
+}
+
+/// Thin-plate defaults: exact up to this many training rows, then low rank.
+pub(crate) const THIN_PLATE_EXACT_LIMIT: usize = 2000;
+/// Thin-plate defaults: knots of the low-rank fit.
+pub(crate) const THIN_PLATE_KNOTS: usize = 300;
+/// Thin-plate bounds: fewest knots (a surface beyond the plane needs four).
+const THIN_PLATE_MIN_KNOTS: usize = 4;
+/// Thin-plate bounds: most knots, and the largest `exact_limit`.
+const THIN_PLATE_MAX_ROWS: usize = 5000;
+
+/// The registry entry of `thin-plate` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef {
+    name: "thin-plate",
+    about: "Thin-plate smoothing splines of two features, exact up to `exact_limit` rows, low rank above.",
+    keys: &[
+        PENALTY,
+        SMOOTHER_DF,
+        KeyDef {
+            name: "knots",
+            kind: KeyKind::Count,
+            default: Some(KeyValue::Count(THIN_PLATE_KNOTS)),
+            about: "Knots of the low-rank fit used above `exact_limit` rows (4 to 5000).",
+        },
+        KeyDef {
+            name: "exact_limit",
+            kind: KeyKind::Count,
+            default: Some(KeyValue::Count(THIN_PLATE_EXACT_LIMIT)),
+            about: "Largest training fold fitted exactly (at most 5000).",
+        },
+    ],
+    feature_count: Some(2),
+    version: 1,
+    default_grid: "df = [4, 6, 10, 16, 25]",
+    build,
+};
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    let grid = SmootherGrid::from_settings(settings)?;
+    if let SmootherGrid::Df(values) = &grid {
+        if let Some(df) = values.iter().find(|&&d| d <= 3.0) {
+            return Err(SettingProblem::new(
+                "df",
+                format!(
+                    "df = {df} must be above 3: every thin-plate surface contains the \
+                     plane (3 df), reached only as the penalty grows without bound"
+                ),
+            ));
+        }
+    }
+    let knots = settings.count("knots").unwrap_or(THIN_PLATE_KNOTS);
+    if !(THIN_PLATE_MIN_KNOTS..=THIN_PLATE_MAX_ROWS).contains(&knots) {
+        return Err(SettingProblem::new(
+            "knots",
+            format!("knots = {knots} is outside [{THIN_PLATE_MIN_KNOTS}, {THIN_PLATE_MAX_ROWS}]"),
+        ));
+    }
+    let exact_limit = settings
+        .count("exact_limit")
+        .unwrap_or(THIN_PLATE_EXACT_LIMIT);
+    if exact_limit > THIN_PLATE_MAX_ROWS {
+        return Err(SettingProblem::new(
+            "exact_limit",
+            format!(
+                "exact_limit = {exact_limit} is above {THIN_PLATE_MAX_ROWS}: the exact fit \
+                 takes time growing as rows³ and memory as rows²; use knots instead"
+            ),
+        ));
+    }
+    Ok(Box::new(ThinPlate {
+        features,
+        grid,
+        knots,
+        exact_limit,
+    }))
 }
 
 /// 1/(16π): η(r) = r² log r / (8π) = r² · log(r²) / (16π).
@@ -442,7 +519,7 @@ impl Family for ThinPlate {
     }
 
     fn settings(&self) -> Vec<Setting> {
-        smoother_settings(&self.grid)
+        self.grid.settings()
     }
 
     fn fit_path(

@@ -18,9 +18,9 @@
 
 use nalgebra::DMatrix;
 
-use super::expr::{self, Expr};
 use super::random::Stream;
-use super::spec::{Design, InputSpec, SimulateSpec};
+use crate::spec::expr::{self, Expr};
+use crate::spec::simulation::{Design, InputSpec, SimulateSpec};
 
 /// A validated `[simulate]` table, ready to draw from.
 #[derive(Debug, Clone)]
@@ -76,7 +76,7 @@ impl std::fmt::Display for UndefinedTruth {
 }
 
 impl Setup {
-    /// Binds a validated spec table (see [`super::spec::validate`]).
+    /// Binds a validated spec table (see [`crate::spec::simulation::validate`]).
     pub fn new(spec: &SimulateSpec, seed: u64) -> Result<Self, expr::ParseError> {
         let names = spec.input_names();
         let truth = expr::parse(&spec.truth, &names)?;
@@ -110,7 +110,7 @@ impl Setup {
         let grids: Vec<usize> = (0..self.inputs.len())
             .filter(|&j| matches!(self.inputs[j], InputSpec::Grid(_)))
             .collect();
-        let side = super::spec::grid_side(n, grids.len()).unwrap_or(n);
+        let side = crate::spec::simulation::grid_side(n, grids.len()).unwrap_or(n);
         let mut x = DMatrix::zeros(n, self.inputs.len());
         for (j, input) in self.inputs.iter().enumerate() {
             match input {

@@ -8,19 +8,19 @@
 //!
 //! Stages, in the order they run:
 //!
-//! - `spec`: the `[simulate]` table and its validation;
-//! - `expr`: the truth's arithmetic, parsed by our own parser, evaluated with `libm`;
+//! - (`spec::simulation` and `spec::expr` read and check the `[simulate]`
+//!   table and parse the truth's arithmetic, evaluated with `libm`);
 //! - `random`, `design`: named ChaCha20 streams and the simulated inputs, noise and folds;
-//! - `run`: per replicate, one fit of each candidate's grid (through the fit
-//!   cache), cross-validation and the rule's choice;
+//! - `run`: each replicate becomes an ordinary [`crate::plan::ExperimentPlan`]
+//!   (training rows in folds, the test points as the locked test set) and
+//!   goes through `execute` and the fit cache like any table; then
+//!   cross-validation scores and the rule's choice;
 //! - `decompose`, `summary`: the Monte-Carlo estimates and what results.json holds.
 
 pub mod decompose;
 pub mod design;
-pub mod expr;
 pub mod random;
 pub mod run;
-pub mod spec;
 pub mod summary;
 
 pub use run::{resolve, SimulateError, SimulationPlan};

@@ -12,12 +12,10 @@ use serde::{Deserialize, Serialize};
 use super::decompose::{self, mean_and_se};
 use super::design::TestDesign;
 use super::run::{ReplicateOutcome, SimulationPlan};
-use super::spec::InputSpec;
-use crate::cache;
-use crate::data::Table;
 use crate::execute::CandidateFits;
 use crate::plan::ExperimentPlan;
 use crate::results::lenient;
+use crate::spec::simulation::InputSpec;
 
 /// The simulation's part of `results.json` (flattened into the results).
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -331,12 +329,10 @@ pub fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> S
         cv,
     };
 
-    let (first, fits) = outcomes
+    let (experiment, fits) = outcomes
         .first_mut()
         .and_then(|o| o.first.take())
         .expect("replicate 1 is always run when outcomes are kept");
-    let test_targets = plan.test_targets(&first);
-    let experiment = first_replicate_plan(plan, first, test_targets);
     Simulated {
         plan: experiment,
         fits,
@@ -344,61 +340,5 @@ pub fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> S
             simulation: settings,
             simulation_summary: summary,
         },
-    }
-}
-
-/// Replicate 1 as an ordinary plan: its training rows (rows 1..n, in folds)
-/// and the test points with their simulated targets (rows n+1..n+M, the
-/// locked test set).
-fn first_replicate_plan(
-    plan: SimulationPlan,
-    first: super::run::Replicate,
-    test_targets: Vec<f64>,
-) -> ExperimentPlan {
-    let n = first.y.len();
-    let m = test_targets.len();
-    let mut numeric = BTreeMap::new();
-    for (j, name) in plan.setup.names.iter().enumerate() {
-        let column: Vec<f64> = first
-            .x
-            .column(j)
-            .iter()
-            .chain(plan.test_x.column(j).iter())
-            .copied()
-            .collect();
-        numeric.insert(name.clone(), column);
-    }
-    let target: Vec<f64> = first.y.iter().chain(&test_targets).copied().collect();
-    numeric.insert(plan.setup.target.clone(), target.clone());
-    let column_digests: BTreeMap<String, [u8; 32]> = numeric
-        .iter()
-        .map(|(name, values)| (name.clone(), cache::digest_values(values)))
-        .collect();
-    let mut hasher = blake3::Hasher::new();
-    hasher.update(b"heldout simulated table v1");
-    for (name, digest) in &column_digests {
-        hasher.update(&(name.len() as u64).to_le_bytes());
-        hasher.update(name.as_bytes());
-        hasher.update(digest);
-    }
-    let rows = n + m;
-    let table = Table {
-        path: "[simulate]".into(),
-        digest: hasher.finalize().to_hex().to_string(),
-        numeric,
-        text: BTreeMap::new(),
-        lines: (2..rows as u64 + 2).collect(),
-        row_numbers: (1..=rows as u64).collect(),
-        dropped: 0,
-    };
-    let mut assignment = first.assignment;
-    assignment.test = (n..rows).collect();
-    ExperimentPlan {
-        spec: plan.spec,
-        table,
-        target,
-        assignment,
-        candidates: plan.candidates,
-        column_digests,
     }
 }

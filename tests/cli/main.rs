@@ -17,6 +17,7 @@ mod schema;
 mod simulation;
 mod simulation_report;
 mod smoothing_spline;
+mod spec_as_read;
 mod splines;
 mod split_reference;
 mod util;

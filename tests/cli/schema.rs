@@ -22,13 +22,15 @@ fn schema_text() -> String {
 fn schema_names_every_family_and_forbids_unknown_keys() {
     let schema: serde_json::Value = serde_json::from_str(&schema_text()).unwrap();
     assert_eq!(schema["additionalProperties"], false);
-    let defs = &schema["$defs"];
-    assert_eq!(defs["CandidateSpec"]["additionalProperties"], false);
-    let families: Vec<&str> = defs["FamilyName"]["enum"]
+    let alternatives = schema["$defs"]["CandidateSpec"]["oneOf"]
         .as_array()
-        .unwrap()
+        .unwrap();
+    let families: Vec<&str> = alternatives
         .iter()
-        .map(|v| v.as_str().unwrap())
+        .map(|a| {
+            assert_eq!(a["additionalProperties"], false, "{a}");
+            a["properties"]["family"]["const"].as_str().unwrap()
+        })
         .collect();
     for family in [
         "linear",

@@ -78,7 +78,6 @@ fn settings_are_named_after_the_grid() {
         .collect();
     assert_eq!(names, ["penalty=0.001", "penalty=10"]);
     assert_eq!(by_df.family(), "smoothing-spline");
-    assert_eq!(by_df.algorithm_version(), 1);
 }
 
 #[test]

@@ -1,0 +1,489 @@
+//! The family registry: everything the rest of the program needs to know
+//! about a model family, declared once beside its mathematics (a
+//! [`FamilyDef`] constant in `models/<family>.rs`) and collected in
+//! [`FAMILIES`]. Spec parsing, validation, planning, the canonical spec behind
+//! receipts, cache identities and the JSON Schema read this list; none of them
+//! names a family. See `docs/architecture.md` ("The family registry").
+
+use std::sync::{Arc, LazyLock};
+
+use super::{
+    lasso, linear, nearest_neighbors, polynomial, ridge, smoothing_spline, spline, thin_plate,
+    Family,
+};
+
+/// Every family a spec may name, in the order the schema and the docs list
+/// them. The order also fixes the order of keys in the canonical spec (first
+/// appearance wins), so appending a family never changes an existing digest.
+pub(crate) static FAMILIES: &[&FamilyDef] = &[
+    &linear::FAMILY,
+    &polynomial::FAMILY,
+    &nearest_neighbors::FAMILY,
+    &smoothing_spline::FAMILY,
+    &spline::FAMILY,
+    &thin_plate::FAMILY,
+    &ridge::FAMILY,
+    &lasso::FAMILY,
+];
+
+/// `intercept`: shared by the least-squares families.
+pub(crate) const INTERCEPT: KeyDef = KeyDef {
+    name: "intercept",
+    kind: KeyKind::Flag,
+    default: Some(KeyValue::Flag(true)),
+    about: "Fit an intercept (default true).",
+};
+
+/// `penalty`: the penalties of a penalised family's grid.
+pub(crate) const PENALTY: KeyDef = KeyDef {
+    name: "penalty",
+    kind: KeyKind::Reals,
+    default: None,
+    about: "The penalties to compare (≥ 0).",
+};
+
+/// `df`: target effective degrees of freedom of a penalised smoother's grid,
+/// each reached by root finding on the smoother's trace.
+pub(crate) const SMOOTHER_DF: KeyDef = KeyDef {
+    name: "df",
+    kind: KeyKind::Reals,
+    default: None,
+    about: "Effective degrees of freedom to compare (instead of `penalty`).",
+};
+
+/// One family, as the spec and the rest of the program know it.
+#[derive(Debug)]
+pub(crate) struct FamilyDef {
+    /// The name written in specs (`family = "polynomial"`) and reported by
+    /// its fits ([`Family::family`]).
+    pub name: &'static str,
+    /// One line for the schema and the docs.
+    pub about: &'static str,
+    /// The keys a candidate of this family may set, besides `family`,
+    /// `label` and `features`.
+    pub keys: &'static [KeyDef],
+    /// `Some(n)`: the family takes exactly n features.
+    pub feature_count: Option<usize>,
+    /// Version of the fitting algorithm: part of every cache identity, so
+    /// bump it whenever the numbers a grid yields may change.
+    pub version: u32,
+    /// A grid that runs, as TOML lines (`degree = [1, 2, 3]`); the registry
+    /// tests validate it and `docs/spec.md` shows the same keys.
+    pub default_grid: &'static str,
+    /// Checks the settings (already holding their defaults) and binds them to
+    /// the candidate's features. The one place a family's values are judged.
+    pub build: BuildFn,
+}
+
+/// How a family checks its settings and binds them to its features.
+pub(crate) type BuildFn = fn(&Settings, Vec<String>) -> Result<Box<dyn Family>, SettingProblem>;
+
+/// A key a family takes.
+#[derive(Debug)]
+pub(crate) struct KeyDef {
+    pub name: &'static str,
+    pub kind: KeyKind,
+    /// Filled in when the spec leaves the key out; the canonical spec shows it.
+    pub default: Option<KeyValue>,
+    /// What the key means, for the schema.
+    pub about: &'static str,
+}
+
+/// The type of a key's value. A key name has one kind across all families
+/// (a registry test checks it), so the spec reader can type a value before it
+/// knows the family.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum KeyKind {
+    /// `true` or `false`.
+    Flag,
+    /// A whole number ≥ 0.
+    Count,
+    /// A list of whole numbers ≥ 0.
+    Counts,
+    /// A list of numbers.
+    Reals,
+}
+
+/// A key's value as written.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum KeyValue {
+    Flag(bool),
+    Count(usize),
+    Counts(Vec<usize>),
+    Reals(Vec<f64>),
+}
+
+/// What is wrong with one key of a candidate: the key (relative to the
+/// candidate) and the message.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct SettingProblem {
+    pub key: String,
+    pub message: String,
+}
+
+impl SettingProblem {
+    pub(crate) fn new(key: &str, message: String) -> Self {
+        SettingProblem {
+            key: key.to_string(),
+            message,
+        }
+    }
+}
+
+/// A candidate's family keys with their values, in [`all_keys`] order.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Settings {
+    family: &'static str,
+    values: Vec<(&'static str, KeyValue)>,
+}
+
+/// The family with this spec name.
+pub(crate) fn find(name: &str) -> Option<&'static FamilyDef> {
+    FAMILIES.iter().copied().find(|def| def.name == name)
+}
+
+/// The family names, in registry order.
+pub(crate) fn names() -> &'static [&'static str] {
+    static NAMES: LazyLock<Vec<&'static str>> =
+        LazyLock::new(|| FAMILIES.iter().map(|def| def.name).collect());
+    &NAMES
+}
+
+/// Every family key, each once, in order of first appearance in [`FAMILIES`].
+pub(crate) fn all_keys() -> &'static [&'static str] {
+    static KEYS: LazyLock<Vec<&'static str>> = LazyLock::new(|| {
+        let mut keys: Vec<&'static str> = Vec::new();
+        for key in FAMILIES.iter().flat_map(|def| def.keys) {
+            if !keys.contains(&key.name) {
+                keys.push(key.name);
+            }
+        }
+        keys
+    });
+    &KEYS
+}
+
+/// The kind of a family key (the first family declaring it decides; the
+/// registry tests check that all agree).
+pub(crate) fn kind_of(key: &str) -> Option<(&'static str, KeyKind)> {
+    FAMILIES
+        .iter()
+        .flat_map(|def| def.keys)
+        .find(|k| k.name == key)
+        .map(|k| (k.name, k.kind))
+}
+
+impl FamilyDef {
+    /// The definition of one of this family's keys.
+    pub(crate) fn key(&self, name: &str) -> Option<&'static KeyDef> {
+        self.keys.iter().find(|k| k.name == name)
+    }
+
+    /// Settings as given, checked against this family's keys, with the
+    /// defaults of the keys left out filled in.
+    pub(crate) fn settings(
+        &'static self,
+        given: &[(&'static str, KeyValue)],
+    ) -> Result<Settings, SettingProblem> {
+        if let Some((stray, _)) = given.iter().find(|(key, _)| self.key(key).is_none()) {
+            let takes: Vec<&str> = self.keys.iter().map(|k| k.name).collect();
+            return Err(SettingProblem::new(
+                stray,
+                format!(
+                    "`{stray}` is not a setting of family \"{}\" (it takes: {})",
+                    self.name,
+                    if takes.is_empty() {
+                        "none".to_string()
+                    } else {
+                        takes.join(", ")
+                    }
+                ),
+            ));
+        }
+        let mut values = given.to_vec();
+        for key in self.keys {
+            if let (Some(default), false) =
+                (&key.default, given.iter().any(|(k, _)| *k == key.name))
+            {
+                values.push((key.name, default.clone()));
+            }
+        }
+        let order = |key: &str| all_keys().iter().position(|k| *k == key);
+        values.sort_by_key(|(key, _)| order(key));
+        Ok(Settings {
+            family: self.name,
+            values,
+        })
+    }
+
+    /// Checks `settings` and binds them to `features`, as a shared family.
+    pub(crate) fn bind(
+        &self,
+        settings: &Settings,
+        features: Vec<String>,
+    ) -> Result<Arc<dyn Family>, SettingProblem> {
+        (self.build)(settings, features).map(Arc::from)
+    }
+
+    /// The explicit identity of a fit of this family's grid, for cache keys:
+    /// name, algorithm version, features and every setting value as bits,
+    /// each length-prefixed so that no two identities share an encoding.
+    pub(crate) fn identity(&self, settings: &Settings, features: &[String]) -> Vec<u8> {
+        let mut bytes = Vec::new();
+        let text = |bytes: &mut Vec<u8>, s: &str| {
+            bytes.extend_from_slice(&(s.len() as u64).to_le_bytes());
+            bytes.extend_from_slice(s.as_bytes());
+        };
+        text(&mut bytes, self.name);
+        bytes.extend_from_slice(&u64::from(self.version).to_le_bytes());
+        bytes.extend_from_slice(&(features.len() as u64).to_le_bytes());
+        for feature in features {
+            text(&mut bytes, feature);
+        }
+        bytes.extend_from_slice(&(settings.values.len() as u64).to_le_bytes());
+        for (key, value) in &settings.values {
+            text(&mut bytes, key);
+            let numbers: Vec<u64> = match value {
+                KeyValue::Flag(flag) => vec![u64::from(*flag)],
+                KeyValue::Count(count) => vec![*count as u64],
+                KeyValue::Counts(counts) => counts.iter().map(|&c| c as u64).collect(),
+                KeyValue::Reals(reals) => reals.iter().map(|r| r.to_bits()).collect(),
+            };
+            bytes.push(match value {
+                KeyValue::Flag(_) => b'f',
+                KeyValue::Count(_) => b'c',
+                KeyValue::Counts(_) => b'C',
+                KeyValue::Reals(_) => b'R',
+            });
+            bytes.extend_from_slice(&(numbers.len() as u64).to_le_bytes());
+            for number in numbers {
+                bytes.extend_from_slice(&number.to_le_bytes());
+            }
+        }
+        bytes
+    }
+}
+
+impl Settings {
+    /// The family these settings belong to.
+    pub(crate) fn family(&self) -> &'static str {
+        self.family
+    }
+
+    /// Every key with its value, in canonical order.
+    pub(crate) fn values(&self) -> &[(&'static str, KeyValue)] {
+        &self.values
+    }
+
+    fn get(&self, key: &str) -> Option<&KeyValue> {
+        self.values.iter().find(|(k, _)| *k == key).map(|(_, v)| v)
+    }
+
+    fn needs(&self, key: &str) -> SettingProblem {
+        SettingProblem::new(
+            key,
+            format!("family \"{}\" needs a grid: `{key} = [...]`", self.family),
+        )
+    }
+
+    /// A flag (families declare a default for every flag they take).
+    pub(crate) fn flag(&self, key: &str) -> bool {
+        matches!(self.get(key), Some(KeyValue::Flag(true)))
+    }
+
+    /// A whole number, when given or defaulted.
+    pub(crate) fn count(&self, key: &str) -> Option<usize> {
+        match self.get(key) {
+            Some(KeyValue::Count(count)) => Some(*count),
+            _ => None,
+        }
+    }
+
+    /// A list of numbers, when given.
+    pub(crate) fn reals(&self, key: &str) -> Option<&[f64]> {
+        match self.get(key) {
+            Some(KeyValue::Reals(values)) => Some(values),
+            _ => None,
+        }
+    }
+
+    /// A required grid of whole numbers within `[min, max]`, without repeats.
+    pub(crate) fn whole_grid(
+        &self,
+        key: &str,
+        min: usize,
+        max: usize,
+    ) -> Result<Vec<usize>, SettingProblem> {
+        let values = match self.get(key) {
+            Some(KeyValue::Counts(values)) => values.clone(),
+            _ => return Err(self.needs(key)),
+        };
+        check_whole_grid(&values, min, max, key)?;
+        Ok(values)
+    }
+
+    /// A required grid of finite numbers ≥ `lowest`, without repeats.
+    pub(crate) fn real_grid(&self, key: &str, lowest: f64) -> Result<Vec<f64>, SettingProblem> {
+        let values = self.reals(key).ok_or_else(|| self.needs(key))?.to_vec();
+        check_real_grid(&values, lowest, key)?;
+        Ok(values)
+    }
+}
+
+/// A grid of whole numbers must be non-empty, within bounds and free of repeats.
+pub(crate) fn check_whole_grid(
+    values: &[usize],
+    min: usize,
+    max: usize,
+    key: &str,
+) -> Result<(), SettingProblem> {
+    if values.is_empty() {
+        return Err(SettingProblem::new(key, format!("list at least one {key}")));
+    }
+    for (i, &value) in values.iter().enumerate() {
+        if value < min || value > max {
+            return Err(SettingProblem::new(
+                key,
+                format!("{key} = {value} is outside [{min}, {max}]"),
+            ));
+        }
+        if values[..i].contains(&value) {
+            return Err(SettingProblem::new(
+                key,
+                format!("{key} = {value} is listed twice"),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// A real-valued grid must be non-empty, finite, at least `lowest`, without repeats.
+pub(crate) fn check_real_grid(
+    values: &[f64],
+    lowest: f64,
+    key: &str,
+) -> Result<(), SettingProblem> {
+    if values.is_empty() {
+        return Err(SettingProblem::new(key, format!("list at least one {key}")));
+    }
+    for (i, &value) in values.iter().enumerate() {
+        if !value.is_finite() || value < lowest {
+            return Err(SettingProblem::new(
+                key,
+                format!("{key} = {value} must be a finite number ≥ {lowest}"),
+            ));
+        }
+        if values[..i].contains(&value) {
+            return Err(SettingProblem::new(
+                key,
+                format!("{key} = {value} is listed twice"),
+            ));
+        }
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn family_names_are_unique_and_spelled_for_specs() {
+        for (i, def) in FAMILIES.iter().enumerate() {
+            assert!(
+                !FAMILIES[..i].iter().any(|d| d.name == def.name),
+                "{} registered twice",
+                def.name
+            );
+            assert!(
+                def.name.chars().all(|c| c.is_ascii_lowercase() || c == '-'),
+                "{}",
+                def.name
+            );
+        }
+    }
+
+    #[test]
+    fn a_key_name_has_one_kind_across_families_and_no_key_shadows_a_common_one() {
+        for def in FAMILIES {
+            for key in def.keys {
+                assert_eq!(
+                    kind_of(key.name).map(|(_, k)| k),
+                    Some(key.kind),
+                    "{}",
+                    key.name
+                );
+                assert!(
+                    !["family", "label", "features"].contains(&key.name),
+                    "{} declares the common key {}",
+                    def.name,
+                    key.name
+                );
+                if let Some(default) = &key.default {
+                    let fits = matches!(
+                        (key.kind, default),
+                        (KeyKind::Flag, KeyValue::Flag(_))
+                            | (KeyKind::Count, KeyValue::Count(_))
+                            | (KeyKind::Counts, KeyValue::Counts(_))
+                            | (KeyKind::Reals, KeyValue::Reals(_))
+                    );
+                    assert!(fits, "{}.{}: default of the wrong kind", def.name, key.name);
+                }
+                if key.kind == KeyKind::Flag {
+                    assert!(
+                        key.default.is_some(),
+                        "{}.{} needs a default",
+                        def.name,
+                        key.name
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn identities_differ_by_family_version_features_and_value_bits() {
+        let def = &ridge::FAMILY;
+        let with = |penalty: Vec<f64>| {
+            def.settings(&[("penalty", KeyValue::Reals(penalty))])
+                .unwrap()
+        };
+        let x = vec!["x".to_string()];
+        let base = def.identity(&with(vec![1.0, 2.0]), &x);
+        assert_eq!(base, def.identity(&with(vec![1.0, 2.0]), &x));
+        assert_ne!(base, def.identity(&with(vec![1.0, 2.0000000000000004]), &x));
+        assert_ne!(base, def.identity(&with(vec![2.0, 1.0]), &x));
+        assert_ne!(
+            base,
+            def.identity(&with(vec![1.0, 2.0]), &["z".to_string()])
+        );
+        let lasso_settings = lasso::FAMILY
+            .settings(&[("penalty", KeyValue::Reals(vec![1.0, 2.0]))])
+            .unwrap();
+        assert_ne!(base, lasso::FAMILY.identity(&lasso_settings, &x));
+    }
+
+    #[test]
+    fn defaults_are_filled_and_stray_keys_named() {
+        let settings = polynomial::FAMILY
+            .settings(&[("degree", KeyValue::Counts(vec![1, 2]))])
+            .unwrap();
+        assert_eq!(
+            settings.values(),
+            &[
+                ("intercept", KeyValue::Flag(true)),
+                ("degree", KeyValue::Counts(vec![1, 2]))
+            ]
+        );
+        let problem = ridge::FAMILY
+            .settings(&[
+                ("intercept", KeyValue::Flag(true)),
+                ("penalty", KeyValue::Reals(vec![1.0])),
+            ])
+            .unwrap_err();
+        assert_eq!(problem.key, "intercept");
+        assert!(problem
+            .message
+            .contains("not a setting of family \"ridge\""));
+    }
+}

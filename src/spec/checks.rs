@@ -1,0 +1,142 @@
+//! Whole-spec checks of `[data]` and `[split]`: ranges, names and the
+//! combinations of keys that the types alone cannot judge.
+
+use std::collections::BTreeSet;
+
+use super::{DataSpec, SplitMethod, SplitSpec};
+use crate::error::SpecError;
+
+pub(super) fn validate_data(
+    data: &DataSpec,
+    split: &SplitSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if data.table.trim().is_empty() {
+        return Err(invalid("data.table", "the table path is empty".into()));
+    }
+    validate_feature_list(&data.features, "data.features", invalid)?;
+    if data.features.contains(&data.target) {
+        return Err(invalid(
+            "data.features",
+            format!("the target \"{}\" cannot also be a feature", data.target),
+        ));
+    }
+    let ordered = split.method == SplitMethod::Ordered;
+    match (&data.order, ordered) {
+        (Some(_), false) => {
+            return Err(invalid(
+                "data.order",
+                "only used with [split] method = \"ordered\"".into(),
+            ))
+        }
+        (None, true) => {
+            return Err(invalid(
+                "split.method",
+                "method = \"ordered\" needs `order = \"<time column>\"` in [data]".into(),
+            ))
+        }
+        _ => {}
+    }
+    if ordered && data.group.is_some() {
+        return Err(invalid(
+            "data.group",
+            "cannot be combined with method = \"ordered\": its blocks follow time, and a group \
+             seen at many times would straddle them; remove `group`, or use method = \"kfold\""
+                .into(),
+        ));
+    }
+    Ok(())
+}
+
+pub(super) fn validate_feature_list(
+    features: &[String],
+    key: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if features.is_empty() {
+        return Err(invalid(key, "name at least one feature".into()));
+    }
+    let mut seen = BTreeSet::new();
+    for feature in features {
+        if !seen.insert(feature) {
+            return Err(invalid(key, format!("\"{feature}\" is listed twice")));
+        }
+    }
+    Ok(())
+}
+
+pub(super) fn validate_split(
+    split: &SplitSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if !(0.0..0.9).contains(&split.holdout) || !split.holdout.is_finite() {
+        return Err(invalid(
+            "split.holdout",
+            format!(
+                "{} is outside [0, 0.9): it is the fraction of rows locked away for the final test",
+                split.holdout
+            ),
+        ));
+    }
+    if split.repeats == 0 {
+        return Err(invalid("split.repeats", "must be at least 1".into()));
+    }
+    match split.method {
+        SplitMethod::Kfold | SplitMethod::Ordered => {
+            if let Some(folds) = split.folds {
+                if folds < 2 {
+                    return Err(invalid(
+                        "split.folds",
+                        format!("{folds} folds: cross-validation needs at least 2"),
+                    ));
+                }
+            }
+            if split.column.is_some() {
+                return Err(invalid(
+                    "split.column",
+                    "only used with method = \"column\"".into(),
+                ));
+            }
+            if split.method == SplitMethod::Ordered && split.repeats != 1 {
+                return Err(invalid(
+                    "split.repeats",
+                    format!(
+                        "{} repeats: ordered splits follow time and have no randomness to repeat",
+                        split.repeats
+                    ),
+                ));
+            }
+        }
+        SplitMethod::LeaveOneOut | SplitMethod::Column => {
+            if split.repeats != 1 {
+                return Err(invalid(
+                    "split.repeats",
+                    format!(
+                        "{} repeats: this method has no randomness to repeat",
+                        split.repeats
+                    ),
+                ));
+            }
+            if split.folds.is_some() {
+                return Err(invalid(
+                    "split.folds",
+                    "the fold count follows from the method; remove `folds`".into(),
+                ));
+            }
+            let needs_column = split.method == SplitMethod::Column;
+            if needs_column && split.column.is_none() {
+                return Err(invalid(
+                    "split.column",
+                    "method = \"column\" needs `column = \"<fold column>\"`".into(),
+                ));
+            }
+            if !needs_column && split.column.is_some() {
+                return Err(invalid(
+                    "split.column",
+                    "only used with method = \"column\"".into(),
+                ));
+            }
+        }
+    }
+    Ok(())
+}

@@ -1,0 +1,146 @@
+//! The spec file: serde mirrors of its TOML/YAML text, and validation of the
+//! values as a whole before any data is read or any model is fitted.
+//!
+//! This module only reads and checks. Binding columns, expanding grids and
+//! assigning folds happen later, in `plan`; nothing downstream looks at the raw
+//! text again. Unknown keys are errors, reported with the file, line and
+//! column and a "did you mean" hint.
+//!
+//! By idea: `types` (the tables), `parse` (text to types, located errors),
+//! `candidate` (candidate tables through the family registry), `checks`
+//! (`[data]` and `[split]`), `simulation` and `expr` (the `[simulate]` table
+//! and its truth's arithmetic). Nothing here imports from `simulate`.
+
+use std::path::{Path, PathBuf};
+
+use crate::error::SpecError;
+
+mod candidate;
+mod checks;
+pub mod expr;
+mod parse;
+pub mod simulation;
+#[cfg(test)]
+mod tests;
+mod types;
+
+pub use candidate::{bind_candidate, CandidateSpec, FamilySpec};
+pub(crate) use parse::{closest, parse};
+pub use simulation::{Design, InputSpec, NoiseSpec, SimulateSpec};
+pub use types::*;
+
+/// A spec read from disk, with the path it came from.
+#[derive(Debug, Clone)]
+pub struct LoadedSpec {
+    pub path: PathBuf,
+    pub spec: SpecFile,
+    /// The validated candidates, in spec order.
+    pub families: Vec<FamilySpec>,
+    /// For a simulation spec: the `[data]` it stands in for (the inputs as
+    /// features, the simulated target), so later stages read both alike.
+    pub simulated_data: Option<DataSpec>,
+}
+
+impl LoadedSpec {
+    /// The folder relative paths in the spec are resolved against.
+    pub fn base_dir(&self) -> &Path {
+        self.path.parent().unwrap_or(Path::new(""))
+    }
+
+    /// The `[data]` table: present on every validated non-simulation spec;
+    /// for a simulation spec, the stand-in described at [`Self::simulated_data`].
+    pub fn data(&self) -> &DataSpec {
+        self.spec
+            .data
+            .as_ref()
+            .or(self.simulated_data.as_ref())
+            .expect("validation guarantees a [data] or [simulate] table")
+    }
+
+    /// Whether this is a simulation spec.
+    pub fn is_simulation(&self) -> bool {
+        self.spec.simulate.is_some()
+    }
+}
+
+/// Reads, parses and validates a spec file (TOML or YAML, chosen by extension).
+pub fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
+    let text = std::fs::read_to_string(path).map_err(|error| SpecError::Read {
+        path: path.to_path_buf(),
+        error,
+    })?;
+    let spec = parse(path, &text)?;
+    let families = validate(path, &spec)?;
+    let simulated_data = spec.simulate.as_ref().map(|sim| DataSpec {
+        table: "[simulate]".to_string(),
+        target: sim.target.clone(),
+        features: sim.input_names(),
+        key: None,
+        group: None,
+        order: None,
+        missing: MissingPolicy::Error,
+    });
+    Ok(LoadedSpec {
+        path: path.to_path_buf(),
+        spec,
+        families,
+        simulated_data,
+    })
+}
+
+/// Checks values that the types alone cannot: ranges, names, grids, and the
+/// combinations of keys. Fails on the first problem, naming the key. Returns
+/// the candidates as validated family specs.
+pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecError> {
+    let invalid = |key: &str, message: String| SpecError::Invalid {
+        path: path.to_path_buf(),
+        key: key.to_string(),
+        message,
+    };
+
+    let name = &spec.experiment.name;
+    if name.is_empty()
+        || !name
+            .chars()
+            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '-')
+    {
+        return Err(invalid(
+            "experiment.name",
+            format!("\"{name}\" must use only a-z, 0-9 and '-' (it names the output folder)"),
+        ));
+    }
+
+    let default_features = match (&spec.data, &spec.simulate) {
+        (Some(data), None) => {
+            checks::validate_data(data, &spec.split, &invalid)?;
+            data.features.clone()
+        }
+        (None, Some(sim)) => {
+            simulation::validate(sim, &spec.split, &invalid)?;
+            sim.input_names()
+        }
+        (Some(_), Some(_)) => {
+            return Err(invalid(
+                "simulate",
+                "a spec declares either [data] (a table) or [simulate] (a declared truth), \
+                 not both"
+                    .into(),
+            ))
+        }
+        (None, None) => {
+            return Err(invalid(
+                "data",
+                "the spec needs a [data] table (or a [simulate] table)".into(),
+            ))
+        }
+    };
+    checks::validate_split(&spec.split, &invalid)?;
+
+    if spec.candidates.is_empty() {
+        return Err(invalid(
+            "candidate",
+            "declare at least one [[candidate]]".into(),
+        ));
+    }
+    candidate::validate_candidates(spec, &default_features, &invalid)
+}

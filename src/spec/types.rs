@@ -1,0 +1,179 @@
+//! The spec's tables as serde mirrors of the file: only types, defaults and
+//! `deny_unknown_fields`. Values the types cannot judge are checked in
+//! `checks`, candidates in `candidate`, `[simulate]` in `simulation`.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use super::{CandidateSpec, SimulateSpec};
+
+/// The whole spec file as written.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SpecFile {
+    pub experiment: ExperimentSpec,
+    pub data: Option<DataSpec>,
+    /// A simulation spec declares a truth, inputs and noise instead of `[data]`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub simulate: Option<SimulateSpec>,
+    #[serde(default)]
+    pub split: SplitSpec,
+    #[serde(rename = "candidate")]
+    pub candidates: Vec<CandidateSpec>,
+    #[serde(default)]
+    pub choose: ChooseSpec,
+    #[serde(default)]
+    pub report: ReportSpec,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ExperimentSpec {
+    /// Names the output folder: lower-case letters, digits and `-`.
+    pub name: String,
+    #[serde(default)]
+    pub title: Option<String>,
+    /// Master seed: every random stream derives from it.
+    pub seed: u64,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct DataSpec {
+    /// CSV file, relative to the spec file.
+    pub table: String,
+    pub target: String,
+    pub features: Vec<String>,
+    /// Row identity used for split assignment (stable under row reordering).
+    #[serde(default)]
+    pub key: Option<String>,
+    /// Rows of one group never straddle folds or the test set.
+    #[serde(default)]
+    pub group: Option<String>,
+    /// The time column of ordered splits (`method = "ordered"`): numbers, or
+    /// text that sorts in time order such as ISO 8601 dates.
+    #[serde(default)]
+    pub order: Option<String>,
+    #[serde(default)]
+    pub missing: MissingPolicy,
+}
+
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum MissingPolicy {
+    /// An empty cell in a used column is an error.
+    #[default]
+    Error,
+    /// Rows with an empty cell in a used column are dropped and counted.
+    DropRows,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SplitSpec {
+    /// Fraction of rows locked away as the final test set; 0 = none.
+    #[serde(default = "default_holdout")]
+    pub holdout: f64,
+    #[serde(default)]
+    pub method: SplitMethod,
+    #[serde(default)]
+    pub folds: Option<usize>,
+    #[serde(default = "default_repeats")]
+    pub repeats: usize,
+    /// With `method = "column"`: the column holding each row's fold label.
+    #[serde(default)]
+    pub column: Option<String>,
+}
+
+fn default_holdout() -> f64 {
+    0.2
+}
+
+fn default_repeats() -> usize {
+    1
+}
+
+/// Folds used when `folds` is not given (common practice: 10-fold).
+pub const DEFAULT_FOLDS: usize = 10;
+
+impl Default for SplitSpec {
+    fn default() -> Self {
+        SplitSpec {
+            holdout: default_holdout(),
+            method: SplitMethod::default(),
+            folds: None,
+            repeats: default_repeats(),
+            column: None,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum SplitMethod {
+    #[default]
+    Kfold,
+    LeaveOneOut,
+    Column,
+    Ordered,
+}
+
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ChooseSpec {
+    #[serde(default)]
+    pub metric: Metric,
+    #[serde(default)]
+    pub rule: Rule,
+}
+
+/// Scoring metric for regression targets.
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum Metric {
+    #[default]
+    Mse,
+    Rmse,
+    Mae,
+    R2,
+}
+
+/// How the winner is chosen from the cross-validated scores.
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum Rule {
+    /// The best cross-validated score.
+    Lowest,
+    /// The one-standard-error rule: the least flexible setting within one
+    /// standard error of the best.
+    #[default]
+    OneSe,
+}
+
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ReportSpec {
+    #[serde(default = "default_formats")]
+    pub formats: Vec<ReportFormat>,
+}
+
+impl Default for ReportSpec {
+    fn default() -> Self {
+        ReportSpec {
+            formats: default_formats(),
+        }
+    }
+}
+
+fn default_formats() -> Vec<ReportFormat> {
+    vec![ReportFormat::Markdown]
+}
+
+#[derive(
+    Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord, JsonSchema,
+)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReportFormat {
+    Markdown,
+    Html,
+}
