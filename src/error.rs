@@ -6,7 +6,7 @@
 
 use std::path::PathBuf;
 
-/// Exit codes of the command-line interface (DESIGN.md §2.2).
+/// Exit codes of the command-line interface (docs/architecture.md, "Exit codes").
 pub mod exit {
     /// Everything went well.
     pub const OK: u8 = 0;

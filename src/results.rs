@@ -1,5 +1,6 @@
 //! The results of an experiment as written to `results.json`
-//! (schema `heldout-results/1`, DESIGN.md §2.3), their assembly from a plan
+//! (schema `heldout-results/1`; docs/architecture.md, "Stages of a run"),
+//! their assembly from a plan
 //! and its fits, and reading them back (`heldout report`). Numbers are
 //! serialised with shortest round-trip formatting, so the JSON holds the
 //! exact bits; JSON has no NaN or infinity, so those are written as `null`

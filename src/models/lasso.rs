@@ -325,7 +325,8 @@ mod tests {
 
     #[test]
     fn path_equals_separate_fits() {
-        // Invariant (DESIGN.md §5): warm starts change the route, not the answer.
+        // Invariant (docs/architecture.md, "A whole grid per fit"): warm
+        // starts change the route, not the answer.
         let f = penalised_reference::load();
         let penalties = penalised_reference::penalties(&f, "lasso");
         let lasso = |penalties| Lasso {

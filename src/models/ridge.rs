@@ -332,7 +332,8 @@ mod tests {
 
     #[test]
     fn zero_penalty_equals_least_squares() {
-        // Identity (DESIGN.md §7): ridge with zero penalty is least squares;
+        // Identity (docs/architecture.md, "How the numbers are checked"):
+        // ridge with zero penalty is least squares;
         // compared with the `linear` family (Householder QR) on the fixture.
         let f = penalised_reference::load();
         let ridge = Ridge {
@@ -405,7 +406,8 @@ mod tests {
 
     #[test]
     fn path_equals_separate_fits() {
-        // Invariant (DESIGN.md §5): the grid from one SVD equals one fit per setting.
+        // Invariant (docs/architecture.md, "A whole grid per fit"): the grid
+        // from one SVD equals one fit per setting.
         let f = penalised_reference::load();
         let penalties = penalised_reference::penalties(&f, "ridge");
         let ridge = |penalties| Ridge {
@@ -424,7 +426,8 @@ mod tests {
 
     #[test]
     fn leave_one_out_shortcut_equals_refits() {
-        // Identity (DESIGN.md §7): the hat-diagonal shortcut equals refitting
+        // Identity (docs/architecture.md, "How the numbers are checked"): the
+        // hat-diagonal shortcut equals refitting
         // without each row (here to 1e-9 relative), at λ = 0 and above.
         let f = penalised_reference::load();
         let ridge = Ridge {

@@ -91,7 +91,7 @@ pub fn render_reports(
     Ok(outputs)
 }
 
-/// The cautions every report carries (DESIGN.md §8).
+/// The cautions every report carries (docs/architecture.md, "Cautions every report carries").
 pub const CAUTIONS: [&str; 3] = [
     "Cross-validated error assumes the rows are exchangeable, unless groups or a time order are \
      declared in the spec; if rows are related in ways the spec does not declare, these scores \

@@ -245,7 +245,8 @@ fn more_replicates_extend_and_reuse_earlier_fits() {
 
 #[test]
 fn shards_fill_the_cache_for_a_final_assembly() {
-    // Sharding over replicates (DESIGN.md §6): two shards compute every fit
+    // Sharding over replicates (docs/reproducibility.md, "Sharding across
+    // machines"): two shards compute every fit
     // once; the assembling run reuses them all and writes the same bytes as
     // a single run.
     let dir = tempfile::tempdir().unwrap();

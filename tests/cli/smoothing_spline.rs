@@ -77,7 +77,8 @@ fn df_grid_runs_and_reports_the_requested_df() {
         assert_eq!(candidate["setting"]["df"].as_f64(), Some(df));
     }
     // Recomputing without the cache reproduces every number bit for bit
-    // (DESIGN.md §4: fixed-order arithmetic, no platform maths).
+    // (docs/architecture.md, "Determinism": fixed-order arithmetic, no
+    // platform maths).
     util::assert_success(&util::run_spec(dir.path(), "verify"));
     // Training error falls as the fit gets more flexible (common practice).
     let train: Vec<f64> = candidates

@@ -67,7 +67,7 @@ fn straight_line(x: &[f64], y: &[f64]) -> Vec<f64> {
 
 #[test]
 fn settings_are_named_after_the_grid() {
-    // Source: the interface contract, DESIGN.md §2.3 (ids `family/key=value`).
+    // Source: the ids of docs/spec.md, `[[candidate]]` (`family/key=value`).
     let by_df = spline(SmootherGrid::Df(vec![2.5, 4.0]));
     let names: Vec<String> = by_df.settings().iter().map(|s| s.to_string()).collect();
     assert_eq!(names, ["df=2.5", "df=4"]);
