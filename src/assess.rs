@@ -10,18 +10,23 @@ use crate::spec::{Metric, Rule};
 
 /// Scores of one candidate setting.
 #[derive(Debug, Clone, PartialEq)]
-pub struct SettingScore {
-    pub id: String,
-    pub effective_df: f64,
-    pub train_score: f64,
-    pub fold_scores: Vec<f64>,
-    pub cv_score: f64,
-    pub cv_se: f64,
+pub(crate) struct SettingScore {
+    pub(crate) id: String,
+    pub(crate) effective_df: f64,
+    pub(crate) train_score: f64,
+    pub(crate) fold_scores: Vec<f64>,
+    pub(crate) cv_score: f64,
+    pub(crate) cv_se: f64,
 }
 
 impl SettingScore {
     /// Summarises fold scores (in fold order, repeats concatenated).
-    pub fn new(id: String, effective_df: f64, train_score: f64, fold_scores: Vec<f64>) -> Self {
+    pub(crate) fn new(
+        id: String,
+        effective_df: f64,
+        train_score: f64,
+        fold_scores: Vec<f64>,
+    ) -> Self {
         let (cv_score, cv_se) = mean_and_standard_error(&fold_scores);
         SettingScore {
             id,
@@ -37,7 +42,7 @@ impl SettingScore {
 /// The score of setting `setting` on each fold, in fold order, from
 /// `fold_predictions` (per fold, per setting: predictions at the fold's
 /// validation rows) and `fold_targets` (per fold: the observed values there).
-pub fn fold_scores(
+pub(crate) fn fold_scores(
     metric: Metric,
     fold_predictions: &[Vec<Vec<f64>>],
     fold_targets: &[Vec<f64>],
@@ -51,7 +56,7 @@ pub fn fold_scores(
 }
 
 /// Mean and standard error of the mean (sample SD / √n), summed in order.
-pub fn mean_and_standard_error(values: &[f64]) -> (f64, f64) {
+pub(crate) fn mean_and_standard_error(values: &[f64]) -> (f64, f64) {
     let n = values.len() as f64;
     let mean = values.iter().sum::<f64>() / n;
     if values.len() < 2 {
@@ -63,19 +68,19 @@ pub fn mean_and_standard_error(values: &[f64]) -> (f64, f64) {
 
 /// The outcome of a choice, with what a reviewer needs to follow it.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Choice {
+pub(crate) struct Choice {
     /// Index of the chosen setting.
-    pub chosen: usize,
+    pub(crate) chosen: usize,
     /// Index of the setting with the best cross-validated score.
-    pub best: usize,
+    pub(crate) best: usize,
     /// Scores no worse than this were eligible (one-se rule only).
-    pub threshold: Option<f64>,
+    pub(crate) threshold: Option<f64>,
 }
 
 /// Chooses among `scores` by `rule`. Ties on the score go to the earlier
 /// setting in spec order; ties on effective df under one-se go to the better
 /// score, then the earlier setting.
-pub fn choose(scores: &[SettingScore], metric: Metric, rule: Rule) -> Choice {
+pub(crate) fn choose(scores: &[SettingScore], metric: Metric, rule: Rule) -> Choice {
     let mut best = 0;
     for (i, s) in scores.iter().enumerate() {
         if metric.better(s.cv_score, scores[best].cv_score) {

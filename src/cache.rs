@@ -29,10 +29,10 @@ const FORMAT: &str = "heldout fit cache v2";
 
 /// A 32-byte cache key.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct CacheKey(pub [u8; 32]);
+pub(crate) struct CacheKey(pub [u8; 32]);
 
 impl CacheKey {
-    pub fn hex(&self) -> String {
+    pub(crate) fn hex(&self) -> String {
         blake3::Hash::from_bytes(self.0).to_hex().to_string()
     }
 }
@@ -41,7 +41,7 @@ impl CacheKey {
 /// fitted), whether it is a final fit, and digests of what it reads: its
 /// feature columns and the target (each digested once per run, see
 /// [`digest_values`]) and its training and evaluation rows.
-pub fn key(
+pub(crate) fn key(
     identity: &[u8],
     final_fit: bool,
     feature_digests: &[[u8; 32]],
@@ -66,7 +66,7 @@ pub fn key(
 /// Digest of a column of values (their little-endian bits, with the length),
 /// fed to the hasher in large blocks: one `update` per value would cost more
 /// than the hashing itself.
-pub fn digest_values(values: &[f64]) -> [u8; 32] {
+pub(crate) fn digest_values(values: &[f64]) -> [u8; 32] {
     let mut hasher = blake3::Hasher::new();
     hasher.update(&(values.len() as u64).to_le_bytes());
     let mut block = Vec::with_capacity(8 * 4096);
@@ -81,7 +81,7 @@ pub fn digest_values(values: &[f64]) -> [u8; 32] {
 }
 
 /// Digest of a list of rows (indices into the table).
-pub fn digest_rows(rows: &[usize]) -> [u8; 32] {
+pub(crate) fn digest_rows(rows: &[usize]) -> [u8; 32] {
     let mut block = Vec::with_capacity(8 * (rows.len() + 1));
     block.extend_from_slice(&(rows.len() as u64).to_le_bytes());
     for &row in rows {
@@ -92,7 +92,7 @@ pub fn digest_rows(rows: &[usize]) -> [u8; 32] {
 
 /// What a lookup found.
 #[derive(Debug)]
-pub enum Lookup {
+pub(crate) enum Lookup {
     Hit(Vec<u8>),
     Miss,
     /// The entry exists but failed its integrity check; it must be recomputed.
@@ -101,18 +101,18 @@ pub enum Lookup {
 
 /// A cache folder.
 #[derive(Debug, Clone)]
-pub struct Cache {
+pub(crate) struct Cache {
     root: PathBuf,
 }
 
 static TEMPORARY_COUNTER: AtomicU64 = AtomicU64::new(0);
 
 impl Cache {
-    pub fn new(root: impl Into<PathBuf>) -> Self {
+    pub(crate) fn new(root: impl Into<PathBuf>) -> Self {
         Cache { root: root.into() }
     }
 
-    pub fn root(&self) -> &Path {
+    pub(crate) fn root(&self) -> &Path {
         &self.root
     }
 
@@ -122,12 +122,12 @@ impl Cache {
     }
 
     /// Whether an entry exists (without reading it).
-    pub fn contains(&self, key: &CacheKey) -> bool {
+    pub(crate) fn contains(&self, key: &CacheKey) -> bool {
         self.path_of(key).is_file()
     }
 
     /// Reads and checks an entry.
-    pub fn get(&self, key: &CacheKey) -> Lookup {
+    pub(crate) fn get(&self, key: &CacheKey) -> Lookup {
         let path = self.path_of(key);
         let Ok(bytes) = std::fs::read(&path) else {
             return Lookup::Miss;
@@ -146,12 +146,12 @@ impl Cache {
     }
 
     /// Where an entry lives, for messages about its content.
-    pub fn describe(&self, key: &CacheKey) -> String {
+    pub(crate) fn describe(&self, key: &CacheKey) -> String {
         self.path_of(key).display().to_string()
     }
 
     /// Stores an entry atomically.
-    pub fn put(&self, key: &CacheKey, payload: &[u8]) -> Result<(), CacheError> {
+    pub(crate) fn put(&self, key: &CacheKey, payload: &[u8]) -> Result<(), CacheError> {
         let path = self.path_of(key);
         let dir = path.parent().expect("entries live in a sub-folder");
         let io = |error| CacheError::Io {

@@ -13,55 +13,51 @@ use crate::spec::MissingPolicy;
 
 /// Which columns to read and how.
 #[derive(Debug, Clone)]
-pub struct TableRequest {
+pub(crate) struct TableRequest {
     /// Columns that must hold finite numbers (target first, then features).
-    pub numeric: Vec<String>,
+    pub(crate) numeric: Vec<String>,
     /// Columns read as text (key, group, fold labels).
-    pub text: Vec<String>,
-    pub missing: MissingPolicy,
+    pub(crate) text: Vec<String>,
+    pub(crate) missing: MissingPolicy,
 }
 
 /// A loaded table: only the requested columns, rows in file order.
 #[derive(Debug, Clone)]
-pub struct Table {
+pub(crate) struct Table {
     /// The path as the user gave it (relative to the spec's folder when relative).
-    pub path: PathBuf,
+    pub(crate) path: PathBuf,
     /// blake3 digest of the file's bytes, hex.
-    pub digest: String,
-    pub numeric: BTreeMap<String, Vec<f64>>,
-    pub text: BTreeMap<String, Vec<String>>,
+    pub(crate) digest: String,
+    pub(crate) numeric: BTreeMap<String, Vec<f64>>,
+    pub(crate) text: BTreeMap<String, Vec<String>>,
     /// File line of each kept row (header = 1).
-    pub lines: Vec<u64>,
+    pub(crate) lines: Vec<u64>,
     /// 1-based position of each kept row among the file's data rows, counted
     /// before any rows are dropped; the default row identity for splits.
-    pub row_numbers: Vec<u64>,
+    pub(crate) row_numbers: Vec<u64>,
     /// Rows dropped under `missing = "drop-rows"`.
-    pub dropped: usize,
+    pub(crate) dropped: usize,
 }
 
 impl Table {
-    pub fn len(&self) -> usize {
+    pub(crate) fn len(&self) -> usize {
         self.lines.len()
     }
 
-    pub fn is_empty(&self) -> bool {
-        self.lines.is_empty()
-    }
-
     /// A numeric column that was requested.
-    pub fn column(&self, name: &str) -> &[f64] {
+    pub(crate) fn column(&self, name: &str) -> &[f64] {
         &self.numeric[name]
     }
 
     /// A text column that was requested.
-    pub fn text_column(&self, name: &str) -> &[String] {
+    pub(crate) fn text_column(&self, name: &str) -> &[String] {
         &self.text[name]
     }
 }
 
 /// Reads `path` (already resolved against the spec folder); `shown` is the
 /// path as messages should print it.
-pub fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, DataError> {
+pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, DataError> {
     let bytes = std::fs::read(path).map_err(|error| DataError::Read {
         path: shown.to_path_buf(),
         error,

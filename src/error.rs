@@ -20,7 +20,7 @@ pub mod exit {
 
 /// A spec that cannot be read, parsed or validated.
 #[derive(Debug, thiserror::Error)]
-pub enum SpecError {
+pub(crate) enum SpecError {
     #[error("{path}: cannot read the spec: {error}")]
     Read {
         path: PathBuf,
@@ -44,7 +44,7 @@ pub enum SpecError {
 
 /// A data table that cannot be read or does not fit the spec.
 #[derive(Debug, thiserror::Error)]
-pub enum DataError {
+pub(crate) enum DataError {
     #[error("{path}: cannot read the data table: {error}")]
     Read {
         path: PathBuf,
@@ -152,15 +152,15 @@ pub enum FitError {
 /// A `FitError` with the candidate and fold it happened in.
 #[derive(Debug, thiserror::Error)]
 #[error("candidate {candidate}, {fold}: {cause}")]
-pub struct FitFailure {
-    pub candidate: String,
-    pub fold: String,
-    pub cause: FitError,
+pub(crate) struct FitFailure {
+    pub(crate) candidate: String,
+    pub(crate) fold: String,
+    pub(crate) cause: FitError,
 }
 
 /// A cache folder that cannot be written.
 #[derive(Debug, thiserror::Error)]
-pub enum CacheError {
+pub(crate) enum CacheError {
     #[error("cache folder {path}: {error}")]
     Io {
         path: PathBuf,
@@ -173,14 +173,14 @@ pub enum CacheError {
 /// `verify` found differences (exit code 1).
 #[derive(Debug, thiserror::Error)]
 #[error("verification failed for {}", specs.join(", "))]
-pub struct VerifyMismatch {
-    pub specs: Vec<String>,
+pub(crate) struct VerifyMismatch {
+    pub(crate) specs: Vec<String>,
 }
 
 /// Wrong use of the command line that clap cannot catch.
 #[derive(Debug, thiserror::Error)]
 #[error("{0}")]
-pub struct UsageError(pub String);
+pub(crate) struct UsageError(pub String);
 
 /// Chooses the exit code for an error chain: bad input (2) when any link is one
 /// of the input error kinds above, internal (3) otherwise.

@@ -18,7 +18,7 @@ use crate::plan::ExperimentPlan;
 
 /// Which rows a task trains on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum TaskRows {
+pub(crate) enum TaskRows {
     /// Cross-validation fold (index into `Assignment::folds`).
     Fold(usize),
     /// Every fold of a single-row leave-one-out split at once: the hat-diagonal
@@ -30,55 +30,55 @@ pub enum TaskRows {
 
 /// One unit of work: one candidate's whole grid on one set of training rows.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Task {
-    pub candidate: usize,
-    pub rows: TaskRows,
+pub(crate) struct Task {
+    pub(crate) candidate: usize,
+    pub(crate) rows: TaskRows,
 }
 
 /// Fitted grids of one candidate.
-pub struct CandidateFits {
+pub(crate) struct CandidateFits {
     /// Per fold (in `Assignment::folds` order), per setting: predictions at the
     /// fold's validation rows.
-    pub fold_predictions: Vec<Vec<Vec<f64>>>,
+    pub(crate) fold_predictions: Vec<Vec<Vec<f64>>>,
     /// Per setting: the fit on all non-test rows, evaluated on the test rows.
-    pub full: Vec<SettingFit>,
+    pub(crate) full: Vec<SettingFit>,
 }
 
 /// How the cache takes part in a run.
 #[derive(Debug, Clone, Copy)]
-pub struct CachePolicy<'a> {
+pub(crate) struct CachePolicy<'a> {
     /// Entries may be read (and are checked before use).
-    pub read: Option<&'a Cache>,
+    pub(crate) read: Option<&'a Cache>,
     /// Computed fits are stored.
-    pub write: Option<&'a Cache>,
+    pub(crate) write: Option<&'a Cache>,
 }
 
 /// A slice of the tasks for one process of a sharded run: 0-based `index` of `count`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Shard {
-    pub index: usize,
-    pub count: usize,
+pub(crate) struct Shard {
+    pub(crate) index: usize,
+    pub(crate) count: usize,
 }
 
 impl Shard {
     /// Tasks are dealt round-robin in task order.
-    pub fn owns(&self, task_number: usize) -> bool {
+    pub(crate) fn owns(&self, task_number: usize) -> bool {
         task_number % self.count == self.index
     }
 }
 
 /// What a run did.
 #[derive(Debug, Default, Clone, PartialEq, Eq)]
-pub struct Summary {
-    pub computed: usize,
-    pub reused: usize,
+pub(crate) struct Summary {
+    pub(crate) computed: usize,
+    pub(crate) reused: usize,
     /// Cache entries that failed their check and were recomputed.
-    pub corrupt: Vec<String>,
+    pub(crate) corrupt: Vec<String>,
 }
 
 impl Summary {
     /// Adds another part's counts and warnings to this one.
-    pub fn absorb(&mut self, part: Summary) {
+    pub(crate) fn absorb(&mut self, part: Summary) {
         self.computed += part.computed;
         self.reused += part.reused;
         self.corrupt.extend(part.corrupt);
@@ -87,7 +87,7 @@ impl Summary {
 
 /// Why execution stopped.
 #[derive(Debug, thiserror::Error)]
-pub enum ExecuteError {
+pub(crate) enum ExecuteError {
     #[error(transparent)]
     Fit(#[from] FitFailure),
     #[error(transparent)]
@@ -96,7 +96,7 @@ pub enum ExecuteError {
 
 /// Every task of a plan, candidate-major, folds in order, the full fit last.
 /// A single-row leave-one-out split is one task per candidate.
-pub fn tasks(plan: &ExperimentPlan) -> Vec<Task> {
+pub(crate) fn tasks(plan: &ExperimentPlan) -> Vec<Task> {
     let folds: Vec<TaskRows> = if plan.assignment.single_row_folds {
         vec![TaskRows::LeaveOneOut]
     } else {
@@ -158,7 +158,7 @@ fn rows_digest(plan: &ExperimentPlan, non_test: &[u8; 32], rows: TaskRows) -> [u
 }
 
 /// The cache key of every task, in [`tasks`] order.
-pub fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
+pub(crate) fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
     let non_test = cache::digest_rows(&plan.assignment.train);
     let target = &plan.column_digests[&plan.spec.data().target];
     tasks
@@ -328,7 +328,7 @@ pub(crate) fn leave_one_out(
 
 /// Runs every task in parallel and returns the gathered fits.
 /// `on_done` is called once per finished task, from any thread.
-pub fn run_all(
+pub(crate) fn run_all(
     plan: &ExperimentPlan,
     policy: CachePolicy<'_>,
     on_done: &(dyn Fn() + Sync),
@@ -340,7 +340,7 @@ pub fn run_all(
 /// Runs the tasks (all, or one shard's) in parallel. Returns the gathered
 /// fits, or `None` for a shard, which only fills the cache.
 /// `on_done` is called once per finished task, from any thread.
-pub fn run(
+pub(crate) fn run(
     plan: &ExperimentPlan,
     policy: CachePolicy<'_>,
     shard: Option<Shard>,

@@ -7,20 +7,20 @@
 //! `report` / `output`. Model families live in `models`, one file each;
 //! simulation specs (a declared truth instead of a table) live in `simulate`.
 
-pub mod assess;
-pub mod cache;
+pub(crate) mod assess;
+pub(crate) mod cache;
 pub mod cli;
 pub mod commands;
-pub mod data;
+pub(crate) mod data;
 pub mod error;
-pub mod execute;
-pub mod metrics;
+pub(crate) mod execute;
+pub(crate) mod metrics;
 pub mod models;
-pub mod output;
-pub mod plan;
-pub mod receipt;
-pub mod report;
+pub(crate) mod output;
+pub(crate) mod plan;
+pub(crate) mod receipt;
+pub(crate) mod report;
 pub mod results;
 pub mod simulate;
 pub mod spec;
-pub mod split;
+pub(crate) mod split;

@@ -9,7 +9,7 @@ impl Metric {
     ///
     /// R² on rows whose observed values are all equal is undefined and comes
     /// out as NaN; callers check fold sizes before choosing R².
-    pub fn score(self, observed: &[f64], predicted: &[f64]) -> f64 {
+    pub(crate) fn score(self, observed: &[f64], predicted: &[f64]) -> f64 {
         debug_assert_eq!(observed.len(), predicted.len());
         let n = observed.len() as f64;
         let sse: f64 = observed
@@ -37,12 +37,12 @@ impl Metric {
     }
 
     /// True when larger scores are better (R²).
-    pub fn higher_is_better(self) -> bool {
+    pub(crate) fn higher_is_better(self) -> bool {
         matches!(self, Metric::R2)
     }
 
     /// The metric's name as written in specs.
-    pub fn name(self) -> &'static str {
+    pub(crate) fn name(self) -> &'static str {
         match self {
             Metric::Mse => "mse",
             Metric::Rmse => "rmse",
@@ -52,7 +52,7 @@ impl Metric {
     }
 
     /// Whether `a` is a strictly better score than `b`.
-    pub fn better(self, a: f64, b: f64) -> bool {
+    pub(crate) fn better(self, a: f64, b: f64) -> bool {
         if self.higher_is_better() {
             a > b
         } else {

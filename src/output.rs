@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 
 /// Writes `contents` to `path` atomically (temporary file, then rename).
-pub fn write_atomic(path: &Path, contents: &[u8]) -> anyhow::Result<()> {
+pub(crate) fn write_atomic(path: &Path, contents: &[u8]) -> anyhow::Result<()> {
     let dir = path.parent().unwrap_or(Path::new("."));
     std::fs::create_dir_all(dir)
         .with_context(|| format!("cannot create the folder {}", dir.display()))?;
@@ -23,6 +23,6 @@ pub fn write_atomic(path: &Path, contents: &[u8]) -> anyhow::Result<()> {
 }
 
 /// The folder of one experiment's outputs: `<out>/<experiment name>/`.
-pub fn experiment_dir(out: &Path, experiment: &str) -> PathBuf {
+pub(crate) fn experiment_dir(out: &Path, experiment: &str) -> PathBuf {
     out.join(experiment)
 }

@@ -15,19 +15,19 @@ use crate::split::{self, Assignment, FoldScheme};
 
 /// One candidate of the spec, ready to fit.
 #[derive(Clone)]
-pub struct CandidatePlan {
+pub(crate) struct CandidatePlan {
     /// Family name, or the candidate's `label`; the first part of every id.
-    pub stem: String,
-    pub family: Arc<dyn Family>,
-    pub settings: Vec<Setting>,
+    pub(crate) stem: String,
+    pub(crate) family: Arc<dyn Family>,
+    pub(crate) settings: Vec<Setting>,
     /// The explicit identity of this candidate's fits (family, algorithm
     /// version, features, every setting as bits): what cache keys name.
-    pub identity: Vec<u8>,
+    pub(crate) identity: Vec<u8>,
 }
 
 impl CandidatePlan {
     /// A validated candidate, ready to fit.
-    pub fn from_spec(spec: &FamilySpec) -> Self {
+    pub(crate) fn from_spec(spec: &FamilySpec) -> Self {
         CandidatePlan {
             stem: spec.stem().to_string(),
             family: Arc::clone(&spec.family),
@@ -37,7 +37,7 @@ impl CandidatePlan {
     }
 
     /// `polynomial/degree=3`, or the stem alone for a family without settings.
-    pub fn id(&self, setting: &Setting) -> String {
+    pub(crate) fn id(&self, setting: &Setting) -> String {
         match setting.param {
             Some(_) => format!("{}/{setting}", self.stem),
             None => self.stem.clone(),
@@ -46,36 +46,36 @@ impl CandidatePlan {
 }
 
 /// Everything needed to execute an experiment.
-pub struct ExperimentPlan {
-    pub spec: LoadedSpec,
-    pub table: Table,
-    pub target: Vec<f64>,
-    pub assignment: Assignment,
-    pub candidates: Vec<CandidatePlan>,
+pub(crate) struct ExperimentPlan {
+    pub(crate) spec: LoadedSpec,
+    pub(crate) table: Table,
+    pub(crate) target: Vec<f64>,
+    pub(crate) assignment: Assignment,
+    pub(crate) candidates: Vec<CandidatePlan>,
     /// Digest of every numeric column read (for cache keys).
-    pub column_digests: std::collections::BTreeMap<String, [u8; 32]>,
+    pub(crate) column_digests: std::collections::BTreeMap<String, [u8; 32]>,
     /// What the fit on all non-test rows yields besides test predictions.
-    pub full_fit: FullFit,
+    pub(crate) full_fit: FullFit,
     /// Where these rows come from, when not from the table alone
     /// (`replicate 3`); failures name it before the fold.
-    pub origin: Option<String>,
+    pub(crate) origin: Option<String>,
 }
 
 /// What the fit on all non-test rows must yield besides its predictions at
 /// the test rows.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct FullFit {
+pub(crate) struct FullFit {
     /// The final fit: raw-unit coefficients and the family's own training
     /// predictions (a table; replicate 1 of a simulation).
-    pub final_fit: bool,
+    pub(crate) final_fit: bool,
     /// Training predictions evaluated as extra rows after the test rows,
     /// without the final-fit work (every simulation replicate needs them).
-    pub training_as_evaluation: bool,
+    pub(crate) training_as_evaluation: bool,
 }
 
 impl FullFit {
     /// A table's final fit.
-    pub const FINAL: FullFit = FullFit {
+    pub(crate) const FINAL: FullFit = FullFit {
         final_fit: true,
         training_as_evaluation: false,
     };
@@ -83,7 +83,7 @@ impl FullFit {
 
 impl ExperimentPlan {
     /// The rows × features matrix of `rows` for one candidate's features.
-    pub fn design(&self, candidate: &CandidatePlan, rows: &[usize]) -> DMatrix<f64> {
+    pub(crate) fn design(&self, candidate: &CandidatePlan, rows: &[usize]) -> DMatrix<f64> {
         let columns: Vec<&[f64]> = candidate
             .family
             .features()
@@ -94,13 +94,13 @@ impl ExperimentPlan {
     }
 
     /// Target values of `rows`.
-    pub fn target_of(&self, rows: &[usize]) -> Vec<f64> {
+    pub(crate) fn target_of(&self, rows: &[usize]) -> Vec<f64> {
         rows.iter().map(|&r| self.target[r]).collect()
     }
 }
 
 /// Loads the data and resolves the spec into a plan.
-pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
+pub(crate) fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     let data_spec = spec.data().clone();
     let split_spec = spec.spec.split.clone();
 
@@ -260,7 +260,7 @@ pub fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
 }
 
 /// `path` resolved against the spec's folder when relative.
-pub fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
+pub(crate) fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
     if path.is_absolute() {
         path.to_path_buf()
     } else {

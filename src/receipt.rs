@@ -14,55 +14,55 @@ use crate::plan::ExperimentPlan;
 use crate::results::Results;
 use crate::spec::SpecFile;
 
-pub const SCHEMA: &str = "heldout-receipt/1";
+pub(crate) const SCHEMA: &str = "heldout-receipt/1";
 
 /// The receipt file's contents.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct Receipt {
-    pub schema: String,
+pub(crate) struct Receipt {
+    pub(crate) schema: String,
     /// `heldout <version>`.
-    pub tool: String,
-    pub experiment: String,
+    pub(crate) tool: String,
+    pub(crate) experiment: String,
     /// Digest of the spec's meaning.
-    pub spec: String,
+    pub(crate) spec: String,
     /// Digest of the report templates.
-    pub templates: String,
+    pub(crate) templates: String,
     /// Digest of the test set and fold assignment.
-    pub folds: String,
+    pub(crate) folds: String,
     /// Data files, by the path written in the spec.
-    pub data: Vec<FileDigest>,
+    pub(crate) data: Vec<FileDigest>,
     /// Digest of each candidate setting's numbers, in results order.
-    pub candidates: Vec<NumbersDigest>,
+    pub(crate) candidates: Vec<NumbersDigest>,
     /// Simulation specs: digest of each setting's decomposition, then of
     /// cross-validation's choices (id `cv-choices`).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
-    pub simulation: Vec<NumbersDigest>,
+    pub(crate) simulation: Vec<NumbersDigest>,
     /// Output files, by name inside the experiment's output folder.
-    pub outputs: Vec<FileDigest>,
+    pub(crate) outputs: Vec<FileDigest>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct FileDigest {
-    pub path: String,
-    pub blake3: String,
+pub(crate) struct FileDigest {
+    pub(crate) path: String,
+    pub(crate) blake3: String,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct NumbersDigest {
-    pub id: String,
-    pub blake3: String,
+pub(crate) struct NumbersDigest {
+    pub(crate) id: String,
+    pub(crate) blake3: String,
 }
 
 /// The tool's name and version as receipts record it.
-pub fn tool_version() -> String {
+pub(crate) fn tool_version() -> String {
     format!("heldout {}", env!("CARGO_PKG_VERSION"))
 }
 
 /// Where the receipt of a spec lives: beside it, `<stem>.receipt.toml`.
-pub fn path_for(spec: &Path) -> PathBuf {
+pub(crate) fn path_for(spec: &Path) -> PathBuf {
     let stem = spec
         .file_stem()
         .map(|s| s.to_string_lossy().into_owned())
@@ -74,7 +74,7 @@ pub fn path_for(spec: &Path) -> PathBuf {
 /// out (each family's own, from the family registry), so that writing them
 /// or not is the same meaning. It is itself a spec that runs and means the
 /// same thing.
-pub fn canonical_spec(spec: &SpecFile) -> SpecFile {
+pub(crate) fn canonical_spec(spec: &SpecFile) -> SpecFile {
     let mut normal = spec.clone();
     for candidate in &mut normal.candidates {
         *candidate = candidate.with_defaults();
@@ -90,13 +90,13 @@ pub fn canonical_spec(spec: &SpecFile) -> SpecFile {
 }
 
 /// Digest of a spec's meaning.
-pub fn spec_digest(spec: &SpecFile) -> String {
+pub(crate) fn spec_digest(spec: &SpecFile) -> String {
     let canonical = serde_json::to_vec(&canonical_spec(spec)).expect("specs always serialise");
     blake3::hash(&canonical).to_hex().to_string()
 }
 
 /// Digest of the test set and folds, by data-row number.
-pub fn folds_digest(plan: &ExperimentPlan) -> String {
+pub(crate) fn folds_digest(plan: &ExperimentPlan) -> String {
     let rows = &plan.table.row_numbers;
     let mut hasher = blake3::Hasher::new();
     let put_rows = |hasher: &mut blake3::Hasher, list: &[usize]| {
@@ -116,7 +116,7 @@ pub fn folds_digest(plan: &ExperimentPlan) -> String {
 }
 
 /// Digest of one candidate setting's numbers (bits, in a fixed order).
-pub fn numbers_digest(candidate: &crate::results::CandidateResult) -> String {
+pub(crate) fn numbers_digest(candidate: &crate::results::CandidateResult) -> String {
     let mut hasher = blake3::Hasher::new();
     hasher.update(candidate.id.as_bytes());
     for value in [
@@ -136,7 +136,7 @@ pub fn numbers_digest(candidate: &crate::results::CandidateResult) -> String {
 /// Digests of a simulation's numbers: one per setting (every number of its
 /// decomposition, in field order, then its pointwise curves), then one of the
 /// choices cross-validation made (`cv-choices`).
-pub fn simulation_digests(output: &crate::simulate::SimulationOutput) -> Vec<NumbersDigest> {
+pub(crate) fn simulation_digests(output: &crate::simulate::SimulationOutput) -> Vec<NumbersDigest> {
     let bits = |hasher: &mut blake3::Hasher, values: &[f64]| {
         hasher.update(&(values.len() as u64).to_le_bytes());
         for value in values {
@@ -188,7 +188,11 @@ pub fn simulation_digests(output: &crate::simulate::SimulationOutput) -> Vec<Num
 }
 
 /// Builds the receipt of a run from its plan, results and rendered outputs.
-pub fn build(plan: &ExperimentPlan, results: &Results, outputs: &[(String, Vec<u8>)]) -> Receipt {
+pub(crate) fn build(
+    plan: &ExperimentPlan,
+    results: &Results,
+    outputs: &[(String, Vec<u8>)],
+) -> Receipt {
     Receipt {
         schema: SCHEMA.to_string(),
         tool: tool_version(),
@@ -224,7 +228,7 @@ pub fn build(plan: &ExperimentPlan, results: &Results, outputs: &[(String, Vec<u
 }
 
 /// The receipt as TOML, with a header saying what it is.
-pub fn to_toml(receipt: &Receipt) -> String {
+pub(crate) fn to_toml(receipt: &Receipt) -> String {
     let body = toml::to_string(receipt).expect("receipts always serialise");
     format!(
         "# heldout receipt: digests of every input and output of one run.\n\
@@ -233,7 +237,7 @@ pub fn to_toml(receipt: &Receipt) -> String {
 }
 
 /// Reads a receipt file.
-pub fn read(path: &Path) -> Result<Receipt, crate::error::SpecError> {
+pub(crate) fn read(path: &Path) -> Result<Receipt, crate::error::SpecError> {
     let text = std::fs::read_to_string(path).map_err(|error| crate::error::SpecError::Read {
         path: path.to_path_buf(),
         error,
@@ -246,7 +250,7 @@ pub fn read(path: &Path) -> Result<Receipt, crate::error::SpecError> {
 }
 
 /// How far apart two doubles are, in units in the last place.
-pub fn ulps_apart(a: f64, b: f64) -> u64 {
+pub(crate) fn ulps_apart(a: f64, b: f64) -> u64 {
     // Map the bit patterns onto a monotone integer line.
     let ordered = |x: f64| {
         let bits = x.to_bits() as i64;

@@ -216,7 +216,7 @@ fn ordered_map<S: Serializer>(
 }
 
 /// Scores every setting, applies the rule and assembles the results.
-pub fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
+pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
     let spec = &plan.spec.spec;
     let data = plan.spec.data();
     let metric = spec.choose.metric;
@@ -410,22 +410,24 @@ pub mod lenient {
         value.unwrap_or(f64::NAN)
     }
 
-    pub fn number<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+    pub(crate) fn number<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
         Ok(or_nan(Option::deserialize(d)?))
     }
 
-    pub fn numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
+    pub(crate) fn numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
         let values: Vec<Option<f64>> = Vec::deserialize(d)?;
         Ok(values.into_iter().map(or_nan).collect())
     }
 
-    pub fn optional_numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Vec<f64>>, D::Error> {
+    pub(crate) fn optional_numbers<'de, D: Deserializer<'de>>(
+        d: D,
+    ) -> Result<Option<Vec<f64>>, D::Error> {
         let values: Option<Vec<Option<f64>>> = Option::deserialize(d)?;
         Ok(values.map(|v| v.into_iter().map(or_nan).collect()))
     }
 
     /// A JSON object of numbers, in the order it is written.
-    pub fn ordered_pairs<'de, D: Deserializer<'de>>(
+    pub(crate) fn ordered_pairs<'de, D: Deserializer<'de>>(
         d: D,
     ) -> Result<Option<Vec<(String, f64)>>, D::Error> {
         let map: Option<serde_json::Map<String, serde_json::Value>> = Option::deserialize(d)?;

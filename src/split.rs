@@ -23,7 +23,7 @@ use rayon::prelude::*;
 
 /// Where one row ended up in one repeat.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Placement {
+pub(crate) enum Placement {
     Test,
     /// 0-based fold index.
     Fold(usize),
@@ -37,38 +37,38 @@ pub enum Placement {
 /// restricts it; only the validation rows are stored otherwise, so
 /// leave-one-out on n rows needs O(n) memory.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct Fold {
+pub(crate) struct Fold {
     /// 0-based repeat.
-    pub repeat: usize,
+    pub(crate) repeat: usize,
     /// 0-based fold within the repeat.
-    pub index: usize,
+    pub(crate) index: usize,
     /// Label shown to people (`1`, `2`, … or the fold column's text).
-    pub label: String,
+    pub(crate) label: String,
     /// Row indices (into the loaded table), ascending.
-    pub valid: Vec<usize>,
+    pub(crate) valid: Vec<usize>,
     /// The training rows, ascending, when they are not all other non-test
     /// rows (ordered splits train only on earlier rows).
-    pub train: Option<Vec<usize>>,
+    pub(crate) train: Option<Vec<usize>>,
 }
 
 /// The whole assignment.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct Assignment {
+pub(crate) struct Assignment {
     /// Rows locked away for the final test, ascending.
-    pub test: Vec<usize>,
+    pub(crate) test: Vec<usize>,
     /// All other rows, ascending.
-    pub train: Vec<usize>,
+    pub(crate) train: Vec<usize>,
     /// Folds in order: repeat-major, then fold index.
-    pub folds: Vec<Fold>,
+    pub(crate) folds: Vec<Fold>,
     /// Number of repeats.
-    pub repeats: usize,
+    pub(crate) repeats: usize,
     /// Leave-one-out on single rows: fold i validates on `train[i]` alone.
-    pub single_row_folds: bool,
+    pub(crate) single_row_folds: bool,
 }
 
 impl Assignment {
     /// The training rows of fold `f`: the non-test rows it does not validate on.
-    pub fn fold_train(&self, f: usize) -> Vec<usize> {
+    pub(crate) fn fold_train(&self, f: usize) -> Vec<usize> {
         if let Some(train) = &self.folds[f].train {
             return train.clone();
         }
@@ -85,7 +85,7 @@ impl Assignment {
     }
 
     /// Number of training rows of fold `f`.
-    pub fn fold_train_len(&self, f: usize) -> usize {
+    pub(crate) fn fold_train_len(&self, f: usize) -> usize {
         match &self.folds[f].train {
             Some(train) => train.len(),
             None => self.train.len() - self.folds[f].valid.len(),
@@ -94,7 +94,7 @@ impl Assignment {
 
     /// What the `folds` listing prints for a placement in `repeat`: `test`,
     /// the fold's label, or `train-only`.
-    pub fn placement_label(&self, placement: Placement, repeat: usize) -> String {
+    pub(crate) fn placement_label(&self, placement: Placement, repeat: usize) -> String {
         match placement {
             Placement::Test => "test".to_string(),
             Placement::TrainOnly => "train-only".to_string(),
@@ -106,7 +106,7 @@ impl Assignment {
     }
 
     /// Where each row sits in the given repeat.
-    pub fn placements(&self, rows: usize, repeat: usize) -> Vec<Placement> {
+    pub(crate) fn placements(&self, rows: usize, repeat: usize) -> Vec<Placement> {
         let mut placement = vec![Placement::Test; rows];
         for &row in &self.train {
             placement[row] = Placement::TrainOnly;
@@ -122,7 +122,7 @@ impl Assignment {
 
 /// How the non-test rows are divided into folds.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub enum FoldScheme {
+pub(crate) enum FoldScheme {
     Kfold {
         folds: usize,
         repeats: usize,
@@ -142,7 +142,7 @@ pub enum FoldScheme {
 
 /// Why rows cannot be split as asked.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
-pub enum SplitError {
+pub(crate) enum SplitError {
     #[error("{units} {what} remain after the test set, fewer than the {folds} folds asked for ([split] folds, or leave-one-out)")]
     FewerUnitsThanFolds {
         units: usize,
@@ -163,7 +163,7 @@ pub enum SplitError {
 }
 
 /// The derived 32-byte key of one random purpose under a master seed.
-pub fn purpose_key(seed: u64, purpose: &str) -> [u8; 32] {
+pub(crate) fn purpose_key(seed: u64, purpose: &str) -> [u8; 32] {
     let mut hasher = blake3::Hasher::new();
     hasher.update(b"heldout split v1");
     hasher.update(&seed.to_le_bytes());
@@ -172,7 +172,7 @@ pub fn purpose_key(seed: u64, purpose: &str) -> [u8; 32] {
 }
 
 /// Priority of one unit under a purpose key.
-pub fn priority(key: &[u8; 32], identity: &str) -> u64 {
+pub(crate) fn priority(key: &[u8; 32], identity: &str) -> u64 {
     let hash = blake3::keyed_hash(key, identity.as_bytes());
     let mut first = [0u8; 8];
     first.copy_from_slice(&hash.as_bytes()[..8]);
@@ -191,7 +191,7 @@ fn shuffled(key: &[u8; 32], identities: &[String], units: &[usize]) -> Vec<usize
 
 /// Assigns rows. `unit_of_row[r]` is the unit (row or group) of row `r`;
 /// `identities[u]` is the identity text of unit `u`.
-pub fn assign(
+pub(crate) fn assign(
     seed: u64,
     holdout: f64,
     scheme: &FoldScheme,

@@ -16,7 +16,7 @@ use crate::report::escape_markdown as md;
 /// How many moved numbers are listed without `--all`.
 const SHOWN: usize = 40;
 
-pub fn compare(args: &CompareArgs) -> anyhow::Result<()> {
+pub(crate) fn compare(args: &CompareArgs) -> anyhow::Result<()> {
     let before = read(&args.before)?;
     let after = read(&args.after)?;
     let text = render(

@@ -9,7 +9,7 @@ use crate::cache::Cache;
 use crate::cli::{FoldsArgs, PlanArgs};
 use crate::execute::{self, TaskRows};
 
-pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
+pub(crate) fn plan(args: &PlanArgs) -> anyhow::Result<()> {
     let cache = Cache::new(&args.cache.cache);
     let loaded = crate::spec::load(&args.spec)?;
     if loaded.is_simulation() {
@@ -88,7 +88,7 @@ pub fn plan(args: &PlanArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-pub fn folds(args: &FoldsArgs) -> anyhow::Result<()> {
+pub(crate) fn folds(args: &FoldsArgs) -> anyhow::Result<()> {
     let loaded = crate::spec::load(&args.spec)?;
     if loaded.is_simulation() {
         return super::simulate::folds(loaded);

@@ -18,7 +18,7 @@ use crate::results::{self, Results};
 use crate::spec::LoadedSpec;
 use crate::{output, plan, receipt, report, spec};
 
-pub fn report(args: &ReportArgs) -> anyhow::Result<()> {
+pub(crate) fn report(args: &ReportArgs) -> anyhow::Result<()> {
     for spec_path in &args.specs {
         report_one(spec_path, args)?;
     }

@@ -8,7 +8,7 @@ use crate::error::UsageError;
 use crate::execute::{CachePolicy, Shard};
 use crate::{output, receipt, report};
 
-pub fn run(args: &RunArgs) -> anyhow::Result<()> {
+pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let pool = super::thread_pool(args.jobs)?;
     let cache = Cache::new(&args.cache.cache);

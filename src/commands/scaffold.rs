@@ -35,7 +35,7 @@ struct ColumnProfile {
 }
 
 /// Writes a spec for `--table` predicting `--target`.
-pub fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
+pub(crate) fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
     let profiles = profile(&args.table)?;
     let rows = profiles.first().map_or(0, |p| p.values.len());
     let target = find_target(&profiles, &args.target, &args.table)?;

@@ -10,7 +10,7 @@ use serde_json::Value;
 use crate::spec::SpecFile;
 
 /// The schema as pretty-printed JSON, with a trailing newline.
-pub fn schema_text() -> anyhow::Result<String> {
+pub(crate) fn schema_text() -> anyhow::Result<String> {
     let schema = schemars::schema_for!(SpecFile);
     let mut value = serde_json::to_value(&schema).context("cannot build the schema")?;
     drop_null(&mut value);
@@ -60,7 +60,7 @@ fn drop_null(value: &mut Value) {
     }
 }
 
-pub fn schema() -> anyhow::Result<()> {
+pub(crate) fn schema() -> anyhow::Result<()> {
     std::io::stdout()
         .write_all(schema_text()?.as_bytes())
         .context("cannot write to stdout")

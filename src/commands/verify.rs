@@ -11,7 +11,7 @@ use crate::plan::ExperimentPlan;
 use crate::receipt::{self, FileDigest, Receipt};
 use crate::results::Results;
 
-pub fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
+pub(crate) fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
     let pool = super::thread_pool(args.jobs)?;
     let cache = Cache::new(&args.cache.cache);
     let mut failed = Vec::new();

@@ -9,9 +9,9 @@
 
 /// hi + lo with |lo| ≤ ulp(hi)/2.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct DoubleDouble {
-    pub hi: f64,
-    pub lo: f64,
+pub(crate) struct DoubleDouble {
+    pub(crate) hi: f64,
+    pub(crate) lo: f64,
 }
 
 /// a + b = s + e exactly.
@@ -40,9 +40,9 @@ fn two_product(a: f64, b: f64) -> (f64, f64) {
 }
 
 impl DoubleDouble {
-    pub const ZERO: DoubleDouble = DoubleDouble { hi: 0.0, lo: 0.0 };
+    pub(crate) const ZERO: DoubleDouble = DoubleDouble { hi: 0.0, lo: 0.0 };
 
-    pub fn from_f64(value: f64) -> Self {
+    pub(crate) fn from_f64(value: f64) -> Self {
         DoubleDouble { hi: value, lo: 0.0 }
     }
 
@@ -51,28 +51,28 @@ impl DoubleDouble {
         DoubleDouble { hi, lo }
     }
 
-    pub fn add(self, other: DoubleDouble) -> Self {
+    pub(crate) fn add(self, other: DoubleDouble) -> Self {
         let (s, e) = two_sum(self.hi, other.hi);
         Self::renormalise(s, e + self.lo + other.lo)
     }
 
-    pub fn neg(self) -> Self {
+    pub(crate) fn neg(self) -> Self {
         DoubleDouble {
             hi: -self.hi,
             lo: -self.lo,
         }
     }
 
-    pub fn mul(self, other: DoubleDouble) -> Self {
+    pub(crate) fn mul(self, other: DoubleDouble) -> Self {
         let (p, e) = two_product(self.hi, other.hi);
         Self::renormalise(p, e + self.hi * other.lo + self.lo * other.hi)
     }
 
-    pub fn mul_f64(self, other: f64) -> Self {
+    pub(crate) fn mul_f64(self, other: f64) -> Self {
         self.mul(DoubleDouble::from_f64(other))
     }
 
-    pub fn to_f64(self) -> f64 {
+    pub(crate) fn to_f64(self) -> f64 {
         self.hi + self.lo
     }
 }

@@ -44,10 +44,10 @@ pub(crate) const MAX_SWEEPS: usize = 100_000;
 
 /// The lasso over a grid of penalties.
 #[derive(Debug, Clone)]
-pub struct Lasso {
-    pub features: Vec<String>,
+pub(crate) struct Lasso {
+    pub(crate) features: Vec<String>,
     /// Penalties λ ≥ 0 in spec order.
-    pub penalties: Vec<f64>,
+    pub(crate) penalties: Vec<f64>,
 }
 
 /// The registry entry of `lasso` (see `registry`).

@@ -12,7 +12,7 @@ use nalgebra::{DMatrix, DVector};
 use super::double_double::DoubleDouble;
 
 /// A factorised design with `Qᵀy` ready for any leading block of columns.
-pub struct NestedLeastSquares {
+pub(crate) struct NestedLeastSquares {
     r: DMatrix<f64>,
     q_t_y: DVector<f64>,
     /// |R_ii| below this means the column adds nothing new.
@@ -21,7 +21,7 @@ pub struct NestedLeastSquares {
 
 impl NestedLeastSquares {
     /// Factorises `design` (rows ≥ columns) and applies Qᵀ to `y`.
-    pub fn new(design: DMatrix<f64>, y: &[f64]) -> Self {
+    pub(crate) fn new(design: DMatrix<f64>, y: &[f64]) -> Self {
         let (rows, cols) = design.shape();
         debug_assert!(rows >= cols, "caller checks the row count");
         let qr = design.qr();
@@ -41,7 +41,7 @@ impl NestedLeastSquares {
 
     /// Coefficients of the fit on the first `m` columns, or the 0-based index
     /// of the first column that is (numerically) a combination of earlier ones.
-    pub fn solve_leading(&self, m: usize) -> Result<DVector<f64>, usize> {
+    pub(crate) fn solve_leading(&self, m: usize) -> Result<DVector<f64>, usize> {
         if let Some(i) = (0..m).find(|&i| {
             let diagonal = self.r[(i, i)];
             diagonal.abs() <= self.rank_tolerance || !diagonal.is_finite()
@@ -87,18 +87,23 @@ impl NestedLeastSquares {
 /// nearly so, and adds C R⁻¹R⁻ᵀ Cᵀ g to β. This removes the rounding that a
 /// double-precision fit on Z leaves in β when residuals are large (Wampler5)
 /// or the raw basis cancels heavily (Filip).
-pub struct RawRefinement<'a> {
+pub(crate) struct RawRefinement<'a> {
     /// Maps basis coefficients γ to raw coefficients β (linear).
-    pub to_raw: &'a dyn Fn(&[f64]) -> Vec<f64>,
+    pub(crate) to_raw: &'a dyn Fn(&[f64]) -> Vec<f64>,
     /// Entry (row, raw column) of the raw design, in double-double.
-    pub raw_entry: &'a dyn Fn(usize, usize) -> DoubleDouble,
-    pub rows: usize,
-    pub y: &'a [f64],
+    pub(crate) raw_entry: &'a dyn Fn(usize, usize) -> DoubleDouble,
+    pub(crate) rows: usize,
+    pub(crate) y: &'a [f64],
 }
 
 impl NestedLeastSquares {
     /// Raw coefficients of the fit on the first `m` basis columns, refined.
-    pub fn refined_raw(&self, m: usize, gamma: &[f64], refine: &RawRefinement<'_>) -> Vec<f64> {
+    pub(crate) fn refined_raw(
+        &self,
+        m: usize,
+        gamma: &[f64],
+        refine: &RawRefinement<'_>,
+    ) -> Vec<f64> {
         let mut beta = (refine.to_raw)(gamma);
         let raw_len = beta.len();
         // Columns of C, from the images of the unit vectors.
@@ -145,7 +150,7 @@ impl NestedLeastSquares {
 /// Leverages of every leading block: entry (i, m − 1) is the hat-matrix
 /// diagonal hᵢᵢ of the fit on the first m columns, Σ_{j<m} Q_ij² with Q the
 /// thin orthogonal factor (nested for the same reason as the coefficients).
-pub fn cumulative_leverages(design: &DMatrix<f64>) -> DMatrix<f64> {
+pub(crate) fn cumulative_leverages(design: &DMatrix<f64>) -> DMatrix<f64> {
     let q = design.clone().qr().q();
     let mut leverages = DMatrix::zeros(q.nrows(), q.ncols());
     for i in 0..q.nrows() {
@@ -159,7 +164,7 @@ pub fn cumulative_leverages(design: &DMatrix<f64>) -> DMatrix<f64> {
 }
 
 /// `design[.., ..m] · beta`, summed in column order.
-pub fn predict_leading(design: &DMatrix<f64>, beta: &DVector<f64>) -> Vec<f64> {
+pub(crate) fn predict_leading(design: &DMatrix<f64>, beta: &DVector<f64>) -> Vec<f64> {
     let m = beta.len();
     (0..design.nrows())
         .map(|i| (0..m).map(|j| design[(i, j)] * beta[j]).sum())

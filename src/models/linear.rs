@@ -19,9 +19,9 @@ use crate::error::FitError;
 
 /// Least squares on the features, with or without an intercept.
 #[derive(Debug, Clone)]
-pub struct Linear {
-    pub features: Vec<String>,
-    pub intercept: bool,
+pub(crate) struct Linear {
+    pub(crate) features: Vec<String>,
+    pub(crate) intercept: bool,
 }
 
 /// The registry entry of `linear` (see `registry`).

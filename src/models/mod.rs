@@ -2,27 +2,27 @@
 //! settings on one training fold ([`Family::fit_path`]): path-aware fitting
 //! shares the expensive part (one QR, one neighbour search) across settings.
 //!
-//! Adding a family: a new file here declaring its [`registry::FamilyDef`],
-//! one line in [`registry::FAMILIES`], and its tests (see `DEVELOPERS.md`).
+//! Adding a family: a new file here declaring its `registry::FamilyDef`,
+//! one line in `registry::FAMILIES`, and its tests (see `DEVELOPERS.md`).
 
 mod double_double;
 #[cfg(test)]
 mod effective_df_tests;
-pub mod lasso;
+pub(crate) mod lasso;
 mod least_squares;
-pub mod linear;
-pub mod nearest_neighbors;
+pub(crate) mod linear;
+pub(crate) mod nearest_neighbors;
 #[cfg(test)]
 mod penalised_reference;
-pub mod polynomial;
-pub mod registry;
-pub mod ridge;
-pub mod smoothing_spline;
-pub mod spline;
+pub(crate) mod polynomial;
+pub(crate) mod registry;
+pub(crate) mod ridge;
+pub(crate) mod smoothing_spline;
+pub(crate) mod spline;
 mod standardise;
 #[cfg(test)]
 mod test_support;
-pub mod thin_plate;
+pub(crate) mod thin_plate;
 
 use std::fmt;
 
@@ -51,21 +51,21 @@ impl fmt::Display for SettingValue {
 /// One point of a family's grid; `None` for families without a tuning parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Setting {
-    pub param: Option<(&'static str, SettingValue)>,
+    pub(crate) param: Option<(&'static str, SettingValue)>,
 }
 
 impl Setting {
-    pub fn none() -> Self {
+    pub(crate) fn none() -> Self {
         Setting { param: None }
     }
 
-    pub fn count(name: &'static str, value: usize) -> Self {
+    pub(crate) fn count(name: &'static str, value: usize) -> Self {
         Setting {
             param: Some((name, SettingValue::Count(value))),
         }
     }
 
-    pub fn real(name: &'static str, value: f64) -> Self {
+    pub(crate) fn real(name: &'static str, value: f64) -> Self {
         Setting {
             param: Some((name, SettingValue::Real(value))),
         }
@@ -86,14 +86,14 @@ impl fmt::Display for Setting {
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct SettingFit {
     /// Predictions at the training rows, in their order.
-    pub train_pred: Vec<f64>,
+    pub(crate) train_pred: Vec<f64>,
     /// Predictions at the evaluation rows, in their order.
-    pub eval_pred: Vec<f64>,
+    pub(crate) eval_pred: Vec<f64>,
     /// Effective degrees of freedom of this fit.
-    pub effective_df: f64,
+    pub(crate) effective_df: f64,
     /// Coefficients in the raw units of the features, intercept first, for
     /// families that have them.
-    pub coefficients: Option<Vec<(String, f64)>>,
+    pub(crate) coefficients: Option<Vec<(String, f64)>>,
 }
 
 /// A model family with its grid of settings, bound to its features.
@@ -172,7 +172,7 @@ pub(crate) fn leave_one_out_rows(
 /// The grid of a penalised smoother: penalties, or target degrees of freedom
 /// (each turned into a penalty by root finding on the smoother's trace).
 #[derive(Debug, Clone, PartialEq)]
-pub enum SmootherGrid {
+pub(crate) enum SmootherGrid {
     Penalty(Vec<f64>),
     Df(Vec<f64>),
 }

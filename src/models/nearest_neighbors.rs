@@ -21,9 +21,9 @@ use crate::error::FitError;
 
 /// k-nearest-neighbour averages for the listed k.
 #[derive(Debug, Clone)]
-pub struct NearestNeighbors {
-    pub features: Vec<String>,
-    pub ks: Vec<usize>,
+pub(crate) struct NearestNeighbors {
+    pub(crate) features: Vec<String>,
+    pub(crate) ks: Vec<usize>,
 }
 
 /// The registry entry of `nearest-neighbors` (see `registry`).

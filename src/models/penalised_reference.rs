@@ -26,11 +26,11 @@ const LASSO_TOL: f64 = 1e-6;
 
 /// The fixture's rows, split into its training and evaluation parts.
 pub(crate) struct Fixture {
-    pub features: Vec<String>,
-    pub x_train: DMatrix<f64>,
-    pub y_train: Vec<f64>,
-    pub x_eval: DMatrix<f64>,
-    pub expected: Value,
+    pub(crate) features: Vec<String>,
+    pub(crate) x_train: DMatrix<f64>,
+    pub(crate) y_train: Vec<f64>,
+    pub(crate) x_eval: DMatrix<f64>,
+    pub(crate) expected: Value,
 }
 
 impl Fixture {

@@ -24,10 +24,10 @@ use crate::error::FitError;
 
 /// Least-squares polynomials of the listed degrees.
 #[derive(Debug, Clone)]
-pub struct Polynomial {
-    pub features: Vec<String>,
-    pub intercept: bool,
-    pub degrees: Vec<usize>,
+pub(crate) struct Polynomial {
+    pub(crate) features: Vec<String>,
+    pub(crate) intercept: bool,
+    pub(crate) degrees: Vec<usize>,
 }
 
 /// The registry entry of `polynomial` (see `registry`).
@@ -93,7 +93,7 @@ impl Polynomial {
             .collect()
     }
 
-    /// Design columns: [1], then for power 1..=max_degree, one column per feature.
+    /// Design columns: \[1\], then for power 1..=max_degree, one column per feature.
     fn design(&self, x: &DMatrix<f64>, maps: &[RangeMap], max_degree: usize) -> DMatrix<f64> {
         let p = self.features.len();
         let offset = usize::from(self.intercept);

@@ -56,23 +56,23 @@ pub(crate) const SMOOTHER_DF: KeyDef = KeyDef {
 pub(crate) struct FamilyDef {
     /// The name written in specs (`family = "polynomial"`) and reported by
     /// its fits ([`Family::family`]).
-    pub name: &'static str,
+    pub(crate) name: &'static str,
     /// One line for the schema and the docs.
-    pub about: &'static str,
+    pub(crate) about: &'static str,
     /// The keys a candidate of this family may set, besides `family`,
     /// `label` and `features`.
-    pub keys: &'static [KeyDef],
+    pub(crate) keys: &'static [KeyDef],
     /// `Some(n)`: the family takes exactly n features.
-    pub feature_count: Option<usize>,
+    pub(crate) feature_count: Option<usize>,
     /// Version of the fitting algorithm: part of every cache identity, so
     /// bump it whenever the numbers a grid yields may change.
-    pub version: u32,
+    pub(crate) version: u32,
     /// A grid that runs, as TOML lines (`degree = [1, 2, 3]`); the registry
     /// tests validate it and `docs/spec.md` shows the same keys.
-    pub default_grid: &'static str,
+    pub(crate) default_grid: &'static str,
     /// Checks the settings (already holding their defaults) and binds them to
     /// the candidate's features. The one place a family's values are judged.
-    pub build: BuildFn,
+    pub(crate) build: BuildFn,
 }
 
 /// How a family checks its settings and binds them to its features.
@@ -81,12 +81,12 @@ pub(crate) type BuildFn = fn(&Settings, Vec<String>) -> Result<Box<dyn Family>, 
 /// A key a family takes.
 #[derive(Debug)]
 pub(crate) struct KeyDef {
-    pub name: &'static str,
-    pub kind: KeyKind,
+    pub(crate) name: &'static str,
+    pub(crate) kind: KeyKind,
     /// Filled in when the spec leaves the key out; the canonical spec shows it.
-    pub default: Option<KeyValue>,
+    pub(crate) default: Option<KeyValue>,
     /// What the key means, for the schema.
-    pub about: &'static str,
+    pub(crate) about: &'static str,
 }
 
 /// The type of a key's value. A key name has one kind across all families
@@ -117,8 +117,8 @@ pub(crate) enum KeyValue {
 /// candidate) and the message.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct SettingProblem {
-    pub key: String,
-    pub message: String,
+    pub(crate) key: String,
+    pub(crate) message: String,
 }
 
 impl SettingProblem {

@@ -48,10 +48,10 @@ const SVD_MAX_ITERATIONS: usize = 100_000;
 
 /// Ridge regression over a grid of penalties.
 #[derive(Debug, Clone)]
-pub struct Ridge {
-    pub features: Vec<String>,
+pub(crate) struct Ridge {
+    pub(crate) features: Vec<String>,
     /// Penalties λ ≥ 0 in spec order.
-    pub penalties: Vec<f64>,
+    pub(crate) penalties: Vec<f64>,
 }
 
 /// The registry entry of `ridge` (see `registry`).

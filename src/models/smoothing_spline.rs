@@ -61,9 +61,9 @@ use crate::error::FitError;
 
 /// Cubic smoothing splines of one feature for a grid of penalties or df.
 #[derive(Debug, Clone)]
-pub struct SmoothingSpline {
-    pub features: Vec<String>,
-    pub grid: SmootherGrid,
+pub(crate) struct SmoothingSpline {
+    pub(crate) features: Vec<String>,
+    pub(crate) grid: SmootherGrid,
 }
 
 /// The registry entry of `smoothing-spline` (see `registry`).

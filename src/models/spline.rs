@@ -37,9 +37,9 @@ use crate::error::FitError;
 
 /// Additive natural cubic regression splines of the listed df per feature.
 #[derive(Debug, Clone)]
-pub struct Spline {
-    pub features: Vec<String>,
-    pub dfs: Vec<usize>,
+pub(crate) struct Spline {
+    pub(crate) features: Vec<String>,
+    pub(crate) dfs: Vec<usize>,
 }
 
 /// The registry entry of `spline` (see `registry`).

@@ -44,10 +44,10 @@ pub(crate) fn assert_grid_equals_separate_fits<F: Family>(
 /// family's shortcut and by a refit on the other rows.
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct LeftOut {
-    pub setting: usize,
-    pub row: usize,
-    pub shortcut: f64,
-    pub refit: f64,
+    pub(crate) setting: usize,
+    pub(crate) row: usize,
+    pub(crate) shortcut: f64,
+    pub(crate) refit: f64,
 }
 
 impl fmt::Display for LeftOut {

@@ -49,13 +49,13 @@ use low_rank::{knot_rows, LowRankPath};
 
 /// Thin-plate smoothing splines over a grid of penalties or effective df.
 #[derive(Debug, Clone)]
-pub struct ThinPlate {
-    pub features: Vec<String>,
-    pub grid: SmootherGrid,
+pub(crate) struct ThinPlate {
+    pub(crate) features: Vec<String>,
+    pub(crate) grid: SmootherGrid,
     /// Knots of the low-rank fit.
-    pub knots: usize,
+    pub(crate) knots: usize,
     /// Largest training fold fitted exactly.
-    pub exact_limit: usize,
+    pub(crate) exact_limit: usize,
 }
 
 /// Thin-plate defaults: exact up to this many training rows, then low rank.

@@ -9,11 +9,11 @@ use super::figures::{Figure, Section};
 use crate::results::{CandidateResult, Results};
 
 /// Everything a report needs besides the results and figures.
-pub struct ReportInputs<'a> {
+pub(crate) struct ReportInputs<'a> {
     /// Command that regenerates the outputs, run from the spec's folder.
-    pub regenerate: &'a str,
+    pub(crate) regenerate: &'a str,
     /// The spec as heldout read it (its meaning, written out as TOML).
-    pub spec_text: &'a str,
+    pub(crate) spec_text: &'a str,
 }
 
 /// A figure as the templates see it.
@@ -57,7 +57,7 @@ fn code_fence(text: &str) -> String {
 }
 
 /// The template context.
-pub fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Figure]) -> Value {
+pub(crate) fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Figure]) -> Value {
     let find =
         |id: &str| -> Option<&CandidateResult> { results.candidates.iter().find(|c| c.id == id) };
     let chosen = find(&results.chosen);

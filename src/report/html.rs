@@ -11,12 +11,12 @@ use super::figures::Figure;
 use crate::results::Results;
 
 /// The page template; compiled in, and digested with the outputs.
-pub const TEMPLATE: &str = include_str!("../../templates/report.html.j2");
+pub(crate) const TEMPLATE: &str = include_str!("../../templates/report.html.j2");
 /// The page's style sheet, inlined into the page.
-pub const STYLE: &str = include_str!("../../templates/report.css");
+pub(crate) const STYLE: &str = include_str!("../../templates/report.css");
 
 /// Renders the HTML report.
-pub fn render(
+pub(crate) fn render(
     results: &Results,
     inputs: &ReportInputs<'_>,
     figures: &[Figure],

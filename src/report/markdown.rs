@@ -9,10 +9,10 @@ use super::figures::Figure;
 use crate::results::Results;
 
 /// The template text; it is compiled in, and digested with the outputs.
-pub const TEMPLATE: &str = include_str!("../../templates/report.md.j2");
+pub(crate) const TEMPLATE: &str = include_str!("../../templates/report.md.j2");
 
 /// Renders the Markdown report.
-pub fn render(
+pub(crate) fn render(
     results: &Results,
     inputs: &ReportInputs<'_>,
     figures: &[Figure],

@@ -5,27 +5,27 @@
 //! Both reports read one context (`context.rs`), so they say the same things.
 
 mod context;
-pub mod figures;
-pub mod html;
-pub mod markdown;
-pub mod terminal;
+pub(crate) mod figures;
+pub(crate) mod html;
+pub(crate) mod markdown;
+pub(crate) mod terminal;
 
 use std::cmp::Ordering;
 
 use crate::results::{self, Results};
 use crate::spec::{Metric, ReportFormat};
 
-pub use context::ReportInputs;
+pub(crate) use context::ReportInputs;
 
 /// Every template that shapes an output, by name, in a fixed order.
-pub const TEMPLATES: [(&str, &str); 3] = [
+pub(crate) const TEMPLATES: [(&str, &str); 3] = [
     ("report.md", markdown::TEMPLATE),
     ("report.html", html::TEMPLATE),
     ("report.css", html::STYLE),
 ];
 
 /// Digest of every template that shapes an output (names and texts).
-pub fn templates_digest() -> String {
+pub(crate) fn templates_digest() -> String {
     let mut hasher = blake3::Hasher::new();
     for (name, text) in TEMPLATES {
         for part in [name, text] {
@@ -38,7 +38,7 @@ pub fn templates_digest() -> String {
 
 /// Why a report could not be rendered.
 #[derive(Debug, thiserror::Error)]
-pub enum ReportError {
+pub(crate) enum ReportError {
     #[error("cannot render a report template: {0:#}")]
     Template(#[from] minijinja::Error),
     #[error(transparent)]
@@ -48,7 +48,7 @@ pub enum ReportError {
 /// Every output file of a run, as (name inside the output folder, bytes), in
 /// a fixed order: `results.json`, then (when any report is asked for) the
 /// figures as `figures/*.svg`, then the reports asked for.
-pub fn render_outputs(
+pub(crate) fn render_outputs(
     results: &Results,
     formats: &[ReportFormat],
     inputs: &ReportInputs<'_>,
@@ -64,7 +64,7 @@ pub fn render_outputs(
 /// The report files alone, in the order of [`render_outputs`]: the figures as
 /// `figures/*.svg`, then the reports asked for; nothing when none is asked
 /// for. `heldout report` writes these from stored results.
-pub fn render_reports(
+pub(crate) fn render_reports(
     results: &Results,
     formats: &[ReportFormat],
     inputs: &ReportInputs<'_>,
@@ -92,7 +92,7 @@ pub fn render_reports(
 }
 
 /// The cautions every report carries (docs/architecture.md, "Cautions every report carries").
-pub const CAUTIONS: [&str; 3] = [
+pub(crate) const CAUTIONS: [&str; 3] = [
     "Cross-validated error assumes the rows are exchangeable, unless groups or a time order are \
      declared in the spec; if rows are related in ways the spec does not declare, these scores \
      are optimistic.",
@@ -104,7 +104,7 @@ pub const CAUTIONS: [&str; 3] = [
 ];
 
 /// Human words for a metric.
-pub fn metric_label(metric: Metric) -> &'static str {
+pub(crate) fn metric_label(metric: Metric) -> &'static str {
     match metric {
         Metric::Mse => "mean squared error (mse)",
         Metric::Rmse => "root mean squared error (rmse)",
@@ -117,7 +117,7 @@ pub fn metric_label(metric: Metric) -> &'static str {
 /// with defaults spelled out, as digested in the receipt) written as TOML.
 /// Comments and layout are not kept, so a spec and its YAML twin give the
 /// same report, and editing a comment does not change any output.
-pub fn spec_as_read(spec: &crate::spec::SpecFile) -> String {
+pub(crate) fn spec_as_read(spec: &crate::spec::SpecFile) -> String {
     let canonical = crate::receipt::canonical_spec(spec);
     toml::to_string(&canonical).unwrap_or_else(|_| {
         serde_json::to_string_pretty(&canonical).expect("specs always serialise") + "\n"
@@ -125,7 +125,7 @@ pub fn spec_as_read(spec: &crate::spec::SpecFile) -> String {
 }
 
 /// The rule in words.
-pub fn rule_words(rule: crate::spec::Rule) -> &'static str {
+pub(crate) fn rule_words(rule: crate::spec::Rule) -> &'static str {
     match rule {
         crate::spec::Rule::OneSe => "one-standard-error rule",
         crate::spec::Rule::Lowest => "lowest cross-validated score",
@@ -133,7 +133,7 @@ pub fn rule_words(rule: crate::spec::Rule) -> &'static str {
 }
 
 /// How the split reads in a sentence.
-pub fn split_phrase(results: &Results) -> String {
+pub(crate) fn split_phrase(results: &Results) -> String {
     use crate::spec::SplitMethod;
     let s = &results.split;
     match s.method {
@@ -159,7 +159,7 @@ pub fn split_phrase(results: &Results) -> String {
 /// Positions of `items` in order of effective degrees of freedom, least
 /// flexible first. The sort is stable, so ties keep the given (spec) order;
 /// a NaN df sorts last.
-pub fn by_effective_df<T>(items: &[T], df: impl Fn(&T) -> f64) -> Vec<usize> {
+pub(crate) fn by_effective_df<T>(items: &[T], df: impl Fn(&T) -> f64) -> Vec<usize> {
     let mut order: Vec<usize> = (0..items.len()).collect();
     order.sort_by(|&a, &b| {
         let (x, y) = (df(&items[a]), df(&items[b]));
@@ -176,7 +176,11 @@ pub fn by_effective_df<T>(items: &[T], df: impl Fn(&T) -> f64) -> Vec<usize> {
 /// Positions of `items` as the reports' tables list them: grouped by
 /// candidate (family name or label: the stem of the id), candidates in order
 /// of first appearance, and within each by [`by_effective_df`].
-pub fn table_order<T>(items: &[T], id: impl Fn(&T) -> &str, df: impl Fn(&T) -> f64) -> Vec<usize> {
+pub(crate) fn table_order<T>(
+    items: &[T],
+    id: impl Fn(&T) -> &str,
+    df: impl Fn(&T) -> f64,
+) -> Vec<usize> {
     let mut stems: Vec<&str> = Vec::new();
     for item in items {
         let stem = figures::stem(id(item));
@@ -197,7 +201,7 @@ pub fn table_order<T>(items: &[T], id: impl Fn(&T) -> &str, df: impl Fn(&T) -> f
 
 /// A number for people: four significant digits, scientific when very large
 /// or small. Deterministic: uses only Rust's own float formatting.
-pub fn format_number(value: f64) -> String {
+pub(crate) fn format_number(value: f64) -> String {
     if value.is_nan() {
         return "n/a".to_string();
     }
@@ -223,7 +227,7 @@ pub fn format_number(value: f64) -> String {
 
 /// Effective degrees of freedom: whole numbers without decimals (a degree-3
 /// polynomial has 4), others as [`format_number`].
-pub fn format_df(value: f64) -> String {
+pub(crate) fn format_df(value: f64) -> String {
     if value.fract() == 0.0 && value.abs() < 1e15 {
         format!("{value:.0}")
     } else {
@@ -233,7 +237,7 @@ pub fn format_df(value: f64) -> String {
 
 /// A number with every digit that round-trips: plain decimals for ordinary
 /// magnitudes, scientific notation for very large or small ones.
-pub fn format_exact(value: f64) -> String {
+pub(crate) fn format_exact(value: f64) -> String {
     let magnitude = value.abs();
     if value == 0.0 || (1e-4..1e15).contains(&magnitude) {
         format!("{value}")
@@ -243,7 +247,7 @@ pub fn format_exact(value: f64) -> String {
 }
 
 /// Escapes text from data or the spec for Markdown (including table cells).
-pub fn escape_markdown(text: &str) -> String {
+pub(crate) fn escape_markdown(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
     for c in text.chars() {
         match c {

@@ -6,7 +6,7 @@ use super::format_number;
 use crate::results::Results;
 
 /// Renders the terminal summary.
-pub fn render(results: &Results) -> String {
+pub(crate) fn render(results: &Results) -> String {
     let id_width = results
         .candidates
         .iter()
@@ -62,7 +62,7 @@ pub fn render(results: &Results) -> String {
 }
 
 /// Renders the bias–variance table of a simulation spec (empty otherwise).
-pub fn render_simulation(results: &Results) -> String {
+pub(crate) fn render_simulation(results: &Results) -> String {
     let Some(sim) = &results.simulation else {
         return String::new();
     };

@@ -33,35 +33,35 @@
 
 /// Per-test-point pieces of one setting's decomposition.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Pointwise {
+pub(crate) struct Pointwise {
     /// f̄ at each test point.
-    pub mean_fit: Vec<f64>,
-    pub bias_sq: Vec<f64>,
-    pub variance: Vec<f64>,
+    pub(crate) mean_fit: Vec<f64>,
+    pub(crate) bias_sq: Vec<f64>,
+    pub(crate) variance: Vec<f64>,
     /// Jackknife standard error of each point's variance.
-    pub variance_se: Vec<f64>,
+    pub(crate) variance_se: Vec<f64>,
 }
 
 /// One setting's decomposition, averaged over the test points.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Decomposition {
-    pub bias_sq: f64,
-    pub bias_sq_se: f64,
-    pub variance: f64,
-    pub variance_se: f64,
+pub(crate) struct Decomposition {
+    pub(crate) bias_sq: f64,
+    pub(crate) bias_sq_se: f64,
+    pub(crate) variance: f64,
+    pub(crate) variance_se: f64,
     /// σ².
-    pub noise: f64,
-    pub expected_mse: f64,
+    pub(crate) noise: f64,
+    pub(crate) expected_mse: f64,
     /// Standard error of `expected_mse` over replicates.
-    pub mc_se: f64,
+    pub(crate) mc_se: f64,
     /// expected_mse − (bias_sq + variance + noise) and its standard error.
-    pub identity_gap: f64,
-    pub identity_gap_se: f64,
-    pub pointwise: Pointwise,
+    pub(crate) identity_gap: f64,
+    pub(crate) identity_gap_se: f64,
+    pub(crate) pointwise: Pointwise,
 }
 
 /// Mean and standard error (sample SD / √n) of values, summed in order.
-pub fn mean_and_se(values: &[f64]) -> (f64, f64) {
+pub(crate) fn mean_and_se(values: &[f64]) -> (f64, f64) {
     crate::assess::mean_and_standard_error(values)
 }
 
@@ -77,7 +77,7 @@ fn jackknife_se(leave_one_out: &[f64]) -> f64 {
 /// prediction at test point j, `test_noise[r][j]` the noise of its test
 /// target, `truth[j]` the truth there; `noise` is σ². Needs R ≥ 3 (the
 /// jackknife leaves one replicate out of an unbiased variance).
-pub fn decompose(
+pub(crate) fn decompose(
     truth: &[f64],
     predictions: &[Vec<f64>],
     test_noise: &[Vec<f64>],

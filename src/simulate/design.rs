@@ -24,25 +24,25 @@ use crate::spec::simulation::{Design, InputSpec, SimulateSpec};
 
 /// A validated `[simulate]` table, ready to draw from.
 #[derive(Debug, Clone)]
-pub struct Setup {
-    pub seed: u64,
-    pub truth: Expr,
-    pub truth_text: String,
-    pub target: String,
+pub(crate) struct Setup {
+    pub(crate) seed: u64,
+    pub(crate) truth: Expr,
+    pub(crate) truth_text: String,
+    pub(crate) target: String,
     /// Input names (the features), in column order.
-    pub names: Vec<String>,
-    pub inputs: Vec<InputSpec>,
-    pub noise_sd: f64,
-    pub train_size: usize,
-    pub replicates: usize,
-    pub test: TestDesign,
+    pub(crate) names: Vec<String>,
+    pub(crate) inputs: Vec<InputSpec>,
+    pub(crate) noise_sd: f64,
+    pub(crate) train_size: usize,
+    pub(crate) replicates: usize,
+    pub(crate) test: TestDesign,
     /// Training inputs are the same in every replicate.
-    pub fixed_design: bool,
+    pub(crate) fixed_design: bool,
 }
 
 /// Where expected error is measured.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum TestDesign {
+pub(crate) enum TestDesign {
     /// Points drawn once from the input distribution.
     Points(usize),
     /// Points evenly spaced over the only input's range.
@@ -50,7 +50,7 @@ pub enum TestDesign {
 }
 
 impl TestDesign {
-    pub fn count(self) -> usize {
+    pub(crate) fn count(self) -> usize {
         match self {
             TestDesign::Points(m) | TestDesign::Grid(m) => m,
         }
@@ -59,10 +59,10 @@ impl TestDesign {
 
 /// A point where the truth is not a finite number.
 #[derive(Debug, Clone, PartialEq)]
-pub struct UndefinedTruth {
-    pub value: f64,
-    pub at: String,
-    pub place: String,
+pub(crate) struct UndefinedTruth {
+    pub(crate) value: f64,
+    pub(crate) at: String,
+    pub(crate) place: String,
 }
 
 impl std::fmt::Display for UndefinedTruth {
@@ -77,7 +77,7 @@ impl std::fmt::Display for UndefinedTruth {
 
 impl Setup {
     /// Binds a validated spec table (see [`crate::spec::simulation::validate`]).
-    pub fn new(spec: &SimulateSpec, seed: u64) -> Result<Self, expr::ParseError> {
+    pub(crate) fn new(spec: &SimulateSpec, seed: u64) -> Result<Self, expr::ParseError> {
         let names = spec.input_names();
         let truth = expr::parse(&spec.truth, &names)?;
         let fixed_design = spec.design == Design::Fixed
@@ -105,7 +105,7 @@ impl Setup {
     }
 
     /// Training inputs of replicate `replicate` (0-based), rows × inputs.
-    pub fn training_inputs(&self, replicate: usize) -> DMatrix<f64> {
+    pub(crate) fn training_inputs(&self, replicate: usize) -> DMatrix<f64> {
         let n = self.train_size;
         let grids: Vec<usize> = (0..self.inputs.len())
             .filter(|&j| matches!(self.inputs[j], InputSpec::Grid(_)))
@@ -143,7 +143,7 @@ impl Setup {
     }
 
     /// The test inputs, points × inputs.
-    pub fn test_inputs(&self) -> DMatrix<f64> {
+    pub(crate) fn test_inputs(&self) -> DMatrix<f64> {
         match self.test {
             TestDesign::Grid(m) => {
                 let [a, b] = match self.inputs[0] {
@@ -172,7 +172,11 @@ impl Setup {
     }
 
     /// The truth at every row of `x`, or the first row where it is undefined.
-    pub fn truth_at(&self, x: &DMatrix<f64>, place: &str) -> Result<Vec<f64>, UndefinedTruth> {
+    pub(crate) fn truth_at(
+        &self,
+        x: &DMatrix<f64>,
+        place: &str,
+    ) -> Result<Vec<f64>, UndefinedTruth> {
         let mut point = vec![0.0; x.ncols()];
         (0..x.nrows())
             .map(|i| {
@@ -201,19 +205,19 @@ impl Setup {
     }
 
     /// Training noise of replicate `replicate` (0-based).
-    pub fn noise(&self, replicate: usize) -> Vec<f64> {
+    pub(crate) fn noise(&self, replicate: usize) -> Vec<f64> {
         let purpose = format!("simulate/noise/replicate={}", replicate + 1);
         Stream::new(self.seed, &purpose).normals(self.train_size, 0.0, self.noise_sd)
     }
 
     /// Noise of replicate `replicate`'s test targets.
-    pub fn test_noise(&self, replicate: usize) -> Vec<f64> {
+    pub(crate) fn test_noise(&self, replicate: usize) -> Vec<f64> {
         let purpose = format!("simulate/test-noise/replicate={}", replicate + 1);
         Stream::new(self.seed, &purpose).normals(self.test.count(), 0.0, self.noise_sd)
     }
 
     /// The seed of replicate `replicate`'s fold assignment.
-    pub fn split_seed(&self, replicate: usize) -> u64 {
+    pub(crate) fn split_seed(&self, replicate: usize) -> u64 {
         super::random::derived_seed(
             self.seed,
             &format!("simulate/split/replicate={}", replicate + 1),
@@ -230,7 +234,7 @@ fn draw(input: &InputSpec, stream: &mut Stream) -> f64 {
 }
 
 /// Point `i` of `m` evenly spaced over [a, b]; both ends are exact.
-pub fn evenly_spaced(a: f64, b: f64, m: usize, i: usize) -> f64 {
+pub(crate) fn evenly_spaced(a: f64, b: f64, m: usize, i: usize) -> f64 {
     if i == 0 {
         a
     } else if i + 1 >= m {

@@ -11,20 +11,20 @@
 //! - (`spec::simulation` and `spec::expr` read and check the `[simulate]`
 //!   table and parse the truth's arithmetic, evaluated with `libm`);
 //! - `random`, `design`: named ChaCha20 streams and the simulated inputs, noise and folds;
-//! - `run`: each replicate becomes an ordinary [`crate::plan::ExperimentPlan`]
+//! - `run`: each replicate becomes an ordinary `plan::ExperimentPlan`
 //!   (training rows in folds, the test points as the locked test set) and
 //!   goes through `execute` and the fit cache like any table; then
 //!   cross-validation scores and the rule's choice;
 //! - `decompose`, `summary`: the Monte-Carlo estimates and what results.json holds.
 
-pub mod decompose;
-pub mod design;
-pub mod random;
-pub mod run;
+pub(crate) mod decompose;
+pub(crate) mod design;
+pub(crate) mod random;
+pub(crate) mod run;
 pub mod summary;
 
-pub use run::{resolve, SimulateError, SimulationPlan};
-pub use summary::{summarise, Simulated, SimulationOutput};
+pub(crate) use run::{resolve, SimulateError};
+pub(crate) use summary::{summarise, SimulationOutput};
 
 #[cfg(test)]
 mod checks;

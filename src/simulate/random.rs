@@ -22,7 +22,7 @@ use rand_chacha::ChaCha20Rng;
 const UNIT: f64 = 1.0 / (1u64 << 53) as f64;
 
 /// The 32-byte key of one purpose under a master seed.
-pub fn purpose_key(seed: u64, purpose: &str) -> [u8; 32] {
+pub(crate) fn purpose_key(seed: u64, purpose: &str) -> [u8; 32] {
     let mut hasher = blake3::Hasher::new();
     hasher.update(&seed.to_le_bytes());
     hasher.update(purpose.as_bytes());
@@ -31,7 +31,7 @@ pub fn purpose_key(seed: u64, purpose: &str) -> [u8; 32] {
 
 /// A 64-bit seed derived for a purpose (the first 8 key bytes, little-endian),
 /// for machinery that takes a `u64` seed, such as the split of a replicate.
-pub fn derived_seed(seed: u64, purpose: &str) -> u64 {
+pub(crate) fn derived_seed(seed: u64, purpose: &str) -> u64 {
     let key = purpose_key(seed, purpose);
     let mut first = [0u8; 8];
     first.copy_from_slice(&key[..8]);
@@ -39,14 +39,14 @@ pub fn derived_seed(seed: u64, purpose: &str) -> u64 {
 }
 
 /// One random stream.
-pub struct Stream {
+pub(crate) struct Stream {
     rng: ChaCha20Rng,
     /// The second deviate of the last Box–Muller pair, not yet used.
     spare: Option<f64>,
 }
 
 impl Stream {
-    pub fn new(seed: u64, purpose: &str) -> Self {
+    pub(crate) fn new(seed: u64, purpose: &str) -> Self {
         Stream {
             rng: ChaCha20Rng::from_seed(purpose_key(seed, purpose)),
             spare: None,
@@ -54,17 +54,17 @@ impl Stream {
     }
 
     /// A uniform deviate on [0, 1).
-    pub fn uniform(&mut self) -> f64 {
+    pub(crate) fn uniform(&mut self) -> f64 {
         (self.rng.next_u64() >> 11) as f64 * UNIT
     }
 
     /// A uniform deviate on [a, b).
-    pub fn uniform_on(&mut self, a: f64, b: f64) -> f64 {
+    pub(crate) fn uniform_on(&mut self, a: f64, b: f64) -> f64 {
         a + (b - a) * self.uniform()
     }
 
     /// A standard normal deviate (Box–Muller, pairs used cosine first).
-    pub fn normal(&mut self) -> f64 {
+    pub(crate) fn normal(&mut self) -> f64 {
         if let Some(z) = self.spare.take() {
             return z;
         }
@@ -78,7 +78,7 @@ impl Stream {
     }
 
     /// `count` normal deviates with mean `mean` and standard deviation `sd`.
-    pub fn normals(&mut self, count: usize, mean: f64, sd: f64) -> Vec<f64> {
+    pub(crate) fn normals(&mut self, count: usize, mean: f64, sd: f64) -> Vec<f64> {
         (0..count).map(|_| mean + sd * self.normal()).collect()
     }
 }

@@ -29,27 +29,27 @@ use crate::split::{self, Assignment, FoldScheme};
 
 /// A simulation spec resolved: the setup, the candidates bound to their
 /// inputs, and the test points.
-pub struct SimulationPlan {
-    pub spec: LoadedSpec,
-    pub setup: Setup,
-    pub candidates: Vec<CandidatePlan>,
+pub(crate) struct SimulationPlan {
+    pub(crate) spec: LoadedSpec,
+    pub(crate) setup: Setup,
+    pub(crate) candidates: Vec<CandidatePlan>,
     /// Test inputs, points × inputs, and the truth there.
-    pub test_x: DMatrix<f64>,
-    pub test_truth: Vec<f64>,
-    pub scheme: FoldScheme,
+    pub(crate) test_x: DMatrix<f64>,
+    pub(crate) test_truth: Vec<f64>,
+    pub(crate) scheme: FoldScheme,
 }
 
 /// One replicate's simulated data.
-pub struct Replicate {
+pub(crate) struct Replicate {
     /// 0-based replicate number.
-    pub index: usize,
+    pub(crate) index: usize,
     /// Training inputs, rows × inputs.
-    pub x: DMatrix<f64>,
-    pub y: Vec<f64>,
+    pub(crate) x: DMatrix<f64>,
+    pub(crate) y: Vec<f64>,
     /// Noise of the test targets: y₀ = truth + test_noise.
-    pub test_noise: Vec<f64>,
+    pub(crate) test_noise: Vec<f64>,
     /// Folds over the training rows (no test rows).
-    pub assignment: Assignment,
+    pub(crate) assignment: Assignment,
 }
 
 impl SimulationPlan {
@@ -61,13 +61,8 @@ impl SimulationPlan {
         }
     }
 
-    /// Total number of settings over all candidates.
-    pub fn setting_count(&self) -> usize {
-        self.candidates.iter().map(|c| c.settings.len()).sum()
-    }
-
     /// Draws replicate `index` (0-based).
-    pub fn replicate(&self, index: usize) -> Result<Replicate, SpecError> {
+    pub(crate) fn replicate(&self, index: usize) -> Result<Replicate, SpecError> {
         let setup = &self.setup;
         let x = setup.training_inputs(index);
         let truth = setup
@@ -99,7 +94,7 @@ impl SimulationPlan {
     }
 
     /// Test targets of a replicate: truth plus its test noise.
-    pub fn test_targets(&self, replicate: &Replicate) -> Vec<f64> {
+    pub(crate) fn test_targets(&self, replicate: &Replicate) -> Vec<f64> {
         self.test_truth
             .iter()
             .zip(&replicate.test_noise)
@@ -112,7 +107,7 @@ impl SimulationPlan {
     /// n+1..n+M, the locked test set). Every replicate's full fit also
     /// predicts at its training rows; replicate 1's is a final fit, with
     /// coefficients, for the report.
-    pub fn replicate_plan(&self, replicate: &Replicate) -> ExperimentPlan {
+    pub(crate) fn replicate_plan(&self, replicate: &Replicate) -> ExperimentPlan {
         let n = replicate.y.len();
         let m = self.test_x.nrows();
         let mut numeric = BTreeMap::new();
@@ -173,7 +168,7 @@ impl SimulationPlan {
 }
 
 /// Resolves a validated simulation spec.
-pub fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
+pub(crate) fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
     let sim = spec
         .spec
         .simulate
@@ -226,24 +221,24 @@ pub fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
 }
 
 /// What one replicate yields for every setting (all candidates, results order).
-pub struct ReplicateOutcome {
+pub(crate) struct ReplicateOutcome {
     /// Predictions at the test points, per setting.
-    pub test_pred: Vec<Vec<f64>>,
+    pub(crate) test_pred: Vec<Vec<f64>>,
     /// Training mean squared error, per setting.
-    pub train_mse: Vec<f64>,
+    pub(crate) train_mse: Vec<f64>,
     /// Cross-validated score (the spec's metric), per setting.
-    pub cv_score: Vec<f64>,
-    pub effective_df: Vec<f64>,
+    pub(crate) cv_score: Vec<f64>,
+    pub(crate) effective_df: Vec<f64>,
     /// Index of the setting the spec's rule chose on this replicate.
-    pub chosen: usize,
-    pub test_noise: Vec<f64>,
+    pub(crate) chosen: usize,
+    pub(crate) test_noise: Vec<f64>,
     /// Replicate 1 only: its plan and fits, as the ordinary pipeline holds them.
-    pub first: Option<(ExperimentPlan, Vec<CandidateFits>)>,
+    pub(crate) first: Option<(ExperimentPlan, Vec<CandidateFits>)>,
 }
 
 /// Fits, cross-validates and chooses on one replicate, through the same
 /// plan → execute → cache path as a table.
-pub fn run_replicate(
+pub(crate) fn run_replicate(
     plan: &SimulationPlan,
     replicate: Replicate,
     policy: CachePolicy<'_>,
@@ -297,7 +292,7 @@ pub fn run_replicate(
 /// Why a simulation stopped: a replicate whose data is not usable (the truth
 /// undefined at a drawn input, too few rows for the folds), or a fit.
 #[derive(Debug, thiserror::Error)]
-pub enum SimulateError {
+pub(crate) enum SimulateError {
     #[error(transparent)]
     Spec(#[from] SpecError),
     #[error(transparent)]
@@ -306,7 +301,7 @@ pub enum SimulateError {
 
 /// Runs every replicate (or one shard's), in parallel, gathered in order.
 /// Returns the outcomes, or `None` for a shard, which only fills the cache.
-pub fn run(
+pub(crate) fn run(
     plan: &SimulationPlan,
     policy: CachePolicy<'_>,
     shard: Option<Shard>,

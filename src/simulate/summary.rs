@@ -189,7 +189,7 @@ pub struct ChoiceRow {
 }
 
 /// Everything a simulation produced.
-pub struct Simulated {
+pub(crate) struct Simulated {
     /// Replicate 1 as a data set: training rows, then the test points.
     pub plan: ExperimentPlan,
     /// Replicate 1's fits, as the ordinary results expect them.
@@ -198,7 +198,7 @@ pub struct Simulated {
 }
 
 /// Summarises the outcomes of every replicate (in replicate order).
-pub fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> Simulated {
+pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> Simulated {
     let setup = &plan.setup;
     let noise = setup.noise_sd * setup.noise_sd;
     let mut ids = Vec::new();

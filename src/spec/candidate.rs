@@ -27,13 +27,13 @@ use crate::models::Family;
 
 /// One `[[candidate]]` table as written.
 #[derive(Debug, Clone, PartialEq)]
-pub struct CandidateSpec {
+pub(crate) struct CandidateSpec {
     /// A registered family name (checked while reading).
-    pub family: &'static str,
+    pub(crate) family: &'static str,
     /// Tells apart two candidates of one family in ids: a-z, 0-9 and `-`.
-    pub label: Option<String>,
+    pub(crate) label: Option<String>,
     /// Columns this candidate uses instead of `[data] features`.
-    pub features: Option<Vec<String>>,
+    pub(crate) features: Option<Vec<String>>,
     /// The family keys given, in the registry's key order.
     pub(crate) settings: Vec<(&'static str, KeyValue)>,
 }
@@ -288,29 +288,24 @@ fn default_candidate(def: &FamilyDef) -> Option<Value> {
 /// entry with the settings (defaults filled in), and the family bound to
 /// the features, ready to fit.
 #[derive(Debug, Clone)]
-pub struct FamilySpec {
+pub(crate) struct FamilySpec {
     /// Replaces the family name in candidate ids.
-    pub label: Option<String>,
+    pub(crate) label: Option<String>,
     /// The features this candidate uses: its own list or `[data] features`.
-    pub features: Vec<String>,
+    pub(crate) features: Vec<String>,
     pub(crate) def: &'static FamilyDef,
     pub(crate) settings: Settings,
-    pub family: Arc<dyn Family>,
+    pub(crate) family: Arc<dyn Family>,
 }
 
 impl FamilySpec {
-    /// The family's name as written in the spec.
-    pub fn family_name(&self) -> &'static str {
-        self.def.name
-    }
-
     /// The stem of the candidate's ids: its label, or else its family name.
-    pub fn stem(&self) -> &str {
+    pub(crate) fn stem(&self) -> &str {
         self.label.as_deref().unwrap_or(self.def.name)
     }
 
     /// The explicit identity of this candidate's fits, for cache keys.
-    pub fn identity(&self) -> Vec<u8> {
+    pub(crate) fn identity(&self) -> Vec<u8> {
         self.def.identity(&self.settings, &self.features)
     }
 }

@@ -24,7 +24,7 @@ use std::fmt;
 
 /// A one-argument function of the language.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Function {
+pub(crate) enum Function {
     Sin,
     Cos,
     Tan,
@@ -37,14 +37,14 @@ pub enum Function {
 
 /// A function over two or more arguments.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Fold {
+pub(crate) enum Fold {
     Min,
     Max,
 }
 
 /// Binary operators.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Operator {
+pub(crate) enum Operator {
     Add,
     Subtract,
     Multiply,
@@ -54,7 +54,7 @@ pub enum Operator {
 
 /// A parsed expression.
 #[derive(Debug, Clone, PartialEq)]
-pub enum Expr {
+pub(crate) enum Expr {
     Number(f64),
     /// Index into the input names the expression was parsed against.
     Input(usize),
@@ -82,7 +82,7 @@ const FOLDS: [(&str, Fold); 2] = [("min", Fold::Min), ("max", Fold::Max)];
 const CONSTANTS: [(&str, f64); 1] = [("pi", std::f64::consts::PI)];
 
 /// Words the language reserves: no input may take one of these names.
-pub fn reserved_names() -> Vec<&'static str> {
+pub(crate) fn reserved_names() -> Vec<&'static str> {
     FUNCTIONS
         .iter()
         .map(|(n, _)| *n)
@@ -93,11 +93,11 @@ pub fn reserved_names() -> Vec<&'static str> {
 
 /// A parse error at a 1-based character column of the expression.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct ParseError {
-    pub column: usize,
-    pub message: String,
+pub(crate) struct ParseError {
+    pub(crate) column: usize,
+    pub(crate) message: String,
     /// The expression text, shown with a caret under the column.
-    pub text: String,
+    pub(crate) text: String,
 }
 
 impl fmt::Display for ParseError {
@@ -223,7 +223,7 @@ fn tokenize(text: &str) -> Result<Vec<(Token, usize)>, ParseError> {
 
 /// Parses `text` against the input `names` (their order gives
 /// [`Expr::Input`] indices).
-pub fn parse(text: &str, names: &[String]) -> Result<Expr, ParseError> {
+pub(crate) fn parse(text: &str, names: &[String]) -> Result<Expr, ParseError> {
     let tokens = tokenize(text)?;
     let mut parser = Parser {
         tokens,
@@ -442,7 +442,7 @@ impl Parser<'_> {
 impl Expr {
     /// Evaluates at one point (`inputs` in the order of the names parsed
     /// against). Transcendental functions and powers go through `libm`.
-    pub fn eval(&self, inputs: &[f64]) -> f64 {
+    pub(crate) fn eval(&self, inputs: &[f64]) -> f64 {
         match self {
             Expr::Number(v) => *v,
             Expr::Input(i) => inputs[*i],

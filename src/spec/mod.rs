@@ -17,39 +17,42 @@ use crate::error::SpecError;
 
 mod candidate;
 mod checks;
-pub mod expr;
+pub(crate) mod expr;
 mod parse;
-pub mod simulation;
+pub(crate) mod simulation;
 #[cfg(test)]
 mod tests;
 mod types;
 
-pub use candidate::{bind_candidate, CandidateSpec, FamilySpec};
+pub use candidate::bind_candidate;
+pub(crate) use candidate::{CandidateSpec, FamilySpec};
 pub(crate) use parse::{closest, parse};
-pub use simulation::{Design, InputSpec, NoiseSpec, SimulateSpec};
-pub use types::*;
+pub use simulation::InputSpec;
+pub(crate) use simulation::{NoiseSpec, SimulateSpec};
+pub(crate) use types::*;
+pub use types::{Metric, Rule, SplitMethod};
 
 /// A spec read from disk, with the path it came from.
 #[derive(Debug, Clone)]
-pub struct LoadedSpec {
-    pub path: PathBuf,
-    pub spec: SpecFile,
+pub(crate) struct LoadedSpec {
+    pub(crate) path: PathBuf,
+    pub(crate) spec: SpecFile,
     /// The validated candidates, in spec order.
-    pub families: Vec<FamilySpec>,
+    pub(crate) families: Vec<FamilySpec>,
     /// For a simulation spec: the `[data]` it stands in for (the inputs as
     /// features, the simulated target), so later stages read both alike.
-    pub simulated_data: Option<DataSpec>,
+    pub(crate) simulated_data: Option<DataSpec>,
 }
 
 impl LoadedSpec {
     /// The folder relative paths in the spec are resolved against.
-    pub fn base_dir(&self) -> &Path {
+    pub(crate) fn base_dir(&self) -> &Path {
         self.path.parent().unwrap_or(Path::new(""))
     }
 
     /// The `[data]` table: present on every validated non-simulation spec;
     /// for a simulation spec, the stand-in described at [`Self::simulated_data`].
-    pub fn data(&self) -> &DataSpec {
+    pub(crate) fn data(&self) -> &DataSpec {
         self.spec
             .data
             .as_ref()
@@ -58,13 +61,13 @@ impl LoadedSpec {
     }
 
     /// Whether this is a simulation spec.
-    pub fn is_simulation(&self) -> bool {
+    pub(crate) fn is_simulation(&self) -> bool {
         self.spec.simulate.is_some()
     }
 }
 
 /// Reads, parses and validates a spec file (TOML or YAML, chosen by extension).
-pub fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
+pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
     let text = std::fs::read_to_string(path).map_err(|error| SpecError::Read {
         path: path.to_path_buf(),
         error,
@@ -91,7 +94,7 @@ pub fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
 /// Checks values that the types alone cannot: ranges, names, grids, and the
 /// combinations of keys. Fails on the first problem, naming the key. Returns
 /// the candidates as validated family specs.
-pub fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecError> {
+pub(crate) fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, SpecError> {
     let invalid = |key: &str, message: String| SpecError::Invalid {
         path: path.to_path_buf(),
         key: key.to_string(),

@@ -14,35 +14,35 @@ use crate::spec::{SplitMethod, SplitSpec};
 /// `[simulate]` as written.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct SimulateSpec {
+pub(crate) struct SimulateSpec {
     /// The true regression function over the named inputs.
-    pub truth: String,
+    pub(crate) truth: String,
     /// Name of the simulated target in reports and results.
     #[serde(default = "default_target")]
-    pub target: String,
+    pub(crate) target: String,
     /// Each input's distribution; the input names are the features, in
     /// alphabetical order.
-    pub inputs: BTreeMap<String, InputSpec>,
+    pub(crate) inputs: BTreeMap<String, InputSpec>,
     /// Standard deviation of the normal noise added to the truth.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub noise_sd: Option<f64>,
+    pub(crate) noise_sd: Option<f64>,
     /// The same, written as a distribution: `noise = { normal = 0.5 }`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub noise: Option<NoiseSpec>,
+    pub(crate) noise: Option<NoiseSpec>,
     /// Rows of each replicate's training set.
-    pub train_size: usize,
+    pub(crate) train_size: usize,
     /// Number of simulated training sets.
-    pub replicates: usize,
+    pub(crate) replicates: usize,
     /// Test inputs drawn once from the input distribution.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub test_points: Option<usize>,
+    pub(crate) test_points: Option<usize>,
     /// Test inputs evenly spaced over the only input's range, ends included.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub test_grid: Option<usize>,
+    pub(crate) test_grid: Option<usize>,
     /// `random`: training inputs drawn afresh for every replicate; `fixed`:
     /// drawn once and kept, so only the noise varies.
     #[serde(default)]
-    pub design: Design,
+    pub(crate) design: Design,
 }
 
 fn default_target() -> String {
@@ -108,7 +108,7 @@ impl From<InputSpec> for InputTable {
 /// The noise distribution, written `{ normal = sd }`.
 #[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(from = "NoiseTable", into = "NoiseTable")]
-pub enum NoiseSpec {
+pub(crate) enum NoiseSpec {
     /// Normal with mean 0 and this standard deviation.
     Normal(f64),
 }
@@ -135,7 +135,7 @@ impl From<NoiseSpec> for NoiseTable {
 
 #[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
-pub enum Design {
+pub(crate) enum Design {
     #[default]
     Random,
     Fixed,
@@ -143,12 +143,12 @@ pub enum Design {
 
 impl SimulateSpec {
     /// The input names in feature order.
-    pub fn input_names(&self) -> Vec<String> {
+    pub(crate) fn input_names(&self) -> Vec<String> {
         self.inputs.keys().cloned().collect()
     }
 
     /// The noise standard deviation, however it was written.
-    pub fn noise_sd(&self) -> f64 {
+    pub(crate) fn noise_sd(&self) -> f64 {
         match (self.noise_sd, self.noise) {
             (Some(sd), _) => sd,
             (None, Some(NoiseSpec::Normal(sd))) => sd,
@@ -159,7 +159,7 @@ impl SimulateSpec {
 
 /// Checks a `[simulate]` table and the `[split]` it will use. Fails on the
 /// first problem, naming the key.
-pub fn validate(
+pub(crate) fn validate(
     sim: &SimulateSpec,
     split: &SplitSpec,
     invalid: &impl Fn(&str, String) -> SpecError,
@@ -353,7 +353,7 @@ pub fn validate(
 }
 
 /// The number of points m per grid input when `rows` = m^`grids` exactly.
-pub fn grid_side(rows: usize, grids: usize) -> Option<usize> {
+pub(crate) fn grid_side(rows: usize, grids: usize) -> Option<usize> {
     if grids == 0 {
         return None;
     }

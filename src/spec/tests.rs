@@ -121,7 +121,7 @@ fn every_family_default_grid_validates_and_reports_its_spec_name() {
     for def in crate::models::registry::FAMILIES {
         let families = check(&default_spec(def)).unwrap_or_else(|e| panic!("{}: {e}", def.name));
         assert_eq!(families.len(), 1);
-        assert_eq!(families[0].family_name(), def.name);
+        assert_eq!(families[0].def.name, def.name);
         assert_eq!(
             families[0].family.family(),
             def.name,

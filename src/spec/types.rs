@@ -10,57 +10,57 @@ use super::{CandidateSpec, SimulateSpec};
 /// The whole spec file as written.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct SpecFile {
-    pub experiment: ExperimentSpec,
-    pub data: Option<DataSpec>,
+pub(crate) struct SpecFile {
+    pub(crate) experiment: ExperimentSpec,
+    pub(crate) data: Option<DataSpec>,
     /// A simulation spec declares a truth, inputs and noise instead of `[data]`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub simulate: Option<SimulateSpec>,
+    pub(crate) simulate: Option<SimulateSpec>,
     #[serde(default)]
-    pub split: SplitSpec,
+    pub(crate) split: SplitSpec,
     #[serde(rename = "candidate")]
-    pub candidates: Vec<CandidateSpec>,
+    pub(crate) candidates: Vec<CandidateSpec>,
     #[serde(default)]
-    pub choose: ChooseSpec,
+    pub(crate) choose: ChooseSpec,
     #[serde(default)]
-    pub report: ReportSpec,
+    pub(crate) report: ReportSpec,
 }
 
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct ExperimentSpec {
+pub(crate) struct ExperimentSpec {
     /// Names the output folder: lower-case letters, digits and `-`.
-    pub name: String,
+    pub(crate) name: String,
     #[serde(default)]
-    pub title: Option<String>,
+    pub(crate) title: Option<String>,
     /// Master seed: every random stream derives from it.
-    pub seed: u64,
+    pub(crate) seed: u64,
 }
 
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct DataSpec {
+pub(crate) struct DataSpec {
     /// CSV file, relative to the spec file.
-    pub table: String,
-    pub target: String,
-    pub features: Vec<String>,
+    pub(crate) table: String,
+    pub(crate) target: String,
+    pub(crate) features: Vec<String>,
     /// Row identity used for split assignment (stable under row reordering).
     #[serde(default)]
-    pub key: Option<String>,
+    pub(crate) key: Option<String>,
     /// Rows of one group never straddle folds or the test set.
     #[serde(default)]
-    pub group: Option<String>,
+    pub(crate) group: Option<String>,
     /// The time column of ordered splits (`method = "ordered"`): numbers, or
     /// text that sorts in time order such as ISO 8601 dates.
     #[serde(default)]
-    pub order: Option<String>,
+    pub(crate) order: Option<String>,
     #[serde(default)]
-    pub missing: MissingPolicy,
+    pub(crate) missing: MissingPolicy,
 }
 
 #[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
-pub enum MissingPolicy {
+pub(crate) enum MissingPolicy {
     /// An empty cell in a used column is an error.
     #[default]
     Error,
@@ -70,19 +70,19 @@ pub enum MissingPolicy {
 
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct SplitSpec {
+pub(crate) struct SplitSpec {
     /// Fraction of rows locked away as the final test set; 0 = none.
     #[serde(default = "default_holdout")]
-    pub holdout: f64,
+    pub(crate) holdout: f64,
     #[serde(default)]
-    pub method: SplitMethod,
+    pub(crate) method: SplitMethod,
     #[serde(default)]
-    pub folds: Option<usize>,
+    pub(crate) folds: Option<usize>,
     #[serde(default = "default_repeats")]
-    pub repeats: usize,
+    pub(crate) repeats: usize,
     /// With `method = "column"`: the column holding each row's fold label.
     #[serde(default)]
-    pub column: Option<String>,
+    pub(crate) column: Option<String>,
 }
 
 fn default_holdout() -> f64 {
@@ -94,7 +94,7 @@ fn default_repeats() -> usize {
 }
 
 /// Folds used when `folds` is not given (common practice: 10-fold).
-pub const DEFAULT_FOLDS: usize = 10;
+pub(crate) const DEFAULT_FOLDS: usize = 10;
 
 impl Default for SplitSpec {
     fn default() -> Self {
@@ -120,11 +120,11 @@ pub enum SplitMethod {
 
 #[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct ChooseSpec {
+pub(crate) struct ChooseSpec {
     #[serde(default)]
-    pub metric: Metric,
+    pub(crate) metric: Metric,
     #[serde(default)]
-    pub rule: Rule,
+    pub(crate) rule: Rule,
 }
 
 /// Scoring metric for regression targets.
@@ -152,9 +152,9 @@ pub enum Rule {
 
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
-pub struct ReportSpec {
+pub(crate) struct ReportSpec {
     #[serde(default = "default_formats")]
-    pub formats: Vec<ReportFormat>,
+    pub(crate) formats: Vec<ReportFormat>,
 }
 
 impl Default for ReportSpec {
@@ -173,7 +173,7 @@ fn default_formats() -> Vec<ReportFormat> {
     Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, PartialOrd, Ord, JsonSchema,
 )]
 #[serde(rename_all = "kebab-case")]
-pub enum ReportFormat {
+pub(crate) enum ReportFormat {
     Markdown,
     Html,
 }

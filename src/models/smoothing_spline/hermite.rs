@@ -79,7 +79,7 @@ pub(super) struct CovarianceBand {
 /// A diagonal entry of U that is not a positive finite number.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(super) struct Singular {
-    pub column: usize,
+    pub(crate) column: usize,
 }
 
 /// √(a² + b²) without overflow or underflow; the direct formula when it is safe.
@@ -119,7 +119,7 @@ fn rotate<const N: usize>(
 
 impl HermiteSystem {
     /// For strictly increasing knots `t` (at least two) with positive weights.
-    pub fn new(t: &[f64], weight: &[f64]) -> Self {
+    pub(crate) fn new(t: &[f64], weight: &[f64]) -> Self {
         HermiteSystem {
             h: t.windows(2).map(|w| w[1] - w[0]).collect(),
             weight: weight.to_vec(),
@@ -135,11 +135,11 @@ impl HermiteSystem {
     ///
     /// The rows are rotated in exactly the order of the sequential scheme
     /// (knot row, then the two interval rows, each through its columns from
-    /// left to right; see [`Factor::absorb`]), but knot by knot with the two
+    /// left to right; see `absorb` below), but knot by knot with the two
     /// rows of U still open kept in registers, and each rotation touching
     /// only the entries that can be nonzero: 28 products per knot instead of
     /// 45 and no searching for zeros. The two give the same U.
-    pub fn factor(&self, lambda: f64, y: &[f64]) -> Result<Factor, Singular> {
+    pub(crate) fn factor(&self, lambda: f64, y: &[f64]) -> Result<Factor, Singular> {
         let m = self.knots();
         let mut rows = Vec::with_capacity(2 * m);
         // Rows 2i and 2i+1 of U while knot i is absorbed, in local columns
@@ -190,7 +190,7 @@ impl HermiteSystem {
     /// a time through [`Factor::absorb`]: the reference the fast sweep is
     /// tested against.
     #[cfg(test)]
-    pub fn factor_row_by_row(&self, lambda: f64, y: &[f64]) -> Factor {
+    pub(crate) fn factor_row_by_row(&self, lambda: f64, y: &[f64]) -> Factor {
         let m = self.knots();
         let mut factor = Factor {
             rows: vec![[0.0; BAND + 1]; 2 * m],
@@ -215,7 +215,7 @@ impl HermiteSystem {
     /// tridiagonal system (k-th equation: s_{k−1}/h_{k−1} + 2s_k(1/h_{k−1} +
     /// 1/h_k) + s_{k+1}/h_k = 3(Δ_{k−1}/h_{k−1} + Δ_k/h_k), terms of missing
     /// intervals dropped), solved without pivoting.
-    pub fn interpolating_slopes(&self, f: &[f64]) -> Vec<f64> {
+    pub(crate) fn interpolating_slopes(&self, f: &[f64]) -> Vec<f64> {
         let m = self.knots();
         let mut diag = vec![0.0; m];
         let mut upper = vec![0.0; m];
@@ -280,7 +280,7 @@ impl Factor {
     }
 
     /// The least-squares solution: U x = rhs, in the order (f₀, s₀, f₁, s₁, …).
-    pub fn solve(&self) -> Vec<f64> {
+    pub(crate) fn solve(&self) -> Vec<f64> {
         let n = self.rows.len();
         let mut x: Vec<f64> = self.rows.iter().map(|row| row[BAND]).collect();
         for j in (0..n).rev() {
@@ -297,7 +297,7 @@ impl Factor {
     /// UΣ = U⁻ᵀ, whose upper triangle is diag(1/U_jj), for j ≤ k ≤ j+3
     /// Σ_{j,k} = (δ_{jk}/U_jj − Σ_{l=1..3} U_{j,j+l} Σ_{j+l,k}) / U_jj,
     /// run from the last row upwards.
-    pub fn covariance_band(&self) -> CovarianceBand {
+    pub(crate) fn covariance_band(&self) -> CovarianceBand {
         let n = self.rows.len();
         let mut band = CovarianceBand {
             s: vec![[0.0; BAND]; n],
@@ -331,7 +331,7 @@ impl CovarianceBand {
     }
 
     /// Σ_{fᵢ,fᵢ} at every knot: the leverage of one row of knot i.
-    pub fn value_variances(&self) -> Vec<f64> {
+    pub(crate) fn value_variances(&self) -> Vec<f64> {
         self.s.iter().step_by(2).map(|row| row[0]).collect()
     }
 }

@@ -10,11 +10,11 @@ use plotters::coord::ranged1d::{DefaultFormatting, KeyPointHint, Ranged};
 
 /// A flexibility axis switches to a log scale when its values span more than
 /// this many decades.
-pub const LOG_SPAN_DECADES: f64 = 1.5;
+pub(crate) const LOG_SPAN_DECADES: f64 = 1.5;
 
 /// One axis of a figure: its range, scale and ticks.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Axis {
+pub(crate) struct Axis {
     lo: f64,
     hi: f64,
     log: bool,
@@ -40,7 +40,7 @@ fn decimal(m: i64, e: i32) -> f64 {
 impl Axis {
     /// A linear axis over `[min, max]`, widened by `pad` of the span at each
     /// end, with about `target` ticks at 1, 2 or 5 times a power of ten.
-    pub fn linear(min: f64, max: f64, pad: f64, target: usize) -> Axis {
+    pub(crate) fn linear(min: f64, max: f64, pad: f64, target: usize) -> Axis {
         let (min, max) = if max > min {
             (min, max)
         } else {
@@ -84,7 +84,7 @@ impl Axis {
     /// A log10 axis over `[min, max]` (both positive), widened by `pad` of its
     /// span in decades at each end; ticks at powers of ten, and also at 2 and
     /// 5 times them when the axis spans less than three decades.
-    pub fn log10(min: f64, max: f64, pad: f64) -> Axis {
+    pub(crate) fn log10(min: f64, max: f64, pad: f64) -> Axis {
         let (dmin, dmax) = (libm::log10(min), libm::log10(max));
         let span = (dmax - dmin).max(0.5);
         let (dlo, dhi) = (dmin - pad * span, dmax + pad * span);
@@ -112,7 +112,7 @@ impl Axis {
 
     /// A flexibility axis: log10 when the (positive) values span more than
     /// [`LOG_SPAN_DECADES`], linear otherwise.
-    pub fn for_flexibility(values: &[f64]) -> Axis {
+    pub(crate) fn for_flexibility(values: &[f64]) -> Axis {
         let min = values.iter().copied().fold(f64::INFINITY, f64::min);
         let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
         if min > 0.0 && libm::log10(max / min) > LOG_SPAN_DECADES {
@@ -123,7 +123,7 @@ impl Axis {
     }
 
     /// Rows of `count` categories at 0, 1, …, `count - 1`.
-    pub fn categories(count: usize) -> Axis {
+    pub(crate) fn categories(count: usize) -> Axis {
         Axis {
             lo: -0.5,
             hi: count as f64 - 0.5,
@@ -133,16 +133,17 @@ impl Axis {
         }
     }
 
-    pub fn is_log(&self) -> bool {
+    pub(crate) fn is_log(&self) -> bool {
         self.log
     }
 
-    pub fn ticks(&self) -> &[f64] {
+    #[cfg(test)]
+    pub(crate) fn ticks(&self) -> &[f64] {
         &self.ticks
     }
 
     /// The label of a tick.
-    pub fn label(&self, value: f64) -> String {
+    pub(crate) fn label(&self, value: f64) -> String {
         let magnitude = value.abs();
         if value != 0.0 && !(1e-4..1e7).contains(&magnitude) {
             format!("{value:.1e}")

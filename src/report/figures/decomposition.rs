@@ -21,7 +21,7 @@ use crate::report::{format_df, format_number};
 use crate::results::Results;
 use crate::simulate::summary::SimulatedSetting;
 
-pub const FILE: &str = "bias-variance.svg";
+pub(crate) const FILE: &str = "bias-variance.svg";
 const WIDTH: u32 = 880;
 /// Height of one family's panel (title, plot, axis labels).
 const PANEL: u32 = 340;
@@ -32,11 +32,11 @@ const MARKER: i32 = 5;
 
 /// A quantity drawn for every setting: its words, colour and marker.
 #[derive(Debug, Clone, Copy)]
-pub struct Series {
-    pub words: &'static str,
-    pub colour: RGBColor,
-    pub marker: Marker,
-    pub value: fn(&SimulatedSetting) -> f64,
+pub(crate) struct Series {
+    pub(crate) words: &'static str,
+    pub(crate) colour: RGBColor,
+    pub(crate) marker: Marker,
+    pub(crate) value: fn(&SimulatedSetting) -> f64,
 }
 
 fn expected(s: &SimulatedSetting) -> f64 {
@@ -52,7 +52,7 @@ fn variance(s: &SimulatedSetting) -> f64 {
 }
 
 /// The series, in drawing order (the expected error last, on top).
-pub const SERIES: [Series; 3] = [
+pub(crate) const SERIES: [Series; 3] = [
     Series {
         words: "squared bias",
         colour: palette::BIAS,
@@ -75,14 +75,14 @@ pub const SERIES: [Series; 3] = [
 
 /// One family's settings, ordered by effective df (ties and NaN as
 /// [`crate::report::by_effective_df`] orders them).
-pub struct Panel<'a> {
+pub(crate) struct Panel<'a> {
     /// The family name, or the candidate's label.
-    pub stem: &'a str,
-    pub settings: Vec<&'a SimulatedSetting>,
+    pub(crate) stem: &'a str,
+    pub(crate) settings: Vec<&'a SimulatedSetting>,
 }
 
 /// The panels of the figure: one per stem, in order of first appearance.
-pub fn panels(settings: &[SimulatedSetting]) -> Vec<Panel<'_>> {
+pub(crate) fn panels(settings: &[SimulatedSetting]) -> Vec<Panel<'_>> {
     let mut panels: Vec<Panel<'_>> = Vec::new();
     for s in settings {
         let name = stem(&s.id);
@@ -129,7 +129,7 @@ fn value_axis(panel: &Panel<'_>, noise: f64) -> Axis {
 }
 
 /// The figure, with its caption; `None` unless the results hold a simulation.
-pub fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
+pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
     let Some(sim) = &results.simulation else {
         return Ok(None);
     };

@@ -16,7 +16,7 @@ use super::{
 use crate::report::format_number;
 use crate::results::{PredictionSet, Results};
 
-pub const FILE: &str = "kept-fit.svg";
+pub(crate) const FILE: &str = "kept-fit.svg";
 const SIZE: (u32, u32) = (880, 520);
 
 /// Smallest and largest finite value of some columns.
@@ -48,7 +48,7 @@ fn count(set: &PredictionSet, what: &str) -> String {
 }
 
 /// The figure, with its caption.
-pub fn render(results: &Results) -> Result<Figure, FigureError> {
+pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
     let predictions = &results.final_fit.predictions;
     let styles = family_styles(&results.candidates);
     let colour = style_of(&styles, &results.chosen).colour;

@@ -16,11 +16,11 @@ use crate::report::format_number;
 use crate::results::{CandidateResult, Results};
 use crate::spec::Rule;
 
-pub const FILE: &str = "error-by-flexibility.svg";
+pub(crate) const FILE: &str = "error-by-flexibility.svg";
 const SIZE: (u32, u32) = (880, 580);
 
 /// The figure, with its caption.
-pub fn render(results: &Results) -> Result<Figure, FigureError> {
+pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
     let styles = family_styles(&results.candidates);
     let dfs: Vec<f64> = results.candidates.iter().map(|c| c.effective_df).collect();
     let x_axis = Axis::for_flexibility(&dfs);

@@ -14,15 +14,15 @@ use super::{
 };
 use crate::results::{CandidateResult, Results};
 
-pub const FILE: &str = "fold-scores.svg";
+pub(crate) const FILE: &str = "fold-scores.svg";
 /// How many of the best settings the figure shows.
-pub const LEADERS: usize = 5;
+pub(crate) const LEADERS: usize = 5;
 const WIDTH: u32 = 880;
 const ROW: u32 = 58;
 
 /// The settings shown, best first: the leaders, then the kept setting if it
 /// is not one of them.
-pub fn leaders(results: &Results) -> Vec<&CandidateResult> {
+pub(crate) fn leaders(results: &Results) -> Vec<&CandidateResult> {
     let metric = results.metric;
     let mut order: Vec<&CandidateResult> = results.candidates.iter().collect();
     // Stable: ties keep spec order.
@@ -45,7 +45,7 @@ pub fn leaders(results: &Results) -> Vec<&CandidateResult> {
 }
 
 /// The figure, with its caption.
-pub fn render(results: &Results) -> Result<Figure, FigureError> {
+pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
     let styles = family_styles(&results.candidates);
     let shown = leaders(results);
     let rows = shown.len();

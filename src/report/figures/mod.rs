@@ -6,12 +6,12 @@
 //! Figures are pure: `&Results` → [`Figure`]. The report's one output writer
 //! stores them as `figures/<file>`; the HTML report inlines the same bytes.
 
-pub mod axis;
-pub mod decomposition;
+pub(crate) mod axis;
+pub(crate) mod decomposition;
 mod fit;
 mod flexibility;
 mod folds;
-pub mod palette;
+pub(crate) mod palette;
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -22,24 +22,24 @@ use palette::{INK, MUTED, PAPER};
 
 /// One figure of the report.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Figure {
+pub(crate) struct Figure {
     /// File name inside `figures/`.
-    pub file: String,
+    pub(crate) file: String,
     /// A short heading.
-    pub title: String,
+    pub(crate) title: String,
     /// What the figure shows and how to read it (plain text).
-    pub caption: String,
+    pub(crate) caption: String,
     /// Text alternative for readers who cannot see it.
-    pub alt: String,
+    pub(crate) alt: String,
     /// The SVG document.
-    pub svg: String,
+    pub(crate) svg: String,
     /// Where the reports show it.
-    pub section: Section,
+    pub(crate) section: Section,
 }
 
 /// The part of a report a figure belongs to.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Section {
+pub(crate) enum Section {
     /// The figures every report has, in its Figures section.
     Evidence,
     /// A simulation spec's figures, in its Simulation section.
@@ -49,13 +49,13 @@ pub enum Section {
 /// A figure could not be drawn.
 #[derive(Debug, thiserror::Error)]
 #[error("cannot draw the figure {figure}: {message}")]
-pub struct FigureError {
-    pub figure: &'static str,
-    pub message: String,
+pub(crate) struct FigureError {
+    pub(crate) figure: &'static str,
+    pub(crate) message: String,
 }
 
 /// Every figure of a report, in reading order.
-pub fn render_all(results: &Results) -> Result<Vec<Figure>, FigureError> {
+pub(crate) fn render_all(results: &Results) -> Result<Vec<Figure>, FigureError> {
     let mut figures = vec![flexibility::render(results)?, folds::render(results)?];
     figures.push(fit::render(results)?);
     // Simulation specs add squared bias, variance and noise against
@@ -66,21 +66,21 @@ pub fn render_all(results: &Results) -> Result<Vec<Figure>, FigureError> {
 
 /// Font stack of every text in a figure. Widths are estimated by plotters
 /// from the character count, never measured from an installed font.
-pub const FONT: &str = "Cantarell, Ubuntu, Segoe UI, Noto Sans, DejaVu Sans, sans-serif";
+pub(crate) const FONT: &str = "Cantarell, Ubuntu, Segoe UI, Noto Sans, DejaVu Sans, sans-serif";
 
 /// Text sizes as plotters takes them: the SVG gets size ÷ 1.24 px, and these
 /// give whole or half pixels (12, 12.5, 14) without rounding noise.
-pub const TEXT_SMALL: f64 = 14.88;
-pub const TEXT_BODY: f64 = 15.5;
-pub const TEXT_STRONG: f64 = 17.36;
+pub(crate) const TEXT_SMALL: f64 = 14.88;
+pub(crate) const TEXT_BODY: f64 = 15.5;
+pub(crate) const TEXT_STRONG: f64 = 17.36;
 
 /// The drawing area of a whole figure.
-pub type Root<'a> = DrawingArea<SVGBackend<'a>, Shift>;
+pub(crate) type Root<'a> = DrawingArea<SVGBackend<'a>, Shift>;
 /// What a drawing step returns.
-pub type Drawn = Result<(), DrawingAreaErrorKind<std::io::Error>>;
+pub(crate) type Drawn = Result<(), DrawingAreaErrorKind<std::io::Error>>;
 
 /// Draws a `width` × `height` figure with `draw` and returns the SVG text.
-pub fn draw_svg(
+pub(crate) fn draw_svg(
     figure: &'static str,
     size: (u32, u32),
     draw: impl FnOnce(&Root<'_>) -> Drawn,
@@ -100,7 +100,7 @@ pub fn draw_svg(
 }
 
 /// A text style of the figures.
-pub fn text<'a>(size: f64, colour: RGBColor) -> TextStyle<'a> {
+pub(crate) fn text<'a>(size: f64, colour: RGBColor) -> TextStyle<'a> {
     TextStyle {
         font: (FONT, size).into_font(),
         color: colour.to_backend_color(),
@@ -109,7 +109,7 @@ pub fn text<'a>(size: f64, colour: RGBColor) -> TextStyle<'a> {
 }
 
 /// Draws `label` at pixel `at`, anchored as given.
-pub fn label(
+pub(crate) fn label(
     root: &Root<'_>,
     label: &str,
     at: (i32, i32),
@@ -126,14 +126,14 @@ pub fn label(
 
 /// Estimated width in pixels of `text` at plotters size `size`, matching
 /// plotters' own estimate for SVG (0.7 em per character).
-pub fn text_width(text: &str, size: f64) -> i32 {
+pub(crate) fn text_width(text: &str, size: f64) -> i32 {
     let em = size / 1.24 / 1.24;
     libm::round(em * 0.7 * text.chars().count() as f64) as i32
 }
 
 /// Marker shapes; each family gets its own, so colour is never the only cue.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Marker {
+pub(crate) enum Marker {
     Circle,
     Square,
     Diamond,
@@ -207,7 +207,7 @@ impl Marker {
 
     /// Draws the marker at pixel `at`: filled with `colour`, or hollow (paper
     /// inside, a `colour` outline).
-    pub fn draw(
+    pub(crate) fn draw(
         self,
         root: &Root<'_>,
         at: (i32, i32),
@@ -236,7 +236,7 @@ impl Marker {
 }
 
 /// Splits a polyline into dashes of `on` pixels separated by `off` pixels.
-pub fn dashes(points: &[(i32, i32)], on: f64, off: f64) -> Vec<Vec<(i32, i32)>> {
+pub(crate) fn dashes(points: &[(i32, i32)], on: f64, off: f64) -> Vec<Vec<(i32, i32)>> {
     let mut out = Vec::new();
     let mut current: Vec<(i32, i32)> = Vec::new();
     // Distance left in the current dash (drawing) or gap (not drawing).
@@ -279,7 +279,12 @@ pub fn dashes(points: &[(i32, i32)], on: f64, off: f64) -> Vec<Vec<(i32, i32)>> 
 }
 
 /// Draws a polyline, dashed or solid.
-pub fn polyline(root: &Root<'_>, points: &[(i32, i32)], style: ShapeStyle, dashed: bool) -> Drawn {
+pub(crate) fn polyline(
+    root: &Root<'_>,
+    points: &[(i32, i32)],
+    style: ShapeStyle,
+    dashed: bool,
+) -> Drawn {
     if points.len() < 2 {
         return Ok(());
     }
@@ -295,20 +300,20 @@ pub fn polyline(root: &Root<'_>, points: &[(i32, i32)], style: ShapeStyle, dashe
 
 /// How one family is drawn in every figure.
 #[derive(Debug, Clone, PartialEq)]
-pub struct FamilyStyle {
+pub(crate) struct FamilyStyle {
     /// The first part of the family's ids (family name or label).
-    pub stem: String,
-    pub colour: RGBColor,
-    pub marker: Marker,
+    pub(crate) stem: String,
+    pub(crate) colour: RGBColor,
+    pub(crate) marker: Marker,
 }
 
 /// The stem of a candidate id: `polynomial` of `polynomial/degree=3`.
-pub fn stem(id: &str) -> &str {
+pub(crate) fn stem(id: &str) -> &str {
     id.split('/').next().unwrap_or(id)
 }
 
 /// Styles of the families, in the order they first appear in the results.
-pub fn family_styles(candidates: &[CandidateResult]) -> Vec<FamilyStyle> {
+pub(crate) fn family_styles(candidates: &[CandidateResult]) -> Vec<FamilyStyle> {
     let mut styles: Vec<FamilyStyle> = Vec::new();
     for c in candidates {
         let name = stem(&c.id);
@@ -325,14 +330,14 @@ pub fn family_styles(candidates: &[CandidateResult]) -> Vec<FamilyStyle> {
 }
 
 /// The style of the family `id` belongs to.
-pub fn style_of<'s>(styles: &'s [FamilyStyle], id: &str) -> &'s FamilyStyle {
+pub(crate) fn style_of<'s>(styles: &'s [FamilyStyle], id: &str) -> &'s FamilyStyle {
     let name = stem(id);
     styles.iter().find(|s| s.stem == name).unwrap_or(&styles[0])
 }
 
 /// What a legend entry shows before its words.
 #[derive(Debug, Clone)]
-pub enum Swatch {
+pub(crate) enum Swatch {
     Marker {
         marker: Marker,
         colour: RGBColor,
@@ -353,7 +358,7 @@ pub enum Swatch {
 
 /// Lays out legend entries left to right from `(x, y)`, wrapping before
 /// `right`; returns the y of the last row.
-pub fn legend(
+pub(crate) fn legend(
     root: &Root<'_>,
     entries: &[(Swatch, String)],
     (x0, y0): (i32, i32),
@@ -420,7 +425,7 @@ pub fn legend(
 }
 
 /// The words of a metric on an axis.
-pub fn metric_axis_words(results: &Results) -> String {
+pub(crate) fn metric_axis_words(results: &Results) -> String {
     let words = crate::report::metric_label(results.metric);
     if results.metric.higher_is_better() {
         format!("{words}, higher is better")
@@ -430,7 +435,7 @@ pub fn metric_axis_words(results: &Results) -> String {
 }
 
 /// The words under an effective-df axis.
-pub fn df_axis_words(x_axis: &axis::Axis) -> &'static str {
+pub(crate) fn df_axis_words(x_axis: &axis::Axis) -> &'static str {
     if x_axis.is_log() {
         "effective degrees of freedom (log scale)"
     } else {
@@ -441,7 +446,7 @@ pub fn df_axis_words(x_axis: &axis::Axis) -> &'static str {
 /// Draws the mesh of a chart whose two axes are numbers: house style, 12
 /// x ticks and `y_ticks` y ticks labelled by the axes' own formatting, and
 /// the words of each axis.
-pub fn draw_numeric_mesh(
+pub(crate) fn draw_numeric_mesh(
     chart: &mut ChartContext<'_, SVGBackend<'_>, Cartesian2d<axis::Axis, axis::Axis>>,
     (x_axis, y_axis): (&axis::Axis, &axis::Axis),
     y_ticks: usize,
@@ -461,7 +466,7 @@ pub fn draw_numeric_mesh(
 }
 
 /// A mesh (grid, axes, tick labels, axis words) in the house style.
-pub fn style_mesh<DB: DrawingBackend>(
+pub(crate) fn style_mesh<DB: DrawingBackend>(
     mesh: &mut plotters::chart::MeshStyle<'_, '_, axis::Axis, axis::Axis, DB>,
 ) {
     mesh.bold_line_style(palette::GRID.stroke_width(1))

@@ -13,7 +13,7 @@ use plotters::style::RGBColor;
 
 /// Series colours, in the order families first appear in the results.
 /// Families beyond five reuse a colour with a different marker.
-pub const SERIES: [RGBColor; 5] = [
+pub(crate) const SERIES: [RGBColor; 5] = [
     RGBColor(0x1f, 0x4e, 0x99), // harbour blue
     RGBColor(0xd0, 0x71, 0x1c), // ember orange
     RGBColor(0x9e, 0x1f, 0x3a), // claret
@@ -24,23 +24,23 @@ pub const SERIES: [RGBColor; 5] = [
 /// Squared bias in the bias–variance figure (ember orange, a series colour:
 /// the figure's colours stand for quantities, and its panels name the family).
 /// Claret would sit too close to ink under protanopia (tested below).
-pub const BIAS: RGBColor = SERIES[1];
+pub(crate) const BIAS: RGBColor = SERIES[1];
 /// Variance in the bias–variance figure (lichen teal).
-pub const VARIANCE: RGBColor = SERIES[3];
+pub(crate) const VARIANCE: RGBColor = SERIES[3];
 
 /// Text, axes and the marks of the rule (the kept setting, the threshold).
-pub const INK: RGBColor = RGBColor(0x1d, 0x23, 0x2b);
+pub(crate) const INK: RGBColor = RGBColor(0x1d, 0x23, 0x2b);
 /// Secondary text (axis labels, notes).
-pub const MUTED: RGBColor = RGBColor(0x55, 0x5e, 0x6a);
+pub(crate) const MUTED: RGBColor = RGBColor(0x55, 0x5e, 0x6a);
 /// Grid lines.
-pub const GRID: RGBColor = RGBColor(0xe3, 0xe6, 0xea);
+pub(crate) const GRID: RGBColor = RGBColor(0xe3, 0xe6, 0xea);
 /// Rows shown for context only (training rows in the data figure).
-pub const CONTEXT: RGBColor = RGBColor(0xa4, 0xac, 0xb6);
+pub(crate) const CONTEXT: RGBColor = RGBColor(0xa4, 0xac, 0xb6);
 /// The figure background.
-pub const PAPER: RGBColor = RGBColor(0xff, 0xff, 0xff);
+pub(crate) const PAPER: RGBColor = RGBColor(0xff, 0xff, 0xff);
 
 /// The colour of the `index`-th family.
-pub fn series(index: usize) -> RGBColor {
+pub(crate) fn series(index: usize) -> RGBColor {
     SERIES[index % SERIES.len()]
 }
 
