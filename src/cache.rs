@@ -40,7 +40,7 @@ impl CacheKey {
 /// Computes the key of one task from its explicit `identity` (what is
 /// fitted), whether it is a final fit, and digests of what it reads: its
 /// feature columns and the target (each digested once per run, see
-/// [`digest_values`]) and its training and evaluation rows.
+/// `digests::digest_values`) and its training and evaluation rows.
 pub(crate) fn key(
     identity: &[u8],
     final_fit: bool,
@@ -61,33 +61,6 @@ pub(crate) fn key(
     hasher.update(target_digest);
     hasher.update(rows_digest);
     CacheKey(*hasher.finalize().as_bytes())
-}
-
-/// Digest of a column of values (their little-endian bits, with the length),
-/// fed to the hasher in large blocks: one `update` per value would cost more
-/// than the hashing itself.
-pub(crate) fn digest_values(values: &[f64]) -> [u8; 32] {
-    let mut hasher = blake3::Hasher::new();
-    hasher.update(&(values.len() as u64).to_le_bytes());
-    let mut block = Vec::with_capacity(8 * 4096);
-    for chunk in values.chunks(4096) {
-        block.clear();
-        for value in chunk {
-            block.extend_from_slice(&value.to_bits().to_le_bytes());
-        }
-        hasher.update(&block);
-    }
-    *hasher.finalize().as_bytes()
-}
-
-/// Digest of a list of rows (indices into the table).
-pub(crate) fn digest_rows(rows: &[usize]) -> [u8; 32] {
-    let mut block = Vec::with_capacity(8 * (rows.len() + 1));
-    block.extend_from_slice(&(rows.len() as u64).to_le_bytes());
-    for &row in rows {
-        block.extend_from_slice(&(row as u64).to_le_bytes());
-    }
-    *blake3::hash(&block).as_bytes()
 }
 
 /// What a lookup found.
@@ -177,6 +150,7 @@ impl Cache {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::digests::{digest_rows, digest_values};
 
     const PAYLOAD: &[u8] = b"any bytes \x00\xff";
 

@@ -62,7 +62,7 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
         path: shown.to_path_buf(),
         error,
     })?;
-    let digest = blake3::hash(&bytes).to_hex().to_string();
+    let digest = crate::digests::file_digest(&bytes);
     let table_error = |message: String| DataError::Table {
         path: shown.to_path_buf(),
         message,

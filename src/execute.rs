@@ -11,6 +11,7 @@ use nalgebra::DMatrix;
 use rayon::prelude::*;
 
 use crate::cache::{self, Cache, CacheKey, Lookup};
+use crate::digests;
 use crate::error::FitError;
 use crate::error::{CacheError, FitFailure};
 use crate::models::{Family, SettingFit};
@@ -153,13 +154,13 @@ fn rows_digest(plan: &ExperimentPlan, non_test: &[u8; 32], rows: TaskRows) -> [u
     let mut hasher = blake3::Hasher::new();
     hasher.update(kind);
     hasher.update(non_test);
-    hasher.update(&cache::digest_rows(eval));
+    hasher.update(&digests::digest_rows(eval));
     *hasher.finalize().as_bytes()
 }
 
 /// The cache key of every task, in [`tasks`] order.
 pub(crate) fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> {
-    let non_test = cache::digest_rows(&plan.assignment.train);
+    let non_test = digests::digest_rows(&plan.assignment.train);
     let target = &plan.column_digests[&plan.spec.data().target];
     tasks
         .iter()

@@ -12,6 +12,7 @@ pub(crate) mod cache;
 pub mod cli;
 pub mod commands;
 pub(crate) mod data;
+pub(crate) mod digests;
 pub mod error;
 pub(crate) mod execute;
 pub(crate) mod metrics;

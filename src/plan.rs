@@ -245,7 +245,7 @@ pub(crate) fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     let column_digests = table
         .numeric
         .iter()
-        .map(|(name, values)| (name.clone(), crate::cache::digest_values(values)))
+        .map(|(name, values)| (name.clone(), crate::digests::digest_values(values)))
         .collect();
     Ok(ExperimentPlan {
         column_digests,

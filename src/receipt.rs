@@ -10,9 +10,9 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
+use crate::digests;
 use crate::plan::ExperimentPlan;
 use crate::results::Results;
-use crate::spec::SpecFile;
 
 pub(crate) const SCHEMA: &str = "heldout-receipt/1";
 
@@ -70,123 +70,6 @@ pub(crate) fn path_for(spec: &Path) -> PathBuf {
     spec.with_file_name(format!("{stem}.receipt.toml"))
 }
 
-/// A spec's meaning: the parsed spec with the candidates' defaults spelled
-/// out (each family's own, from the family registry), so that writing them
-/// or not is the same meaning. It is itself a spec that runs and means the
-/// same thing.
-pub(crate) fn canonical_spec(spec: &SpecFile) -> SpecFile {
-    let mut normal = spec.clone();
-    for candidate in &mut normal.candidates {
-        *candidate = candidate.with_defaults();
-    }
-    if let Some(sim) = &mut normal.simulate {
-        // `noise = { normal = sd }` means `noise_sd = sd`.
-        if let (None, Some(crate::spec::NoiseSpec::Normal(sd))) = (sim.noise_sd, sim.noise) {
-            sim.noise_sd = Some(sd);
-            sim.noise = None;
-        }
-    }
-    normal
-}
-
-/// Digest of a spec's meaning.
-pub(crate) fn spec_digest(spec: &SpecFile) -> String {
-    let canonical = serde_json::to_vec(&canonical_spec(spec)).expect("specs always serialise");
-    blake3::hash(&canonical).to_hex().to_string()
-}
-
-/// Digest of the test set and folds, by data-row number.
-pub(crate) fn folds_digest(plan: &ExperimentPlan) -> String {
-    let rows = &plan.table.row_numbers;
-    let mut hasher = blake3::Hasher::new();
-    let put_rows = |hasher: &mut blake3::Hasher, list: &[usize]| {
-        hasher.update(&(list.len() as u64).to_le_bytes());
-        for &r in list {
-            hasher.update(&rows[r].to_le_bytes());
-        }
-    };
-    put_rows(&mut hasher, &plan.assignment.test);
-    for fold in &plan.assignment.folds {
-        hasher.update(&(fold.repeat as u64).to_le_bytes());
-        hasher.update(&(fold.label.len() as u64).to_le_bytes());
-        hasher.update(fold.label.as_bytes());
-        put_rows(&mut hasher, &fold.valid);
-    }
-    hasher.finalize().to_hex().to_string()
-}
-
-/// Digest of one candidate setting's numbers (bits, in a fixed order).
-pub(crate) fn numbers_digest(candidate: &crate::results::CandidateResult) -> String {
-    let mut hasher = blake3::Hasher::new();
-    hasher.update(candidate.id.as_bytes());
-    for value in [
-        candidate.effective_df,
-        candidate.train_score,
-        candidate.cv_score,
-        candidate.cv_se,
-    ]
-    .iter()
-    .chain(&candidate.fold_scores)
-    {
-        hasher.update(&value.to_bits().to_le_bytes());
-    }
-    hasher.finalize().to_hex().to_string()
-}
-
-/// Digests of a simulation's numbers: one per setting (every number of its
-/// decomposition, in field order, then its pointwise curves), then one of the
-/// choices cross-validation made (`cv-choices`).
-pub(crate) fn simulation_digests(output: &crate::simulate::SimulationOutput) -> Vec<NumbersDigest> {
-    let bits = |hasher: &mut blake3::Hasher, values: &[f64]| {
-        hasher.update(&(values.len() as u64).to_le_bytes());
-        for value in values {
-            hasher.update(&value.to_bits().to_le_bytes());
-        }
-    };
-    let mut digests: Vec<NumbersDigest> = output
-        .simulation
-        .iter()
-        .map(|s| {
-            let mut hasher = blake3::Hasher::new();
-            hasher.update(s.id.as_bytes());
-            bits(&mut hasher, &s.numbers());
-            if let Some(curve) = &s.pointwise {
-                bits(&mut hasher, &curve.mean_fit);
-                bits(&mut hasher, &curve.bias_sq);
-                bits(&mut hasher, &curve.variance);
-            }
-            NumbersDigest {
-                id: s.id.clone(),
-                blake3: hasher.finalize().to_hex().to_string(),
-            }
-        })
-        .collect();
-    let cv = &output.simulation_summary.cv;
-    let mut hasher = blake3::Hasher::new();
-    for row in &cv.choices {
-        hasher.update(row.id.as_bytes());
-        hasher.update(&(row.count as u64).to_le_bytes());
-    }
-    for id in &cv.chosen_by_replicate {
-        hasher.update(&(id.len() as u64).to_le_bytes());
-        hasher.update(id.as_bytes());
-    }
-    bits(
-        &mut hasher,
-        &[
-            output.simulation_summary.oracle_expected_mse,
-            cv.mean_excess,
-            cv.mean_excess_se,
-            cv.expected_mse,
-        ],
-    );
-    digests.push(NumbersDigest {
-        id: "cv-choices".to_string(),
-        blake3: hasher.finalize().to_hex().to_string(),
-    });
-    digests
-}
-
 /// Builds the receipt of a run from its plan, results and rendered outputs.
 pub(crate) fn build(
     plan: &ExperimentPlan,
@@ -197,9 +80,9 @@ pub(crate) fn build(
         schema: SCHEMA.to_string(),
         tool: tool_version(),
         experiment: results.experiment.clone(),
-        spec: spec_digest(&plan.spec.spec),
-        templates: crate::report::templates_digest(),
-        folds: folds_digest(plan),
+        spec: digests::spec_digest(&plan.spec.spec),
+        templates: digests::templates_digest(),
+        folds: digests::folds_digest(plan),
         data: vec![FileDigest {
             path: plan.spec.data().table.clone(),
             blake3: plan.table.digest.clone(),
@@ -209,19 +92,24 @@ pub(crate) fn build(
             .iter()
             .map(|c| NumbersDigest {
                 id: c.id.clone(),
-                blake3: numbers_digest(c),
+                blake3: digests::numbers_digest(c),
             })
             .collect(),
         simulation: results
             .simulation
             .as_ref()
-            .map(simulation_digests)
+            .map(|output| {
+                digests::simulation_digests(output)
+                    .into_iter()
+                    .map(|(id, blake3)| NumbersDigest { id, blake3 })
+                    .collect()
+            })
             .unwrap_or_default(),
         outputs: outputs
             .iter()
             .map(|(name, bytes)| FileDigest {
                 path: name.clone(),
-                blake3: blake3::hash(bytes).to_hex().to_string(),
+                blake3: digests::file_digest(bytes),
             })
             .collect(),
     }

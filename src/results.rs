@@ -45,10 +45,10 @@ pub struct Results {
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Inputs {
     pub tool: String,
-    /// blake3 of the spec's meaning (see `receipt::spec_digest`).
+    /// blake3 of the spec's meaning (see `digests::spec_digest`).
     pub spec: String,
     pub templates: String,
-    /// blake3 of the test set and fold assignment (see `receipt::folds_digest`).
+    /// blake3 of the test set and fold assignment (see `digests::folds_digest`).
     pub folds: String,
 }
 
@@ -300,9 +300,9 @@ pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results
         title: spec.experiment.title.clone(),
         inputs: Inputs {
             tool: crate::receipt::tool_version(),
-            spec: crate::receipt::spec_digest(spec),
-            templates: crate::report::templates_digest(),
-            folds: crate::receipt::folds_digest(plan),
+            spec: crate::digests::spec_digest(spec),
+            templates: crate::digests::templates_digest(),
+            folds: crate::digests::folds_digest(plan),
         },
         metric,
         rule: spec.choose.rule,

@@ -80,7 +80,7 @@ fn report_one(spec_path: &Path, args: &ReportArgs) -> anyhow::Result<()> {
         );
     }
     // The page says which templates rendered it: the ones compiled in now.
-    let templates = report::templates_digest();
+    let templates = crate::digests::templates_digest();
     if results.inputs.templates != templates {
         eprintln!(
             "note: the report templates changed since the run (blake3 {} then, {} now); \
@@ -125,7 +125,7 @@ fn report_one(spec_path: &Path, args: &ReportArgs) -> anyhow::Result<()> {
 /// and data as they are now, in words (empty when nothing does).
 fn stale_inputs(loaded: &LoadedSpec, results: &Results) -> Result<Vec<String>, DataError> {
     let mut changed = Vec::new();
-    let spec_now = receipt::spec_digest(&loaded.spec);
+    let spec_now = crate::digests::spec_digest(&loaded.spec);
     if results.inputs.spec != spec_now {
         changed.push(format!(
             "the spec {} changed meaning since the run (blake3 {} in results.json, {} now)",
@@ -141,7 +141,7 @@ fn stale_inputs(loaded: &LoadedSpec, results: &Results) -> Result<Vec<String>, D
             path: file.clone(),
             error,
         })?;
-        let digest = blake3::hash(&bytes).to_hex().to_string();
+        let digest = crate::digests::file_digest(&bytes);
         if results.data.digest != digest {
             changed.push(format!(
                 "the data file {} changed since the run (blake3 {} in results.json, {} now)",

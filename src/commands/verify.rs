@@ -73,7 +73,7 @@ fn verify_one(spec_path: &Path, args: &VerifyArgs, cache: &Cache) -> anyhow::Res
 /// The results.json a run left, if it is the one the receipt describes.
 fn stored_results(dir: &Path, recorded: &Receipt) -> Option<serde_json::Value> {
     let bytes = std::fs::read(dir.join("results.json")).ok()?;
-    let digest = blake3::hash(&bytes).to_hex().to_string();
+    let digest = crate::digests::file_digest(&bytes);
     let matches = recorded
         .outputs
         .iter()

@@ -24,18 +24,6 @@ pub(crate) const TEMPLATES: [(&str, &str); 3] = [
     ("report.css", html::STYLE),
 ];
 
-/// Digest of every template that shapes an output (names and texts).
-pub(crate) fn templates_digest() -> String {
-    let mut hasher = blake3::Hasher::new();
-    for (name, text) in TEMPLATES {
-        for part in [name, text] {
-            hasher.update(&(part.len() as u64).to_le_bytes());
-            hasher.update(part.as_bytes());
-        }
-    }
-    hasher.finalize().to_hex().to_string()
-}
-
 /// Why a report could not be rendered.
 #[derive(Debug, thiserror::Error)]
 pub(crate) enum ReportError {
@@ -118,7 +106,7 @@ pub(crate) fn metric_label(metric: Metric) -> &'static str {
 /// Comments and layout are not kept, so a spec and its YAML twin give the
 /// same report, and editing a comment does not change any output.
 pub(crate) fn spec_as_read(spec: &crate::spec::SpecFile) -> String {
-    let canonical = crate::receipt::canonical_spec(spec);
+    let canonical = crate::spec::canonical(spec);
     toml::to_string(&canonical).unwrap_or_else(|_| {
         serde_json::to_string_pretty(&canonical).expect("specs always serialise") + "\n"
     })

@@ -19,8 +19,8 @@ use rayon::prelude::*;
 
 use super::design::Setup;
 use crate::assess::{self, SettingScore};
-use crate::cache;
 use crate::data::Table;
+use crate::digests;
 use crate::error::SpecError;
 use crate::execute::{self, CachePolicy, CandidateFits, ExecuteError, Shard, Summary};
 use crate::plan::{CandidatePlan, ExperimentPlan, FullFit};
@@ -130,19 +130,12 @@ impl SimulationPlan {
         numeric.insert(self.setup.target.clone(), target.clone());
         let column_digests: BTreeMap<String, [u8; 32]> = numeric
             .iter()
-            .map(|(name, values)| (name.clone(), cache::digest_values(values)))
+            .map(|(name, values)| (name.clone(), digests::digest_values(values)))
             .collect();
-        let mut hasher = blake3::Hasher::new();
-        hasher.update(b"heldout simulated table v1");
-        for (name, digest) in &column_digests {
-            hasher.update(&(name.len() as u64).to_le_bytes());
-            hasher.update(name.as_bytes());
-            hasher.update(digest);
-        }
         let rows = n + m;
         let table = Table {
             path: "[simulate]".into(),
-            digest: hasher.finalize().to_hex().to_string(),
+            digest: digests::simulated_table_digest(&column_digests),
             numeric,
             text: BTreeMap::new(),
             lines: (2..rows as u64 + 2).collect(),

@@ -91,6 +91,25 @@ pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
     })
 }
 
+/// A spec's meaning: the parsed spec with the candidates' defaults spelled
+/// out (each family's own, from the family registry), so that writing them
+/// or not is the same meaning. It is itself a spec that runs and means the
+/// same thing.
+pub(crate) fn canonical(spec: &SpecFile) -> SpecFile {
+    let mut normal = spec.clone();
+    for candidate in &mut normal.candidates {
+        *candidate = candidate.with_defaults();
+    }
+    if let Some(sim) = &mut normal.simulate {
+        // `noise = { normal = sd }` means `noise_sd = sd`.
+        if let (None, Some(NoiseSpec::Normal(sd))) = (sim.noise_sd, sim.noise) {
+            sim.noise_sd = Some(sd);
+            sim.noise = None;
+        }
+    }
+    normal
+}
+
 /// Checks values that the types alone cannot: ranges, names, grids, and the
 /// combinations of keys. Fails on the first problem, naming the key. Returns
 /// the candidates as validated family specs.

@@ -136,7 +136,7 @@ fn canonical_spec_holds_only_keys_each_family_takes_and_runs_the_same() {
     for def in crate::models::registry::FAMILIES {
         let text = default_spec(def);
         let spec = parse(Path::new("s.toml"), &text).unwrap();
-        let canonical = crate::receipt::canonical_spec(&spec);
+        let canonical = crate::spec::canonical(&spec);
         for candidate in &canonical.candidates {
             for (key, _) in &candidate.settings {
                 assert!(def.key(key).is_some(), "{} shows `{key}`", def.name);
@@ -149,7 +149,7 @@ fn canonical_spec_holds_only_keys_each_family_takes_and_runs_the_same() {
         let before = validate(Path::new("s.toml"), &spec).unwrap();
         let after = validate(Path::new("s.toml"), &again).unwrap();
         assert_eq!(before[0].identity(), after[0].identity(), "{}", def.name);
-        assert_eq!(crate::receipt::canonical_spec(&again), canonical);
+        assert_eq!(crate::spec::canonical(&again), canonical);
     }
 }
 
