@@ -4,10 +4,12 @@
 //!
 //! Both reports read one context (`context.rs`), so they say the same things.
 
+pub(crate) mod compare;
 mod context;
 pub mod figures;
 pub mod html;
 pub mod markdown;
+pub(crate) mod scaffold;
 pub mod terminal;
 
 use std::cmp::Ordering;
