@@ -10,15 +10,18 @@
 //! inside what the row count allows. Before anything is written the text is
 //! parsed and validated like any spec, so a scaffold that would not load is
 //! an internal error, never a file.
+//!
+//! This module profiles the table and decides what to propose, as a
+//! [`Scaffold`]; `report::scaffold` writes it out with its comments.
 
 use std::collections::BTreeSet;
-use std::fmt::Write as _;
 use std::path::{Component, Path, PathBuf};
 
 use anyhow::Context;
 
 use crate::cli::NewArgs;
 use crate::error::{DataError, UsageError};
+use crate::report::scaffold::{LeftOut, LeftOutBecause, Scaffold};
 
 /// What one column's cells look like.
 #[derive(Debug)]
@@ -44,13 +47,10 @@ pub(crate) fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
         None => PathBuf::from("."),
     };
     let table_in_spec = relative_path(&spec_dir, &args.table)?;
-    let text = render(&Scaffold {
-        name: args.name.clone().unwrap_or_else(|| name_from(&args.table)),
-        table: table_in_spec,
-        target,
-        profiles: &profiles,
-        rows,
-    })?;
+    let name = args.name.clone().unwrap_or_else(|| name_from(&args.table));
+    let scaffold = propose(&profiles, target, rows, name, table_in_spec)?;
+    let text = crate::report::scaffold::render(&scaffold)
+        .context("internal error: cannot render the scaffold")?;
 
     // The scaffold must load like any spec; if it does not, that is our bug.
     let shown = args
@@ -230,16 +230,6 @@ fn relative_path(from: &Path, table: &Path) -> anyhow::Result<String> {
     Ok(parts.join("/"))
 }
 
-/// A TOML string literal (quoted and escaped).
-fn quoted(text: &str) -> String {
-    toml::Value::String(text.to_string()).to_string()
-}
-
-fn quoted_list(items: &[&str]) -> String {
-    let inner: Vec<String> = items.iter().map(|s| quoted(s)).collect();
-    format!("[{}]", inner.join(", "))
-}
-
 /// Pearson correlation over the rows where both values are present.
 fn correlation(a: &[f64], b: &[f64]) -> f64 {
     let pairs: Vec<(f64, f64)> = a
@@ -278,237 +268,116 @@ fn looks_like_time(name: &str) -> bool {
     .any(|word| name.contains(word))
 }
 
-struct Scaffold<'a> {
+/// What to propose for the table: the target and features, the split, and
+/// grids for each candidate that fit inside what the row count allows.
+fn propose(
+    profiles: &[ColumnProfile],
+    target: usize,
+    rows: usize,
     name: String,
     table: String,
-    target: usize,
-    profiles: &'a [ColumnProfile],
-    rows: usize,
-}
-
-fn render(s: &Scaffold) -> anyhow::Result<String> {
-    let target = &s.profiles[s.target];
-    let key = s
-        .profiles
+) -> anyhow::Result<Scaffold> {
+    let target_profile = &profiles[target];
+    let key = profiles
         .iter()
         .enumerate()
-        .find(|(i, p)| *i != s.target && !p.numeric && p.empty == 0 && p.distinct == s.rows)
+        .find(|(i, p)| *i != target && !p.numeric && p.empty == 0 && p.distinct == rows)
         .map(|(i, _)| i);
     let mut features = Vec::new();
     let mut left_out = Vec::new();
-    for (i, p) in s.profiles.iter().enumerate() {
-        if i == s.target || Some(i) == key {
+    for (i, p) in profiles.iter().enumerate() {
+        if i == target || Some(i) == key {
             continue;
         }
-        if !p.numeric {
-            left_out.push(format!("{} (text)", p.name));
+        let because = if !p.numeric {
+            LeftOutBecause::Text
         } else if looks_like_time(&p.name) {
-            left_out.push(format!("{} (looks like time; add it for a trend)", p.name));
+            LeftOutBecause::Time
         } else if p.distinct < 2 {
-            left_out.push(format!("{} (constant)", p.name));
+            LeftOutBecause::Constant
         } else {
             features.push(i);
-        }
+            continue;
+        };
+        left_out.push(LeftOut {
+            name: p.name.clone(),
+            because,
+        });
     }
     if features.is_empty() {
         return Err(UsageError(format!(
             "no numeric column besides the target \"{}\" varies; a spec needs at least one \
              feature",
-            target.name
+            target_profile.name
         ))
         .into());
     }
     // The one-feature candidates use the feature most correlated with the
     // target (ties: the first in the header).
-    let strength = |i: usize| correlation(&s.profiles[i].values, &target.values).abs();
+    let strength = |i: usize| correlation(&profiles[i].values, &target_profile.values).abs();
     let main = features
         .iter()
         .map(|&i| (strength(i), i))
         .max_by(|a, b| a.0.total_cmp(&b.0).then(b.1.cmp(&a.1)))
         .map_or(features[0], |(_, i)| i);
-    let main_profile = &s.profiles[main];
-    let feature_names: Vec<&str> = features
+    let main_profile = &profiles[main];
+    let empty_cells: usize = features
         .iter()
-        .map(|&i| s.profiles[i].name.as_str())
-        .collect();
-    let empty_rows: usize = features
-        .iter()
-        .chain(std::iter::once(&s.target))
-        .map(|&i| s.profiles[i].empty)
+        .chain(std::iter::once(&target))
+        .map(|&i| profiles[i].empty)
         .sum();
 
-    let holdout = if s.rows >= 50 { 0.2 } else { 0.0 };
-    let fit_rows = s.rows - (holdout * s.rows as f64).round() as usize;
+    let holdout = if rows >= 50 { 0.2 } else { 0.0 };
+    let fit_rows = rows - (holdout * rows as f64).round() as usize;
     let folds = if fit_rows >= 100 { 10 } else { 5 }.min(fit_rows.max(2));
     let fold_train_rows = fit_rows - fit_rows.div_ceil(folds);
 
-    let mut out = String::new();
-    let w = &mut out;
-    writeln!(
-        w,
-        "# A first spec for {}, written by `heldout new`.",
-        s.table
-    )?;
-    writeln!(
-        w,
-        "# Edit it freely: every choice below is a starting point. Keys are described"
-    )?;
-    writeln!(
-        w,
-        "# in docs/spec.md; `heldout plan` shows what a run would do."
-    )?;
-    writeln!(w)?;
-    writeln!(w, "[experiment]")?;
-    writeln!(w, "name = {}", quoted(&s.name))?;
-    writeln!(
-        w,
-        "title = {}",
-        quoted(&format!(
-            "How flexible should the model of {} be?",
-            target.name
-        ))
-    )?;
-    writeln!(
-        w,
-        "# Any integer; it fixes the locked test set and the folds. This one comes from"
-    )?;
-    writeln!(w, "# the header, so two scaffolds of one table agree.")?;
-    let header: Vec<&str> = s.profiles.iter().map(|p| p.name.as_str()).collect();
+    // The seed comes from the header, so two scaffolds of one table agree.
+    let header: Vec<&str> = profiles.iter().map(|p| p.name.as_str()).collect();
     let digest = blake3::hash(header.join(",").as_bytes());
     let seed = u32::from_le_bytes(digest.as_bytes()[..4].try_into()?);
-    writeln!(w, "seed = {seed}")?;
-    writeln!(w)?;
-    writeln!(w, "[data]")?;
-    writeln!(
-        w,
-        "table = {}  # relative to this spec file",
-        quoted(&s.table)
-    )?;
-    writeln!(w, "target = {}", quoted(&target.name))?;
-    writeln!(w, "features = {}", quoted_list(&feature_names))?;
-    if let Some(key) = key {
-        writeln!(
-            w,
-            "# Every row has its own value here, so it identifies rows: folds then do not"
-        )?;
-        writeln!(w, "# depend on the order of the rows in the file.")?;
-        writeln!(w, "key = {}", quoted(&s.profiles[key].name))?;
-    }
-    if !left_out.is_empty() {
-        writeln!(w, "# Not used as features: {}.", left_out.join(", "))?;
-    }
-    if let Some(p) = s.profiles.iter().find(|p| looks_like_time(&p.name)) {
-        writeln!(
-            w,
-            "# If rows follow each other in time, validate on later rows only: uncomment"
-        )?;
-        writeln!(
-            w,
-            "# the next line and set method = \"ordered\" below (see docs/splits.md)."
-        )?;
-        writeln!(w, "# order = {}", quoted(&p.name))?;
-    }
-    if empty_rows > 0 {
-        writeln!(
-            w,
-            "# {empty_rows} empty cell(s) in the target and features: those rows are dropped"
-        )?;
-        writeln!(
-            w,
-            "# and counted. Use \"error\" to stop at the first one instead."
-        )?;
-        writeln!(w, "missing = \"drop-rows\"")?;
-    }
-    writeln!(w)?;
-    writeln!(w, "[split]")?;
-    if holdout > 0.0 {
-        writeln!(
-            w,
-            "# A fifth of the rows is locked away and scored once, after the choice."
-        )?;
-    } else {
-        writeln!(
-            w,
-            "# Fewer than 50 rows: no locked test set, every row goes to cross-validation."
-        )?;
-    }
-    writeln!(w, "holdout = {holdout}")?;
-    writeln!(w, "method = \"kfold\"")?;
-    writeln!(w, "folds = {folds}")?;
-    writeln!(w, "repeats = 1")?;
-    writeln!(w)?;
 
-    writeln!(w, "# The straight-line baseline on every feature.")?;
-    writeln!(w, "[[candidate]]")?;
-    writeln!(w, "family = \"linear\"")?;
-    writeln!(w)?;
-    let degrees: Vec<usize> = (1..=6)
+    // Each grid keeps the settings a fold's training rows can fit, and is
+    // proposed only when enough of them are left to compare.
+    let mut polynomial_degrees: Vec<usize> = (1..=6)
         .filter(|&d| d < main_profile.distinct && d + 1 < fold_train_rows)
         .collect();
-    if degrees.len() >= 2 {
-        writeln!(
-            w,
-            "# Polynomials in {} (the feature most correlated with the target).",
-            main_profile.name
-        )?;
-        writeln!(w, "[[candidate]]")?;
-        writeln!(w, "family = \"polynomial\"")?;
-        writeln!(w, "features = {}", quoted_list(&[&main_profile.name]))?;
-        writeln!(w, "degree = {degrees:?}")?;
-        writeln!(w)?;
+    if polynomial_degrees.len() < 2 {
+        polynomial_degrees.clear();
     }
-    let dfs: Vec<f64> = [2.5, 3.0, 4.0, 6.0, 9.0, 14.0]
+    let mut spline_dfs: Vec<f64> = [2.5, 3.0, 4.0, 6.0, 9.0, 14.0]
         .into_iter()
         .filter(|&df| df < main_profile.distinct as f64 && df < fold_train_rows as f64)
         .collect();
-    if dfs.len() >= 3 {
-        writeln!(
-            w,
-            "# A smoothing spline in {}, from nearly straight (df 2.5) to wiggly.",
-            main_profile.name
-        )?;
-        writeln!(w, "[[candidate]]")?;
-        writeln!(w, "family = \"smoothing-spline\"")?;
-        writeln!(w, "features = {}", quoted_list(&[&main_profile.name]))?;
-        let shown: Vec<String> = dfs.iter().map(|df| df.to_string()).collect();
-        writeln!(w, "df = [{}]", shown.join(", "))?;
-        writeln!(w)?;
+    if spline_dfs.len() < 3 {
+        spline_dfs.clear();
     }
-    let ks: Vec<usize> = [1, 2, 5, 10, 20, 50, 100]
+    let neighbours_k: Vec<usize> = [1, 2, 5, 10, 20, 50, 100]
         .into_iter()
         .filter(|&k| k <= fold_train_rows / 2)
         .collect();
-    if !ks.is_empty() {
-        writeln!(
-            w,
-            "# Nearest neighbours on every feature: small k follows the data closely."
-        )?;
-        writeln!(w, "[[candidate]]")?;
-        writeln!(w, "family = \"nearest-neighbors\"")?;
-        writeln!(w, "k = {ks:?}")?;
-        writeln!(w)?;
-    }
-    if features.len() >= 2 {
-        writeln!(
-            w,
-            "# Ridge on every feature (standardised): a larger penalty shrinks harder."
-        )?;
-        writeln!(w, "[[candidate]]")?;
-        writeln!(w, "family = \"ridge\"")?;
-        writeln!(w, "penalty = [0.01, 0.1, 1.0, 10.0, 100.0, 1000.0]")?;
-        writeln!(w)?;
-    }
-    writeln!(w, "[choose]")?;
-    writeln!(w, "metric = \"mse\"")?;
-    writeln!(
-        w,
-        "# The least flexible setting within one standard error of the best."
-    )?;
-    writeln!(w, "rule = \"one-se\"")?;
-    writeln!(w)?;
-    writeln!(w, "[report]")?;
-    writeln!(w, "formats = [\"markdown\", \"html\"]")?;
-    Ok(out)
+
+    Ok(Scaffold {
+        name,
+        table,
+        target: target_profile.name.clone(),
+        seed,
+        features: features.iter().map(|&i| profiles[i].name.clone()).collect(),
+        key: key.map(|i| profiles[i].name.clone()),
+        left_out,
+        order: profiles
+            .iter()
+            .find(|p| looks_like_time(&p.name))
+            .map(|p| p.name.clone()),
+        empty_cells,
+        holdout,
+        folds,
+        main_feature: main_profile.name.clone(),
+        polynomial_degrees,
+        spline_dfs,
+        neighbours_k,
+        ridge: features.len() >= 2,
+    })
 }
 
 #[cfg(test)]
@@ -531,6 +400,60 @@ mod tests {
         let r = correlation(&[1.0, 2.0, 3.0, 4.0], &[1.0, 3.0, 2.0, 4.0]);
         assert!((r - 0.8).abs() < 1e-15, "{r}");
         assert_eq!(correlation(&[1.0, 1.0], &[2.0, 3.0]), 0.0);
+    }
+
+    fn column(name: &str, values: &[f64]) -> ColumnProfile {
+        let mut distinct: Vec<u64> = values.iter().map(|v| v.to_bits()).collect();
+        distinct.sort_unstable();
+        distinct.dedup();
+        ColumnProfile {
+            name: name.to_string(),
+            numeric: true,
+            empty: 0,
+            distinct: distinct.len(),
+            values: values.to_vec(),
+        }
+    }
+
+    #[test]
+    fn proposals_follow_the_columns_and_the_row_count() {
+        let rows = 12;
+        let x: Vec<f64> = (0..rows).map(f64::from).collect();
+        let y: Vec<f64> = x.iter().map(|v| v * v).collect();
+        let mut id = column("id", &x);
+        id.numeric = false;
+        let profiles = [
+            id,
+            column("week", &x),
+            column("flat", &[1.0; 12]),
+            column("x", &x),
+            column("y", &y),
+        ];
+        let s = propose(&profiles, 4, 12, "n".into(), "t.csv".into()).unwrap();
+        assert_eq!(s.features, ["x"]);
+        assert_eq!(s.key.as_deref(), Some("id"));
+        let left_out: Vec<(&str, LeftOutBecause)> = s
+            .left_out
+            .iter()
+            .map(|c| (c.name.as_str(), c.because))
+            .collect();
+        assert_eq!(
+            left_out,
+            [
+                ("week", LeftOutBecause::Time),
+                ("flat", LeftOutBecause::Constant)
+            ]
+        );
+        assert_eq!(s.order.as_deref(), Some("week"));
+        // 12 rows: no test set and 5 folds, so the smallest fit sees 9 rows.
+        assert_eq!((s.holdout, s.folds), (0.0, 5));
+        assert_eq!(s.polynomial_degrees, [1, 2, 3, 4, 5, 6]);
+        assert_eq!(s.spline_dfs, [2.5, 3.0, 4.0, 6.0]);
+        assert_eq!(s.neighbours_k, [1, 2]);
+        assert!(!s.ridge);
+
+        let only_target = [column("flat", &[1.0; 12]), column("y", &y)];
+        assert!(propose(&only_target, 1, 12, "n".into(), "t.csv".into()).is_err());
     }
 
     #[test]

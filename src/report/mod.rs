@@ -1,13 +1,19 @@
-//! Reports rendered from results: Markdown and HTML through minijinja
-//! templates, SVG figures, and a short table for the terminal. Renderers are
-//! pure (`&Results` → text); `output` owns the writing.
+//! Everything heldout renders for people: the Markdown and HTML reports
+//! through minijinja templates, SVG figures and a short table for the
+//! terminal (all from `&Results`), and the texts of `heldout compare`
+//! (`compare.rs`) and `heldout new` (`scaffold.rs`). Renderers are pure
+//! (data → text); `output` and the commands own the writing.
 //!
 //! Both reports read one context (`context.rs`), so they say the same things.
+//! Only the report templates shape a run's outputs, so only they are in the
+//! receipt's template digest.
 
+pub(crate) mod compare;
 mod context;
 pub(crate) mod figures;
 pub(crate) mod html;
 pub(crate) mod markdown;
+pub(crate) mod scaffold;
 pub(crate) mod terminal;
 
 use std::cmp::Ordering;
