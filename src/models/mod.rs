@@ -2,8 +2,10 @@
 //! settings on one training fold ([`Family::fit_path`]): path-aware fitting
 //! shares the expensive part (one QR, one neighbour search) across settings.
 //!
-//! Adding a family: a new file here declaring its `registry::FamilyDef`,
-//! one line in `registry::FAMILIES`, and its tests (see `DEVELOPERS.md`).
+//! Adding a family: a new file here declaring its `registry::FamilyDef`
+//! (name, keys, defaults, feature count, checks) beside its mathematics and
+//! tests, then its `mod` line and one entry in `FAMILIES` below. Nothing
+//! else names a family (see `docs/architecture.md`, "The family registry").
 
 mod double_double;
 #[cfg(test)]
@@ -29,7 +31,21 @@ use std::fmt;
 use nalgebra::DMatrix;
 
 use crate::error::FitError;
-use crate::models::registry::{SettingProblem, Settings};
+use crate::models::registry::{FamilyDef, SettingProblem, Settings};
+
+/// Every family a spec may name, in the order the schema and the docs list
+/// them. The order also fixes the order of keys in the canonical spec (first
+/// appearance wins), so appending a family never changes an existing digest.
+pub(crate) static FAMILIES: &[&FamilyDef] = &[
+    &linear::FAMILY,
+    &polynomial::FAMILY,
+    &nearest_neighbors::FAMILY,
+    &smoothing_spline::FAMILY,
+    &spline::FAMILY,
+    &thin_plate::FAMILY,
+    &ridge::FAMILY,
+    &lasso::FAMILY,
+];
 
 /// The value of a family's tuning parameter.
 #[derive(Debug, Clone, Copy, PartialEq)]

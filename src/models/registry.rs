@@ -1,30 +1,15 @@
 //! The family registry: everything the rest of the program needs to know
 //! about a model family, declared once beside its mathematics (a
 //! [`FamilyDef`] constant in `models/<family>.rs`) and collected in
-//! [`FAMILIES`]. Spec parsing, validation, planning, the canonical spec behind
+//! [`FAMILIES`] (in `models/mod.rs`, beside the module declarations, so a new
+//! family touches its own file and that list only). Spec parsing, validation, planning, the canonical spec behind
 //! receipts, cache identities and the JSON Schema read this list; none of them
 //! names a family. See `docs/architecture.md` ("The family registry").
 
 use std::sync::{Arc, LazyLock};
 
-use super::{
-    lasso, linear, nearest_neighbors, polynomial, ridge, smoothing_spline, spline, thin_plate,
-    Family,
-};
-
-/// Every family a spec may name, in the order the schema and the docs list
-/// them. The order also fixes the order of keys in the canonical spec (first
-/// appearance wins), so appending a family never changes an existing digest.
-pub(crate) static FAMILIES: &[&FamilyDef] = &[
-    &linear::FAMILY,
-    &polynomial::FAMILY,
-    &nearest_neighbors::FAMILY,
-    &smoothing_spline::FAMILY,
-    &spline::FAMILY,
-    &thin_plate::FAMILY,
-    &ridge::FAMILY,
-    &lasso::FAMILY,
-];
+use super::Family;
+pub(crate) use super::FAMILIES;
 
 /// `intercept`: shared by the least-squares families.
 pub(crate) const INTERCEPT: KeyDef = KeyDef {
@@ -386,6 +371,7 @@ pub(crate) fn check_real_grid(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::models::{lasso, polynomial, ridge};
 
     #[test]
     fn family_names_are_unique_and_spelled_for_specs() {
