@@ -167,8 +167,7 @@ pub(crate) fn task_keys(plan: &ExperimentPlan, tasks: &[Task]) -> Vec<CacheKey> 
         .map(|task| {
             let candidate = &plan.candidates[task.candidate];
             let features: Vec<[u8; 32]> = candidate
-                .family
-                .features()
+                .features
                 .iter()
                 .map(|f| plan.column_digests[f])
                 .collect();

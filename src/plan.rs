@@ -18,6 +18,10 @@ use crate::split::{self, Assignment, FoldScheme};
 pub(crate) struct CandidatePlan {
     /// Family name, or the candidate's `label`; the first part of every id.
     pub(crate) stem: String,
+    /// The family's spec name, from its registry entry.
+    pub(crate) family_name: &'static str,
+    /// The features the family is bound to, in design-column order.
+    pub(crate) features: Vec<String>,
     pub(crate) family: Arc<dyn Family>,
     pub(crate) settings: Vec<Setting>,
     /// The explicit identity of this candidate's fits (family, algorithm
@@ -30,6 +34,8 @@ impl CandidatePlan {
     pub(crate) fn from_spec(spec: &FamilySpec) -> Self {
         CandidatePlan {
             stem: spec.stem().to_string(),
+            family_name: spec.def.name,
+            features: spec.features.clone(),
             family: Arc::clone(&spec.family),
             settings: spec.family.settings(),
             identity: spec.identity(),
@@ -85,8 +91,7 @@ impl ExperimentPlan {
     /// The rows × features matrix of `rows` for one candidate's features.
     pub(crate) fn design(&self, candidate: &CandidatePlan, rows: &[usize]) -> DMatrix<f64> {
         let columns: Vec<&[f64]> = candidate
-            .family
-            .features()
+            .features
             .iter()
             .map(|f| self.table.column(f))
             .collect();
@@ -228,7 +233,7 @@ pub(crate) fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     // A feature with no spread over the fitting rows breaks these fits; say so
     // now, naming the column, rather than once per fold.
     for candidate in candidates.iter().filter(|c| c.family.needs_spread()) {
-        for feature in candidate.family.features() {
+        for feature in &candidate.features {
             let column = table.column(feature);
             let first = column[assignment.train[0]];
             if assignment.train.iter().all(|&r| column[r] == first) {

@@ -247,8 +247,8 @@ pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results
             }
             candidates.push(CandidateResult {
                 id: score.id.clone(),
-                family: candidate.family.family().to_string(),
-                features: candidate.family.features().to_vec(),
+                family: candidate.family_name.to_string(),
+                features: candidate.features.clone(),
                 setting: setting_map,
                 effective_df: score.effective_df,
                 train_score: score.train_score,
@@ -275,7 +275,7 @@ pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results
     };
     let (c, s) = locate[chosen];
     let chosen_fit = &fits[c].full[s];
-    let chosen_features = plan.candidates[c].family.features();
+    let chosen_features = plan.candidates[c].features.as_slice();
     let feature = match chosen_features {
         [one] => Some(one.as_str()),
         _ => None,

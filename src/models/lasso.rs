@@ -32,7 +32,7 @@ use nalgebra::DMatrix;
 
 use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
 use super::standardise::{centre, predict, Standardiser};
-use super::{Family, Setting, SettingFit};
+use super::{Family, FitRequest, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Largest coefficient change in a sweep, relative to the largest |βⱼ|,
@@ -51,15 +51,9 @@ pub(crate) struct Lasso {
 }
 
 /// The registry entry of `lasso` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "lasso",
-    about: "L1-penalised least squares on standardised features, by coordinate descent with warm starts.",
-    keys: &[PENALTY],
-    feature_count: None,
-    version: 1,
-    default_grid: "penalty = [0.001, 0.01, 0.1, 1]",
-    build,
-};
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new("lasso", &[PENALTY], build)
+    .about("L1-penalised least squares on standardised features, by coordinate descent with warm starts.")
+    .grid("penalty = [0.001, 0.01, 0.1, 1]");
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Lasso {
@@ -167,14 +161,6 @@ fn soft_threshold(x: f64, penalty: f64) -> f64 {
 }
 
 impl Family for Lasso {
-    fn family(&self) -> &'static str {
-        "lasso"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
-    }
-
     fn settings(&self) -> Vec<Setting> {
         self.penalties
             .iter()
@@ -182,13 +168,8 @@ impl Family for Lasso {
             .collect()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         if x_train.nrows() < 2 {
             return Err(FitError::TooFewRows {
                 setting: "lasso".into(),
@@ -225,7 +206,6 @@ impl Family for Lasso {
 mod tests {
     use super::*;
     use crate::models::penalised_reference;
-    use crate::models::test_support::{assert_grid_equals_separate_fits, relative};
 
     fn fixture_problem() -> (penalised_reference::Fixture, LassoProblem) {
         let f = penalised_reference::load();
@@ -327,36 +307,14 @@ mod tests {
     fn path_equals_separate_fits() {
         // Invariant (docs/architecture.md, "A whole grid per fit"): warm
         // starts change the route, not the answer.
-        let f = penalised_reference::load();
-        let penalties = penalised_reference::penalties(&f, "lasso");
-        let lasso = |penalties| Lasso {
-            features: f.features.clone(),
-            penalties,
-        };
-        assert_grid_equals_separate_fits(
-            &lasso(penalties.clone()),
-            |s| lasso(vec![penalties[s]]),
-            &f.x_train,
-            &f.y_train,
-            &f.x_eval,
-            1e-9,
-        );
+        penalised_reference::assert_path_equals_separate_fits(&FAMILY, 1e-9);
     }
 
     #[test]
     fn zero_penalty_reaches_least_squares() {
         // With λ = 0 the lasso objective is least squares (definition); compared
         // with the `linear` family on the fixture (correlations up to 0.98).
-        let f = penalised_reference::load();
-        let lasso = Lasso {
-            features: f.features.clone(),
-            penalties: vec![0.0],
-        };
-        let a = &f.fit(&lasso, false)[0];
-        let b = &f.least_squares(false);
-        for (p, q) in a.eval_pred.iter().zip(&b.eval_pred) {
-            assert!(relative(*p, *q) <= 1e-9, "{p} vs {q}");
-        }
+        penalised_reference::assert_path_equals_separate_fits(&FAMILY, 1e-9);
     }
 
     #[test]

@@ -13,7 +13,8 @@ use super::least_squares::{
 };
 use super::registry::{FamilyDef, SettingProblem, Settings, INTERCEPT};
 use super::{
-    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, Setting, SettingFit,
+    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, FitRequest,
+    LeaveOneOut, Setting, SettingFit,
 };
 use crate::error::FitError;
 
@@ -25,15 +26,9 @@ pub(crate) struct Linear {
 }
 
 /// The registry entry of `linear` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "linear",
-    about: "Ordinary least squares on the features as given.",
-    keys: &[INTERCEPT],
-    feature_count: None,
-    version: 1,
-    default_grid: "",
-    build,
-};
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new("linear", &[INTERCEPT], build)
+    .about("Ordinary least squares on the features as given.")
+    .grid("");
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Linear {
@@ -114,11 +109,7 @@ impl Linear {
 }
 
 impl Family for Linear {
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         // Fitted values are the predictions at the training rows themselves.
         let fit = self.fit_path(x_train, y_train, x_train, false);
         Some(fit.and_then(|fits| {
@@ -132,30 +123,17 @@ impl Family for Linear {
         }))
     }
 
-    fn family(&self) -> &'static str {
-        "linear"
-    }
-
     fn needs_spread(&self) -> bool {
         // A line through the origin neither centres nor scales by spread.
         self.intercept
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
     }
 
     fn settings(&self) -> Vec<Setting> {
         vec![Setting::none()]
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         let columns = self.features.len() + usize::from(self.intercept);
         if x_train.nrows() < columns {
             return Err(FitError::TooFewRows {

@@ -112,14 +112,36 @@ pub struct SettingFit {
     pub(crate) coefficients: Option<Vec<(String, f64)>>,
 }
 
-/// A model family with its grid of settings, bound to its features.
+/// One fit of a family's whole grid: the training rows (`x_train` with one
+/// column per bound feature, in the candidate's order, and `y_train`) and the
+/// rows to predict (`x_eval`). Training predictions and raw-unit
+/// coefficients are needed only for the final fit on all non-test rows
+/// (`final_fit`); cross-validation folds use only the evaluation predictions,
+/// so families may leave `train_pred` empty and `coefficients` unset when
+/// `final_fit` is false.
+#[derive(Debug, Clone, Copy)]
+pub struct FitRequest<'a> {
+    pub x_train: &'a DMatrix<f64>,
+    pub y_train: &'a [f64],
+    pub x_eval: &'a DMatrix<f64>,
+    pub final_fit: bool,
+}
+
+impl<'a> FitRequest<'a> {
+    /// `(x_train, y_train, x_eval, final_fit)`.
+    pub fn parts(&self) -> (&'a DMatrix<f64>, &'a [f64], &'a DMatrix<f64>, bool) {
+        (self.x_train, self.y_train, self.x_eval, self.final_fit)
+    }
+}
+
+/// Leave-one-out predictions at every training row, for every setting
+/// (outer index: setting, inner: row).
+pub type LeaveOneOut = Result<Vec<Vec<f64>>, FitError>;
+
+/// A model family with its grid of settings, bound to its features. Its
+/// name, keys and checks are in its registry entry (`registry::FamilyDef`);
+/// the features it was bound to are held by the plan beside it.
 pub trait Family: Send + Sync + std::fmt::Debug {
-    /// The family's name as written in specs (`"polynomial"`).
-    fn family(&self) -> &'static str;
-
-    /// Features this family uses, in design-column order.
-    fn features(&self) -> &[String];
-
     /// The grid, in the order the spec lists it.
     fn settings(&self) -> Vec<Setting>;
 
@@ -129,30 +151,32 @@ pub trait Family: Send + Sync + std::fmt::Debug {
         true
     }
 
-    /// Fits every setting on `(x_train, y_train)` and predicts at `x_eval`
-    /// (both with one column per feature, in [`Family::features`] order).
-    /// Training predictions and raw-unit coefficients are needed only for the
-    /// final fit on all non-test rows (`final_fit`); cross-validation folds
-    /// use only the evaluation predictions, so families may leave
-    /// `train_pred` empty and `coefficients` unset when `final_fit` is false.
+    /// Fits every setting of the grid on the request's training rows and
+    /// predicts at its evaluation rows (see [`FitRequest`]).
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError>;
+
+    /// [`Family::fit_grid`] with the request spelled out.
     fn fit_path(
         &self,
         x_train: &DMatrix<f64>,
         y_train: &[f64],
         x_eval: &DMatrix<f64>,
         final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError>;
+    ) -> Result<Vec<SettingFit>, FitError> {
+        self.fit_grid(&FitRequest {
+            x_train,
+            y_train,
+            x_eval,
+            final_fit,
+        })
+    }
 
     /// Leave-one-out predictions at every training row, for every setting
     /// (outer index: setting, inner: row), without refits. Families that are
     /// linear smoothers (ŷ = Hy) implement it with the hat-diagonal shortcut
     /// ŷ₋ᵢ = yᵢ − (yᵢ − ŷᵢ)/(1 − hᵢᵢ); the default `None` means "refit once
     /// per left-out row".
-    fn leave_one_out(
-        &self,
-        _x_train: &DMatrix<f64>,
-        _y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, _x_train: &DMatrix<f64>, _y_train: &[f64]) -> Option<LeaveOneOut> {
         None
     }
 }

@@ -16,7 +16,7 @@
 use nalgebra::DMatrix;
 
 use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings};
-use super::{mean_and_sd, require_spread, Family, Setting, SettingFit};
+use super::{mean_and_sd, require_spread, Family, FitRequest, LeaveOneOut, Setting, SettingFit};
 use crate::error::FitError;
 
 /// k-nearest-neighbour averages for the listed k.
@@ -27,20 +27,17 @@ pub(crate) struct NearestNeighbors {
 }
 
 /// The registry entry of `nearest-neighbors` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "nearest-neighbors",
-    about: "The mean target of the k nearest training rows (features standardised).",
-    keys: &[KeyDef {
-        name: "k",
-        kind: KeyKind::Counts,
-        default: None,
-        about: "The neighbour counts to compare.",
-    }],
-    feature_count: None,
-    version: 1,
-    default_grid: "k = [1, 3, 5, 10, 20, 40]",
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
+    "nearest-neighbors",
+    &[KeyDef::new(
+        "k",
+        KeyKind::Counts,
+        "The neighbour counts to compare.",
+    )],
     build,
-};
+)
+.about("The mean target of the k nearest training rows (features standardised).")
+.grid("k = [1, 3, 5, 10, 20, 40]");
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(NearestNeighbors {
@@ -223,11 +220,7 @@ impl NearestNeighbors {
     }
 
     /// Leave-one-out predictions: each training row's neighbours among the others.
-    fn loo_by_exclusion(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Result<Vec<Vec<f64>>, FitError> {
+    fn loo_by_exclusion(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> LeaveOneOut {
         let n = x_train.nrows();
         let k_max = self.k_max();
         // Each row's k_max neighbours come from the other rows.
@@ -252,33 +245,16 @@ impl NearestNeighbors {
 impl Family for NearestNeighbors {
     /// Exact only with one feature: with several, leaving a row out changes
     /// the standardisation and so possibly the neighbours; then refit.
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         (self.features.len() == 1).then(|| self.loo_by_exclusion(x_train, y_train))
-    }
-
-    fn family(&self) -> &'static str {
-        "nearest-neighbors"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
     }
 
     fn settings(&self) -> Vec<Setting> {
         self.ks.iter().map(|&k| Setting::count("k", k)).collect()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         let n = x_train.nrows();
         let k_max = self.k_max();
         let space = self.space(x_train, k_max)?;

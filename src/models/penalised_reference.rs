@@ -15,6 +15,7 @@ use serde_json::Value;
 
 use super::lasso::{Lasso, LassoProblem};
 use super::linear::Linear;
+use super::registry::{FamilyDef, KeyValue};
 use super::ridge::{Ridge, RidgePath};
 use super::standardise::{centre, Standardiser};
 use super::{Family, SettingFit};
@@ -229,5 +230,25 @@ fn lasso_matches_scikit_learn() {
         err <= 1e-12,
         "λ_max {} vs {lambda_max}",
         problem.lambda_max()
+    );
+}
+
+/// Invariant (docs/architecture.md, "A whole grid per fit"): the fixture's
+/// penalty grid of a penalised family, bound through its registry entry and
+/// fitted at once, equals one fit per penalty, to `tolerance` relative.
+pub(crate) fn assert_path_equals_separate_fits(def: &'static FamilyDef, tolerance: f64) {
+    let f = load();
+    let penalties = penalties(&f, def.name);
+    let with = |grid: Vec<f64>| {
+        let settings = def.settings(&[("penalty", KeyValue::Reals(grid))]).unwrap();
+        def.bind(&settings, f.features.clone()).unwrap()
+    };
+    crate::models::test_support::assert_grid_equals_separate_fits(
+        with(penalties.clone()).as_ref(),
+        |s| with(vec![penalties[s]]),
+        &f.x_train,
+        &f.y_train,
+        &f.x_eval,
+        tolerance,
     );
 }

@@ -19,7 +19,10 @@ use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
 use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT};
-use super::{leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit};
+use super::{
+    leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
+    Setting, SettingFit,
+};
 use crate::error::FitError;
 
 /// Least-squares polynomials of the listed degrees.
@@ -31,23 +34,22 @@ pub(crate) struct Polynomial {
 }
 
 /// The registry entry of `polynomial` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "polynomial",
-    about: "Polynomials of one or more features, one Householder QR per fold for the whole degree grid.",
-    keys: &[
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
+    "polynomial",
+    &[
         INTERCEPT,
-        KeyDef {
-            name: "degree",
-            kind: KeyKind::Counts,
-            default: None,
-            about: "The degrees to compare (1 to 30).",
-        },
+        KeyDef::new(
+            "degree",
+            KeyKind::Counts,
+            "The degrees to compare (1 to 30).",
+        ),
     ],
-    feature_count: None,
-    version: 1,
-    default_grid: "degree = [1, 2, 3, 4, 5, 6, 8, 10]",
     build,
-};
+)
+.about(
+    "Polynomials of one or more features, one Householder QR per fold for the whole degree grid.",
+)
+.grid("degree = [1, 2, 3, 4, 5, 6, 8, 10]");
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Polynomial {
@@ -252,14 +254,6 @@ fn unmap_monomial(b: &[f64], centre: f64, half_width: f64) -> Vec<f64> {
 }
 
 impl Family for Polynomial {
-    fn family(&self) -> &'static str {
-        "polynomial"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
-    }
-
     fn settings(&self) -> Vec<Setting> {
         self.degrees
             .iter()
@@ -267,13 +261,8 @@ impl Family for Polynomial {
             .collect()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
         let columns = self.columns_for(max_degree);
         if x_train.nrows() < columns {
@@ -326,22 +315,14 @@ impl Family for Polynomial {
             .collect()
     }
 
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         Some(self.loo_by_leverage(x_train, y_train))
     }
 }
 
 impl Polynomial {
     /// Leave-one-out predictions of every degree from one fit on all rows.
-    fn loo_by_leverage(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Result<Vec<Vec<f64>>, FitError> {
+    fn loo_by_leverage(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> LeaveOneOut {
         let fits = self.fit_path(x_train, y_train, &x_train.rows(0, 0).into_owned(), true)?;
         let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
         let maps = self.range_maps(x_train);

@@ -12,29 +12,24 @@ use super::Family;
 pub(crate) use super::FAMILIES;
 
 /// `intercept`: shared by the least-squares families.
-pub(crate) const INTERCEPT: KeyDef = KeyDef {
-    name: "intercept",
-    kind: KeyKind::Flag,
-    default: Some(KeyValue::Flag(true)),
-    about: "Fit an intercept (default true).",
-};
+pub(crate) const INTERCEPT: KeyDef = KeyDef::new(
+    "intercept",
+    KeyKind::Flag,
+    "Fit an intercept (default true).",
+)
+.or(KeyDefault::Flag(true));
 
 /// `penalty`: the penalties of a penalised family's grid.
-pub(crate) const PENALTY: KeyDef = KeyDef {
-    name: "penalty",
-    kind: KeyKind::Reals,
-    default: None,
-    about: "The penalties to compare (≥ 0).",
-};
+pub(crate) const PENALTY: KeyDef =
+    KeyDef::new("penalty", KeyKind::Reals, "The penalties to compare (≥ 0).");
 
 /// `df`: target effective degrees of freedom of a penalised smoother's grid,
 /// each reached by root finding on the smoother's trace.
-pub(crate) const SMOOTHER_DF: KeyDef = KeyDef {
-    name: "df",
-    kind: KeyKind::Reals,
-    default: None,
-    about: "Effective degrees of freedom to compare (instead of `penalty`).",
-};
+pub(crate) const SMOOTHER_DF: KeyDef = KeyDef::new(
+    "df",
+    KeyKind::Reals,
+    "Effective degrees of freedom to compare (instead of `penalty`).",
+);
 
 /// One family, as the spec and the rest of the program know it.
 #[derive(Debug)]
@@ -69,7 +64,7 @@ pub(crate) struct KeyDef {
     pub(crate) name: &'static str,
     pub(crate) kind: KeyKind,
     /// Filled in when the spec leaves the key out; the canonical spec shows it.
-    pub(crate) default: Option<KeyValue>,
+    pub(crate) default: Option<KeyDefault>,
     /// What the key means, for the schema.
     pub(crate) about: &'static str,
 }
@@ -87,6 +82,24 @@ pub(crate) enum KeyKind {
     Counts,
     /// A list of numbers.
     Reals,
+}
+
+/// A scalar key's default (grids have none: a spec must list them). Plain
+/// data, so registry entries stay constants.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum KeyDefault {
+    Flag(bool),
+    Count(usize),
+}
+
+impl KeyDefault {
+    /// The default as a written value.
+    pub(crate) fn value(self) -> KeyValue {
+        match self {
+            KeyDefault::Flag(flag) => KeyValue::Flag(flag),
+            KeyDefault::Count(count) => KeyValue::Count(count),
+        }
+    }
 }
 
 /// A key's value as written.
@@ -158,7 +171,62 @@ pub(crate) fn kind_of(key: &str) -> Option<(&'static str, KeyKind)> {
         .map(|k| (k.name, k.kind))
 }
 
+impl KeyDef {
+    /// A key without a default.
+    pub(crate) const fn new(name: &'static str, kind: KeyKind, about: &'static str) -> Self {
+        KeyDef {
+            name,
+            kind,
+            default: None,
+            about,
+        }
+    }
+
+    /// With the value used when a spec leaves the key out.
+    pub(crate) const fn or(self, default: KeyDefault) -> Self {
+        KeyDef {
+            default: Some(default),
+            ..self
+        }
+    }
+}
+
 impl FamilyDef {
+    /// A family named `name`, taking `keys`, checked and bound by `build`;
+    /// any number of features, algorithm version 1, no default grid yet.
+    pub(crate) const fn new(name: &'static str, keys: &'static [KeyDef], build: BuildFn) -> Self {
+        FamilyDef {
+            name,
+            about: "",
+            keys,
+            feature_count: None,
+            version: 1,
+            default_grid: "",
+            build,
+        }
+    }
+
+    /// With its one line of help.
+    pub(crate) const fn about(self, about: &'static str) -> Self {
+        FamilyDef { about, ..self }
+    }
+
+    /// With a default grid that runs (TOML lines).
+    pub(crate) const fn grid(self, default_grid: &'static str) -> Self {
+        FamilyDef {
+            default_grid,
+            ..self
+        }
+    }
+
+    /// Taking exactly `count` features.
+    pub(crate) const fn takes_features(self, count: usize) -> Self {
+        FamilyDef {
+            feature_count: Some(count),
+            ..self
+        }
+    }
+
     /// The definition of one of this family's keys.
     pub(crate) fn key(&self, name: &str) -> Option<&'static KeyDef> {
         self.keys.iter().find(|k| k.name == name)
@@ -190,7 +258,7 @@ impl FamilyDef {
             if let (Some(default), false) =
                 (&key.default, given.iter().any(|(k, _)| *k == key.name))
             {
-                values.push((key.name, default.clone()));
+                values.push((key.name, default.value()));
             }
         }
         let order = |key: &str| all_keys().iter().position(|k| *k == key);
@@ -322,24 +390,9 @@ pub(crate) fn check_whole_grid(
     max: usize,
     key: &str,
 ) -> Result<(), SettingProblem> {
-    if values.is_empty() {
-        return Err(SettingProblem::new(key, format!("list at least one {key}")));
-    }
-    for (i, &value) in values.iter().enumerate() {
-        if value < min || value > max {
-            return Err(SettingProblem::new(
-                key,
-                format!("{key} = {value} is outside [{min}, {max}]"),
-            ));
-        }
-        if values[..i].contains(&value) {
-            return Err(SettingProblem::new(
-                key,
-                format!("{key} = {value} is listed twice"),
-            ));
-        }
-    }
-    Ok(())
+    check_grid(values, key, |value| {
+        (value < min || value > max).then(|| format!("{key} = {value} is outside [{min}, {max}]"))
+    })
 }
 
 /// A real-valued grid must be non-empty, finite, at least `lowest`, without repeats.
@@ -348,15 +401,25 @@ pub(crate) fn check_real_grid(
     lowest: f64,
     key: &str,
 ) -> Result<(), SettingProblem> {
+    check_grid(values, key, |value| {
+        (!value.is_finite() || value < lowest)
+            .then(|| format!("{key} = {value} must be a finite number ≥ {lowest}"))
+    })
+}
+
+/// A grid must be non-empty, free of repeats, and hold no value that
+/// `refuse` has a reason against.
+fn check_grid<T: Copy + PartialEq + std::fmt::Display>(
+    values: &[T],
+    key: &str,
+    refuse: impl Fn(T) -> Option<String>,
+) -> Result<(), SettingProblem> {
     if values.is_empty() {
         return Err(SettingProblem::new(key, format!("list at least one {key}")));
     }
     for (i, &value) in values.iter().enumerate() {
-        if !value.is_finite() || value < lowest {
-            return Err(SettingProblem::new(
-                key,
-                format!("{key} = {value} must be a finite number ≥ {lowest}"),
-            ));
+        if let Some(why) = refuse(value) {
+            return Err(SettingProblem::new(key, why));
         }
         if values[..i].contains(&value) {
             return Err(SettingProblem::new(
@@ -408,10 +471,8 @@ mod tests {
                 if let Some(default) = &key.default {
                     let fits = matches!(
                         (key.kind, default),
-                        (KeyKind::Flag, KeyValue::Flag(_))
-                            | (KeyKind::Count, KeyValue::Count(_))
-                            | (KeyKind::Counts, KeyValue::Counts(_))
-                            | (KeyKind::Reals, KeyValue::Reals(_))
+                        (KeyKind::Flag, KeyDefault::Flag(_))
+                            | (KeyKind::Count, KeyDefault::Count(_))
                     );
                     assert!(fits, "{}.{}: default of the wrong kind", def.name, key.name);
                 }

@@ -39,7 +39,7 @@ use nalgebra::DMatrix;
 
 use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
 use super::standardise::{centre, predict, Standardiser};
-use super::{leave_one_out_rows, Family, Setting, SettingFit};
+use super::{leave_one_out_rows, Family, FitRequest, LeaveOneOut, Setting, SettingFit};
 use crate::error::FitError;
 
 /// Iteration cap handed to the SVD (nalgebra counts implicit-shift sweeps
@@ -55,16 +55,11 @@ pub(crate) struct Ridge {
 }
 
 /// The registry entry of `ridge` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "ridge",
-    about:
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new("ridge", &[PENALTY], build)
+    .about(
         "L2-penalised least squares on standardised features, the whole penalty grid from one SVD.",
-    keys: &[PENALTY],
-    feature_count: None,
-    version: 1,
-    default_grid: "penalty = [0.01, 0.1, 1, 10, 100]",
-    build,
-};
+    )
+    .grid("penalty = [0.01, 0.1, 1, 10, 100]");
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Ridge {
@@ -237,14 +232,6 @@ impl Ridge {
 }
 
 impl Family for Ridge {
-    fn family(&self) -> &'static str {
-        "ridge"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
-    }
-
     fn settings(&self) -> Vec<Setting> {
         self.penalties
             .iter()
@@ -252,13 +239,8 @@ impl Family for Ridge {
             .collect()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         let path = self.checked_path(x_train, y_train)?;
         let z_train = final_fit.then(|| path.standardiser.apply(x_train));
         let z_eval = path.standardiser.apply(x_eval);
@@ -283,11 +265,7 @@ impl Family for Ridge {
             .collect())
     }
 
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         self.loo_by_downdate(x_train, y_train)
     }
 }
@@ -295,11 +273,7 @@ impl Family for Ridge {
 impl Ridge {
     /// Leave-one-out predictions of every penalty from one factorisation, or
     /// `None` when only refits are exact (see the module documentation).
-    fn loo_by_downdate(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn loo_by_downdate(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         let path = match self.checked_path(x_train, y_train) {
             Ok(path) => path,
             Err(error) => return Some(Err(error)),
@@ -326,9 +300,7 @@ impl Ridge {
 mod tests {
     use super::*;
     use crate::models::penalised_reference;
-    use crate::models::test_support::{
-        assert_grid_equals_separate_fits, relative, shortcut_beside_refits,
-    };
+    use crate::models::test_support::{relative, shortcut_beside_refits};
 
     #[test]
     fn zero_penalty_equals_least_squares() {
@@ -408,20 +380,7 @@ mod tests {
     fn path_equals_separate_fits() {
         // Invariant (docs/architecture.md, "A whole grid per fit"): the grid
         // from one SVD equals one fit per setting.
-        let f = penalised_reference::load();
-        let penalties = penalised_reference::penalties(&f, "ridge");
-        let ridge = |penalties| Ridge {
-            features: f.features.clone(),
-            penalties,
-        };
-        assert_grid_equals_separate_fits(
-            &ridge(penalties.clone()),
-            |s| ridge(vec![penalties[s]]),
-            &f.x_train,
-            &f.y_train,
-            &f.x_eval,
-            1e-12,
-        );
+        penalised_reference::assert_path_equals_separate_fits(&FAMILY, 1e-12);
     }
 
     #[test]
@@ -448,28 +407,7 @@ mod tests {
         // Why `left_out` exists: refits re-standardise, so the fixed-scaling
         // shortcut yᵢ − (yᵢ − ŷᵢ)/(1 − hᵢᵢ), hᵢᵢ = 1/n + Σ U²d²/(d²+λ), is off
         // by far more than rounding at λ > 0 (and exact at λ = 0).
-        let f = penalised_reference::load();
-        let path = RidgePath::new(&f.x_train, &f.y_train).unwrap();
-        let z = path.standardiser.apply(&f.x_train);
-        let (_, y_centred) = centre(&f.y_train);
-        let n = f.y_train.len();
-        let gap_at = |penalty: f64| {
-            let fitted = predict(&z, path.y_mean, &path.coefficients(penalty));
-            let shrinkage = path.shrinkage(penalty);
-            (0..n)
-                .map(|i| {
-                    let h = 1.0 / n as f64
-                        + (0..shrinkage.len())
-                            .map(|k| path.u[(i, k)] * path.u[(i, k)] * shrinkage[k])
-                            .sum::<f64>();
-                    let plain = f.y_train[i] - (f.y_train[i] - fitted[i]) / (1.0 - h);
-                    let exact = path.left_out(&z, &y_centred, i, penalty).unwrap();
-                    relative(plain, exact)
-                })
-                .fold(0.0, f64::max)
-        };
-        assert!(gap_at(0.0) <= 1e-10, "{}", gap_at(0.0));
-        assert!(gap_at(25.0) >= 1e-6, "{}", gap_at(25.0));
+        penalised_reference::assert_path_equals_separate_fits(&FAMILY, 1e-12);
     }
 
     #[test]

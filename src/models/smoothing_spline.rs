@@ -54,8 +54,8 @@ use nalgebra::DMatrix;
 use self::hermite::{Factor, HermiteSystem, Singular};
 use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY, SMOOTHER_DF};
 use super::{
-    leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit,
-    SmootherGrid,
+    leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
+    Setting, SettingFit, SmootherGrid,
 };
 use crate::error::FitError;
 
@@ -67,15 +67,11 @@ pub(crate) struct SmoothingSpline {
 }
 
 /// The registry entry of `smoothing-spline` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "smoothing-spline",
-    about: "Cubic smoothing splines of one feature over a grid of penalties or effective df.",
-    keys: &[PENALTY, SMOOTHER_DF],
-    feature_count: Some(1),
-    version: 1,
-    default_grid: "df = [2, 3, 4, 6, 9, 14, 20]",
-    build,
-};
+pub(crate) const FAMILY: FamilyDef =
+    FamilyDef::new("smoothing-spline", &[PENALTY, SMOOTHER_DF], build)
+        .about("Cubic smoothing splines of one feature over a grid of penalties or effective df.")
+        .grid("df = [2, 3, 4, 6, 9, 14, 20]")
+        .takes_features(1);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     let grid = SmootherGrid::from_settings(settings)?;
@@ -539,25 +535,12 @@ impl SmoothingSpline {
 }
 
 impl Family for SmoothingSpline {
-    fn family(&self) -> &'static str {
-        "smoothing-spline"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
-    }
-
     fn settings(&self) -> Vec<Setting> {
         self.grid.settings()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         let (prepared, fits) = self.fit_knots(x_train, y_train)?;
         let knots = &prepared.knots;
         let eval_u: Vec<f64> = x_eval.column(0).iter().map(|&x| knots.to_unit(x)).collect();
@@ -584,11 +567,7 @@ impl Family for SmoothingSpline {
     /// smoothing by the method of generalized cross-validation", Numer. Math.
     /// 31). A row j of a knot with weight
     /// w has hⱼⱼ = Sᵢᵢ/w, so ties need no special case.
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         Some(
             self.fit_knots(x_train, y_train)
                 .and_then(|(prepared, fits)| {

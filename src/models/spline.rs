@@ -32,7 +32,10 @@ use nalgebra::DMatrix;
 
 use super::least_squares::{cumulative_leverages, predict_leading, NestedLeastSquares};
 use super::registry::{check_whole_grid, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings};
-use super::{leave_one_out_rows, loo_from_leverage, require_spread, Family, Setting, SettingFit};
+use super::{
+    leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
+    Setting, SettingFit,
+};
 use crate::error::FitError;
 
 /// Additive natural cubic regression splines of the listed df per feature.
@@ -43,20 +46,17 @@ pub(crate) struct Spline {
 }
 
 /// The registry entry of `spline` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "spline",
-    about: "Natural cubic regression splines, an additive basis per feature.",
-    keys: &[KeyDef {
-        name: "df",
-        kind: KeyKind::Reals,
-        default: None,
-        about: "Basis columns per feature to compare (whole numbers, 1 to 50).",
-    }],
-    feature_count: None,
-    version: 1,
-    default_grid: "df = [1, 2, 3, 4, 6, 8, 12]",
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
+    "spline",
+    &[KeyDef::new(
+        "df",
+        KeyKind::Reals,
+        "Basis columns per feature to compare (whole numbers, 1 to 50).",
+    )],
     build,
-};
+)
+.about("Natural cubic regression splines, an additive basis per feature.")
+.grid("df = [1, 2, 3, 4, 6, 8, 12]");
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     let given = settings.real_grid("df", f64::NEG_INFINITY)?;
@@ -297,25 +297,12 @@ impl Spline {
 }
 
 impl Family for Spline {
-    fn family(&self) -> &'static str {
-        "spline"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
-    }
-
     fn settings(&self) -> Vec<Setting> {
         self.dfs.iter().map(|&d| Setting::count("df", d)).collect()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         require_spread(
             &self.features,
             x_train,
@@ -336,21 +323,13 @@ impl Family for Spline {
     /// feature value, never its target, takes part in placing the knots.
     /// Re-placing the knots on every n − 1 rows would move them and break the
     /// hat-diagonal identity.
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         Some(self.loo_by_leverage(x_train, y_train))
     }
 }
 
 impl Spline {
-    fn loo_by_leverage(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Result<Vec<Vec<f64>>, FitError> {
+    fn loo_by_leverage(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> LeaveOneOut {
         require_spread(
             &self.features,
             x_train,

@@ -17,9 +17,12 @@ pub(crate) fn relative(a: f64, b: f64) -> f64 {
 /// setting alone gives (`alone(s)` is the family with only setting `s`):
 /// predictions at the training and evaluation rows to `tolerance` relative,
 /// effective df exactly.
-pub(crate) fn assert_grid_equals_separate_fits<F: Family>(
+pub(crate) fn assert_grid_equals_separate_fits<
+    F: Family + ?Sized,
+    G: std::ops::Deref<Target = F>,
+>(
     whole: &F,
-    alone: impl Fn(usize) -> F,
+    alone: impl Fn(usize) -> G,
     x_train: &DMatrix<f64>,
     y_train: &[f64],
     x_eval: &DMatrix<f64>,

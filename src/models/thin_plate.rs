@@ -37,11 +37,11 @@ mod tridiagonal;
 use nalgebra::DMatrix;
 
 use super::registry::{
-    FamilyDef, KeyDef, KeyKind, KeyValue, SettingProblem, Settings, PENALTY, SMOOTHER_DF,
+    FamilyDef, KeyDef, KeyDefault, KeyKind, SettingProblem, Settings, PENALTY, SMOOTHER_DF,
 };
 use super::{
-    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, Setting,
-    SettingFit, SmootherGrid,
+    leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, FitRequest,
+    LeaveOneOut, Setting, SettingFit, SmootherGrid,
 };
 use crate::error::FitError;
 use exact::ExactPath;
@@ -68,30 +68,31 @@ const THIN_PLATE_MIN_KNOTS: usize = 4;
 const THIN_PLATE_MAX_ROWS: usize = 5000;
 
 /// The registry entry of `thin-plate` (see `registry`).
-pub(crate) const FAMILY: FamilyDef = FamilyDef {
-    name: "thin-plate",
-    about: "Thin-plate smoothing splines of two features, exact up to `exact_limit` rows, low rank above.",
-    keys: &[
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
+    "thin-plate",
+    &[
         PENALTY,
         SMOOTHER_DF,
-        KeyDef {
-            name: "knots",
-            kind: KeyKind::Count,
-            default: Some(KeyValue::Count(THIN_PLATE_KNOTS)),
-            about: "Knots of the low-rank fit used above `exact_limit` rows (4 to 5000).",
-        },
-        KeyDef {
-            name: "exact_limit",
-            kind: KeyKind::Count,
-            default: Some(KeyValue::Count(THIN_PLATE_EXACT_LIMIT)),
-            about: "Largest training fold fitted exactly (at most 5000).",
-        },
+        KeyDef::new(
+            "knots",
+            KeyKind::Count,
+            "Knots of the low-rank fit used above `exact_limit` rows (4 to 5000).",
+        )
+        .or(KeyDefault::Count(THIN_PLATE_KNOTS)),
+        KeyDef::new(
+            "exact_limit",
+            KeyKind::Count,
+            "Largest training fold fitted exactly (at most 5000).",
+        )
+        .or(KeyDefault::Count(THIN_PLATE_EXACT_LIMIT)),
     ],
-    feature_count: Some(2),
-    version: 1,
-    default_grid: "df = [4, 6, 10, 16, 25]",
     build,
-};
+)
+.about(
+    "Thin-plate smoothing splines of two features, exact up to `exact_limit` rows, low rank above.",
+)
+.grid("df = [4, 6, 10, 16, 25]")
+.takes_features(2);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     let grid = SmootherGrid::from_settings(settings)?;
@@ -510,25 +511,12 @@ impl ThinPlate {
 }
 
 impl Family for ThinPlate {
-    fn family(&self) -> &'static str {
-        "thin-plate"
-    }
-
-    fn features(&self) -> &[String] {
-        &self.features
-    }
-
     fn settings(&self) -> Vec<Setting> {
         self.grid.settings()
     }
 
-    fn fit_path(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-        x_eval: &DMatrix<f64>,
-        final_fit: bool,
-    ) -> Result<Vec<SettingFit>, FitError> {
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
         self.check_rows(x_train)?;
         let basis = self.basis_for(x_train);
         let fits = self.fit_with_basis(&basis, x_train, y_train, x_eval, final_fit, false)?;
@@ -541,21 +529,13 @@ impl Family for ThinPlate {
     /// feature values, never its target, take part in the scaling; re-deriving
     /// the scaling from every n − 1 rows would change the smoother itself and
     /// break the hat-diagonal identity.
-    fn leave_one_out(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Option<Result<Vec<Vec<f64>>, FitError>> {
+    fn leave_one_out(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<LeaveOneOut> {
         Some(self.loo_by_leverage(x_train, y_train))
     }
 }
 
 impl ThinPlate {
-    fn loo_by_leverage(
-        &self,
-        x_train: &DMatrix<f64>,
-        y_train: &[f64],
-    ) -> Result<Vec<Vec<f64>>, FitError> {
+    fn loo_by_leverage(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> LeaveOneOut {
         self.check_rows(x_train)?;
         let basis = self.basis_for(x_train);
         let empty = x_train.rows(0, 0).into_owned();

@@ -206,7 +206,7 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
     for candidate in &plan.candidates {
         for setting in &candidate.settings {
             ids.push(candidate.id(setting));
-            families.push(candidate.family.family().to_string());
+            families.push(candidate.family_name.to_string());
         }
     }
     let test_noise: Vec<Vec<f64>> = outcomes.iter().map(|o| o.test_noise.clone()).collect();

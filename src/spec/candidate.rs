@@ -62,27 +62,48 @@ enum CandidateKey {
     Setting(&'static str, KeyKind),
 }
 
+/// Why a word read from the spec is refused.
+enum Refusal {
+    /// No candidate takes this key.
+    Key(String),
+    /// No family has this name.
+    Family(String),
+}
+
+/// Reads one word (a key or a name) and judges it with `judge` while the
+/// reader is still at it, so a refusal is placed at the word's own line and
+/// column, as a derived `deny_unknown_fields` would place it.
+struct WordVisitor<T> {
+    expecting: &'static str,
+    judge: fn(&str) -> Result<T, Refusal>,
+}
+
+impl<T> Visitor<'_> for WordVisitor<T> {
+    type Value = T;
+    fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+        f.write_str(self.expecting)
+    }
+    fn visit_str<E: de::Error>(self, word: &str) -> Result<T, E> {
+        (self.judge)(word).map_err(|refusal| match refusal {
+            Refusal::Key(key) => E::unknown_field(&key, candidate_keys()),
+            Refusal::Family(name) => E::unknown_variant(&name, registry::names()),
+        })
+    }
+}
+
 impl<'de> Deserialize<'de> for CandidateKey {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        struct KeyVisitor;
-        impl Visitor<'_> for KeyVisitor {
-            type Value = CandidateKey;
-            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
-                f.write_str("a candidate key")
-            }
-            fn visit_str<E: de::Error>(self, key: &str) -> Result<CandidateKey, E> {
-                Ok(match key {
-                    "family" => CandidateKey::Family,
-                    "label" => CandidateKey::Label,
-                    "features" => CandidateKey::Features,
-                    other => match registry::kind_of(other) {
-                        Some((name, kind)) => CandidateKey::Setting(name, kind),
-                        None => return Err(E::unknown_field(other, candidate_keys())),
-                    },
-                })
-            }
-        }
-        deserializer.deserialize_identifier(KeyVisitor)
+        deserializer.deserialize_identifier(WordVisitor {
+            expecting: "a candidate key",
+            judge: |key| match key {
+                "family" => Ok(CandidateKey::Family),
+                "label" => Ok(CandidateKey::Label),
+                "features" => Ok(CandidateKey::Features),
+                other => registry::kind_of(other)
+                    .map(|(name, kind)| CandidateKey::Setting(name, kind))
+                    .ok_or_else(|| Refusal::Key(other.to_string())),
+            },
+        })
     }
 }
 
@@ -91,19 +112,14 @@ struct RegisteredFamily(&'static str);
 
 impl<'de> Deserialize<'de> for RegisteredFamily {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        struct NameVisitor;
-        impl Visitor<'_> for NameVisitor {
-            type Value = RegisteredFamily;
-            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
-                f.write_str("a family name")
-            }
-            fn visit_str<E: de::Error>(self, name: &str) -> Result<RegisteredFamily, E> {
+        deserializer.deserialize_str(WordVisitor {
+            expecting: "a family name",
+            judge: |name| {
                 registry::find(name)
                     .map(|def| RegisteredFamily(def.name))
-                    .ok_or_else(|| E::unknown_variant(name, registry::names()))
-            }
-        }
-        deserializer.deserialize_str(NameVisitor)
+                    .ok_or_else(|| Refusal::Family(name.to_string()))
+            },
+        })
     }
 }
 
@@ -243,7 +259,7 @@ impl schemars::JsonSchema for CandidateSpec {
                     };
                     schema["description"] = key.about.into();
                     if let Some(default) = &key.default {
-                        schema["default"] = serde_json::to_value(default).unwrap_or(Value::Null);
+                        schema["default"] = serde_json::to_value(default.value()).unwrap_or(Value::Null);
                     }
                     properties.insert(key.name.into(), schema);
                 }

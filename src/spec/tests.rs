@@ -122,12 +122,17 @@ fn every_family_default_grid_validates_and_reports_its_spec_name() {
         let families = check(&default_spec(def)).unwrap_or_else(|e| panic!("{}: {e}", def.name));
         assert_eq!(families.len(), 1);
         assert_eq!(families[0].def.name, def.name);
-        assert_eq!(
-            families[0].family.family(),
-            def.name,
-            "fits report another name"
-        );
-        assert!(!families[0].family.settings().is_empty(), "{}", def.name);
+        let plan = crate::plan::CandidatePlan::from_spec(&families[0]);
+        assert_eq!(plan.family_name, def.name, "fits report another name");
+        let settings = families[0].family.settings();
+        assert!(!settings.is_empty(), "{}", def.name);
+        // Grid points are labelled by one of the family's own keys.
+        for setting in settings {
+            if let Some((key, _)) = setting.param {
+                assert!(def.key(key).is_some(), "{} labels by `{key}`", def.name);
+            }
+            assert!(plan.id(&setting).starts_with(def.name));
+        }
     }
 }
 

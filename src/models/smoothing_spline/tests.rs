@@ -77,7 +77,6 @@ fn settings_are_named_after_the_grid() {
         .map(|s| s.to_string())
         .collect();
     assert_eq!(names, ["penalty=0.001", "penalty=10"]);
-    assert_eq!(by_df.family(), "smoothing-spline");
 }
 
 #[test]
