@@ -78,7 +78,7 @@ fn evaluate_spec(
 }
 
 /// Fits (through the cache policy) and renders a planned spec, or only fills
-/// the cache for a shard (then returns `Ok(None)` with the summary).
+/// the cache for a shard (then returns `Ok(Err(summary))`).
 fn evaluate(
     plan: ExperimentPlan,
     spec_path: &Path,
@@ -91,24 +91,41 @@ fn evaluate(
         .enumerate()
         .filter(|(n, _)| shard.is_none_or(|s| s.owns(*n)))
         .count();
-    let done = AtomicUsize::new(0);
-    let progress = || {
-        let finished = done.fetch_add(1, Ordering::Relaxed) + 1;
-        if show_progress {
-            eprint!("\rfitting: {finished}/{total} tasks");
+    let (fits, summary) = with_progress("fitting", total, "tasks", show_progress, |done| {
+        Ok(execute::run(&plan, policy, shard, done)?)
+    })?;
+    let Some(fits) = fits else {
+        return Ok(Err(summary));
+    };
+    Ok(Ok(finish(plan, spec_path, &fits, summary, None)?))
+}
+
+/// Runs `work`, which calls `done` once per finished unit of `total`,
+/// drawing `{what}: N/total {units}` on stderr when `show` is set; then
+/// warns about every cache entry that had to be recomputed. Shared by
+/// tables and simulations.
+fn with_progress<T>(
+    what: &str,
+    total: usize,
+    units: &str,
+    show: bool,
+    work: impl FnOnce(&(dyn Fn() + Sync)) -> anyhow::Result<(T, Summary)>,
+) -> anyhow::Result<(T, Summary)> {
+    let finished = AtomicUsize::new(0);
+    let done = || {
+        let count = finished.fetch_add(1, Ordering::Relaxed) + 1;
+        if show {
+            eprint!("\r{what}: {count}/{total} {units}");
         }
     };
-    let (fits, summary) = execute::run(&plan, policy, shard, &progress)?;
-    if show_progress {
+    let (value, summary) = work(&done)?;
+    if show {
         eprintln!();
     }
     for why in &summary.corrupt {
         eprintln!("warning: cache entry ignored and recomputed: {why}");
     }
-    let Some(fits) = fits else {
-        return Ok(Err(summary));
-    };
-    Ok(Ok(finish(plan, spec_path, &fits, summary, None)?))
+    Ok((value, summary))
 }
 
 fn finish(

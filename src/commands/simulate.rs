@@ -3,7 +3,6 @@
 use std::fmt::Write as _;
 use std::io::Write as _;
 use std::path::Path;
-use std::sync::atomic::{AtomicUsize, Ordering};
 
 use anyhow::Context;
 
@@ -35,21 +34,10 @@ pub(super) fn evaluate(
     let total = (0..plan.setup.replicates)
         .filter(|&r| shard.is_none_or(|s| s.owns(r)))
         .count();
-    let done = AtomicUsize::new(0);
-    let progress = || {
-        let finished = done.fetch_add(1, Ordering::Relaxed) + 1;
-        if show_progress {
-            eprint!("\rsimulating: {finished}/{total} replicates");
-        }
-    };
     let (outcomes, summary) =
-        simulate::run::run(&plan, policy, shard, &progress).map_err(to_anyhow)?;
-    if show_progress {
-        eprintln!();
-    }
-    for why in &summary.corrupt {
-        eprintln!("warning: cache entry ignored and recomputed: {why}");
-    }
+        super::with_progress("simulating", total, "replicates", show_progress, |done| {
+            simulate::run::run(&plan, policy, shard, done).map_err(to_anyhow)
+        })?;
     let Some(outcomes) = outcomes else {
         return Ok(Err(summary));
     };

@@ -34,8 +34,8 @@ pub(crate) const SMOOTHER_DF: KeyDef = KeyDef::new(
 /// One family, as the spec and the rest of the program know it.
 #[derive(Debug)]
 pub(crate) struct FamilyDef {
-    /// The name written in specs (`family = "polynomial"`) and reported by
-    /// its fits ([`Family::family`]).
+    /// The name written in specs (`family = "polynomial"`), in candidate
+    /// ids and in results.json; it is written nowhere else.
     pub(crate) name: &'static str,
     /// One line for the schema and the docs.
     pub(crate) about: &'static str,
