@@ -6,6 +6,7 @@
 //! practice. With repeats the folds are not independent, so this understates
 //! the uncertainty somewhat; the report says so.
 
+use crate::error::FitError;
 use crate::spec::{Metric, Rule};
 
 /// Scores of one candidate setting.
@@ -80,19 +81,35 @@ pub(crate) struct Choice {
 /// Chooses among `scores` by `rule`. Ties on the score go to the earlier
 /// setting in spec order; ties on effective df under one-se go to the better
 /// score, then the earlier setting.
-pub(crate) fn choose(scores: &[SettingScore], metric: Metric, rule: Rule) -> Choice {
-    let mut best = 0;
+pub(crate) fn choose(
+    scores: &[SettingScore],
+    metric: Metric,
+    rule: Rule,
+) -> Result<Choice, FitError> {
+    // Only finite scores compete; with none there is no choice to make.
+    let Some(mut best) = scores.iter().position(|s| s.cv_score.is_finite()) else {
+        let ids: Vec<&str> = scores.iter().take(3).map(|s| s.id.as_str()).collect();
+        let more = scores.len().saturating_sub(ids.len());
+        return Err(FitError::NoFiniteScore {
+            metric: metric_name(metric),
+            settings: if more > 0 {
+                format!("{} and {more} more", ids.join(", "))
+            } else {
+                ids.join(", ")
+            },
+        });
+    };
     for (i, s) in scores.iter().enumerate() {
-        if metric.better(s.cv_score, scores[best].cv_score) {
+        if s.cv_score.is_finite() && metric.better(s.cv_score, scores[best].cv_score) {
             best = i;
         }
     }
     match rule {
-        Rule::Lowest => Choice {
+        Rule::Lowest => Ok(Choice {
             chosen: best,
             best,
             threshold: None,
-        },
+        }),
         Rule::OneSe => {
             let se = if scores[best].cv_se.is_finite() {
                 scores[best].cv_se
@@ -124,13 +141,21 @@ pub(crate) fn choose(scores: &[SettingScore], metric: Metric, rule: Rule) -> Cho
                     chosen = i;
                 }
             }
-            Choice {
+            Ok(Choice {
                 chosen,
                 best,
                 threshold: Some(threshold),
-            }
+            })
         }
     }
+}
+
+/// The metric's name as a spec writes it.
+fn metric_name(metric: Metric) -> String {
+    serde_json::to_value(metric)
+        .ok()
+        .and_then(|v| v.as_str().map(str::to_string))
+        .unwrap_or_default()
 }
 
 #[cfg(test)]
@@ -164,7 +189,7 @@ mod tests {
 
     #[test]
     fn one_se_picks_the_least_flexible_within_one_se() {
-        let choice = choose(&table(), Metric::Mse, Rule::OneSe);
+        let choice = choose(&table(), Metric::Mse, Rule::OneSe).unwrap();
         assert_eq!(choice.best, 3);
         assert_eq!(choice.chosen, 1);
         assert_eq!(choice.threshold, Some(0.90 + 0.05));
@@ -172,7 +197,7 @@ mod tests {
 
     #[test]
     fn lowest_picks_the_minimum() {
-        let choice = choose(&table(), Metric::Mse, Rule::Lowest);
+        let choice = choose(&table(), Metric::Mse, Rule::Lowest).unwrap();
         assert_eq!(choice.chosen, 3);
     }
 
@@ -183,8 +208,8 @@ mod tests {
             row("b", 4.0, 0.71, 0.02),
             row("c", 8.0, 0.72, 0.02),
         ];
-        assert_eq!(choose(&scores, Metric::R2, Rule::Lowest).chosen, 2);
-        assert_eq!(choose(&scores, Metric::R2, Rule::OneSe).chosen, 1);
+        assert_eq!(choose(&scores, Metric::R2, Rule::Lowest).unwrap().chosen, 2);
+        assert_eq!(choose(&scores, Metric::R2, Rule::OneSe).unwrap().chosen, 1);
     }
 
     #[test]
@@ -193,5 +218,28 @@ mod tests {
         let (mean, se) = mean_and_standard_error(&[1.0, 2.0, 3.0, 4.0]);
         assert_eq!(mean, 2.5);
         assert!((se - (5.0f64 / 3.0).sqrt() / 2.0).abs() < 1e-15);
+    }
+
+    #[test]
+    fn non_finite_scores_never_win_and_all_non_finite_is_an_error() {
+        let scores = vec![
+            row("a", 1.0, f64::NAN, 0.1),
+            row("b", 2.0, 3.0, 0.1),
+            row("c", 3.0, f64::INFINITY, 0.0),
+        ];
+        for rule in [Rule::Lowest, Rule::OneSe] {
+            assert_eq!(choose(&scores, Metric::Mse, rule).unwrap().chosen, 1);
+        }
+        let none = vec![
+            row("a", 1.0, f64::NAN, 0.1),
+            row("b", 2.0, f64::INFINITY, 0.1),
+        ];
+        let err = choose(&none, Metric::R2, Rule::OneSe)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("no setting has a finite cross-validated r2 (a, b)"),
+            "{err}"
+        );
     }
 }

@@ -12,8 +12,13 @@
 //! title or an added candidate leaves every other entry valid. Changing the
 //! recipe changes `FORMAT`, so old entries are never read as new ones.
 //!
-//! An entry is `blake3(payload) ‖ payload`. A read checks the digest; an
-//! entry that fails it is reported, ignored and overwritten.
+//! An entry is `blake3(key ‖ payload) ‖ key ‖ payload`: it carries the full
+//! key it was written under. A read checks both the digest and that the
+//! stored key is the key asked for, so an entry copied, renamed or swapped
+//! into another entry's place is reported, ignored and recomputed like a
+//! damaged one; no content of an entry can make a read fail otherwise.
+//! Temporary files that a killed run left behind are swept at the start of
+//! the next run ([`Cache::sweep_orphans`]).
 //! Writes go to a unique temporary file that is renamed into place, so
 //! concurrent runs sharing a folder never see half an entry, and a run killed
 //! part-way leaves only whole entries behind.
@@ -25,7 +30,11 @@ use crate::error::CacheError;
 
 /// Version of the entry format and key recipe; bump to orphan old entries.
 /// v2: explicit task identities instead of a debug rendering of the family.
-const FORMAT: &str = "heldout fit cache v2";
+/// v3: entries carry the key they were written under.
+const FORMAT: &str = "heldout fit cache v3";
+
+/// Bytes before the payload: the digest, then the key.
+const HEADER: usize = 64;
 
 /// A 32-byte cache key.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -105,17 +114,58 @@ impl Cache {
         let Ok(bytes) = std::fs::read(&path) else {
             return Lookup::Miss;
         };
-        if bytes.len() < 32 {
+        if bytes.len() < HEADER {
             return Lookup::Corrupt(format!("{}: truncated entry", path.display()));
         }
-        let (stored, payload) = bytes.split_at(32);
-        if blake3::hash(payload).as_bytes() != stored {
+        let (stored, keyed) = bytes.split_at(32);
+        if blake3::hash(keyed).as_bytes() != stored {
             return Lookup::Corrupt(format!(
                 "{}: content does not match its digest",
                 path.display()
             ));
         }
+        let (written_under, payload) = keyed.split_at(32);
+        if written_under != key.0 {
+            return Lookup::Corrupt(format!(
+                "{}: entry was written under another key ({}…)",
+                path.display(),
+                &blake3::Hash::from_bytes(written_under.try_into().unwrap_or([0; 32])).to_hex()
+                    [..12]
+            ));
+        }
         Lookup::Hit(payload.to_vec())
+    }
+
+    /// Removes temporary files (`.<key>.<pid>.<n>.tmp`) last written before
+    /// `before`: what a killed run left behind. A concurrent run's file in
+    /// flight is younger than the calling run, so it is spared. Returns how
+    /// many were removed; a folder that cannot be read is skipped.
+    pub(crate) fn sweep_orphans(&self, before: std::time::SystemTime) -> usize {
+        let Ok(folders) = std::fs::read_dir(&self.root) else {
+            return 0;
+        };
+        let mut removed = 0;
+        for folder in folders.flatten() {
+            let Ok(files) = std::fs::read_dir(folder.path()) else {
+                continue;
+            };
+            for file in files.flatten() {
+                let name = file.file_name();
+                let name = name.to_string_lossy();
+                let stale = file
+                    .metadata()
+                    .and_then(|m| m.modified())
+                    .is_ok_and(|modified| modified < before);
+                if name.starts_with('.')
+                    && name.ends_with(".tmp")
+                    && stale
+                    && std::fs::remove_file(file.path()).is_ok()
+                {
+                    removed += 1;
+                }
+            }
+        }
+        removed
     }
 
     /// Where an entry lives, for messages about its content.
@@ -132,9 +182,12 @@ impl Cache {
             error,
         };
         std::fs::create_dir_all(dir).map_err(io)?;
-        let mut bytes = Vec::with_capacity(32 + payload.len());
-        bytes.extend_from_slice(blake3::hash(payload).as_bytes());
-        bytes.extend_from_slice(payload);
+        let mut keyed = Vec::with_capacity(32 + payload.len());
+        keyed.extend_from_slice(&key.0);
+        keyed.extend_from_slice(payload);
+        let mut bytes = Vec::with_capacity(HEADER + payload.len());
+        bytes.extend_from_slice(blake3::hash(&keyed).as_bytes());
+        bytes.extend_from_slice(&keyed);
         let temporary = dir.join(format!(
             ".{}.{}.{}.tmp",
             key.hex(),
@@ -179,6 +232,57 @@ mod tests {
         bytes[last] ^= 1;
         std::fs::write(&path, bytes).unwrap();
         assert!(matches!(cache.get(&key), Lookup::Corrupt(_)));
+    }
+
+    #[test]
+    fn an_entry_read_under_another_key_is_refused() {
+        // Two valid entries swapped on disk: each is whole and matches its
+        // own digest, but was written under the other key.
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::new(dir.path());
+        let (a, b) = (CacheKey([1; 32]), CacheKey([2; 32]));
+        cache.put(&a, b"fits of a").unwrap();
+        cache.put(&b, b"fits of b").unwrap();
+        let (path_a, path_b) = (cache.path_of(&a), cache.path_of(&b));
+        let bytes_a = std::fs::read(&path_a).unwrap();
+        std::fs::copy(&path_b, &path_a).unwrap();
+        std::fs::write(&path_b, bytes_a).unwrap();
+        for key in [a, b] {
+            match cache.get(&key) {
+                Lookup::Corrupt(why) => assert!(why.contains("another key"), "{why}"),
+                other => panic!("{other:?}"),
+            }
+        }
+    }
+
+    #[test]
+    fn any_bytes_in_an_entry_give_a_hit_a_miss_or_corrupt_never_a_panic() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::new(dir.path());
+        let key = CacheKey([3; 32]);
+        let path = cache.path_of(&key);
+        std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+        for length in [0, 1, 31, 32, 63, 64, 65, 200] {
+            std::fs::write(&path, vec![0xA5; length]).unwrap();
+            assert!(matches!(cache.get(&key), Lookup::Corrupt(_)), "{length}");
+        }
+    }
+
+    #[test]
+    fn orphaned_temporary_files_older_than_the_run_are_swept() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::new(dir.path());
+        cache.put(&CacheKey([4; 32]), b"kept").unwrap();
+        let folder = dir.path().join("04");
+        let orphan = folder.join(".0404.999.0.tmp");
+        std::fs::write(&orphan, b"half an entry").unwrap();
+        let after_orphan = std::time::SystemTime::now() + std::time::Duration::from_secs(1);
+        let young = std::time::SystemTime::UNIX_EPOCH;
+        assert_eq!(cache.sweep_orphans(young), 0, "a younger run spares it");
+        assert!(orphan.exists());
+        assert_eq!(cache.sweep_orphans(after_orphan), 1);
+        assert!(!orphan.exists());
+        assert!(matches!(cache.get(&CacheKey([4; 32])), Lookup::Hit(_)));
     }
 
     #[test]

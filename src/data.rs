@@ -37,6 +37,9 @@ pub(crate) struct Table {
     pub(crate) row_numbers: Vec<u64>,
     /// Rows dropped under `missing = "drop-rows"`.
     pub(crate) dropped: usize,
+    /// The file does not end with a line break: it may have been cut short
+    /// inside its last value.
+    pub(crate) unterminated: bool,
 }
 
 impl Table {
@@ -55,18 +58,30 @@ impl Table {
     }
 }
 
+/// The largest magnitude a numeric cell may hold: squares (and sums of
+/// squares over millions of rows) stay finite in double precision.
+pub(crate) const LARGEST_VALUE: f64 = 1e150;
+
 /// Reads `path` (already resolved against the spec folder); `shown` is the
 /// path as messages should print it.
 pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, DataError> {
-    let bytes = std::fs::read(path).map_err(|error| DataError::Read {
+    let read_error = |error| DataError::Read {
         path: shown.to_path_buf(),
         error,
-    })?;
-    let digest = crate::digests::file_digest(&bytes);
+    };
     let table_error = |message: String| DataError::Table {
         path: shown.to_path_buf(),
         message,
     };
+    // A FIFO would block forever and a device read until memory runs out.
+    if !std::fs::metadata(path).map_err(read_error)?.is_file() {
+        return Err(table_error(
+            "not a regular file (a folder, pipe or device); give the path of a CSV file".into(),
+        ));
+    }
+    let bytes = std::fs::read(path).map_err(read_error)?;
+    let digest = crate::digests::file_digest(&bytes);
+    let unterminated = !bytes.is_empty() && !bytes.ends_with(b"\n");
 
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
@@ -79,6 +94,16 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
     let header: Vec<String> = header.iter().map(|h| h.trim().to_string()).collect();
     if header.iter().all(|h| h.is_empty()) {
         return Err(table_error("the file is empty: no header row".into()));
+    }
+    for (i, name) in header.iter().enumerate() {
+        if let Some(first) = header[..i].iter().position(|h| !h.is_empty() && h == name) {
+            return Err(table_error(format!(
+                "line 1: the header names \"{name}\" twice (columns {} and {}); \
+                 rename one so every column is meant once",
+                first + 1,
+                i + 1
+            )));
+        }
     }
 
     let position = |name: &str| -> Result<usize, DataError> {
@@ -172,6 +197,15 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
                     format!("\"{raw}\" is not a finite number"),
                 ));
             }
+            if value.abs() > LARGEST_VALUE {
+                return Err(cell_error(
+                    name,
+                    format!(
+                        "\"{raw}\" is beyond ±{LARGEST_VALUE:e}: squares and sums of squares \
+                         of it overflow; rescale the column"
+                    ),
+                ));
+            }
             values.push(value);
         }
         let mut texts = Vec::with_capacity(text_at.len());
@@ -218,6 +252,7 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
         lines,
         row_numbers,
         dropped,
+        unterminated,
     })
 }
 

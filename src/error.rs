@@ -64,6 +64,12 @@ pub(crate) enum DataError {
 /// A fit that cannot be carried out on the rows it was given.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum FitError {
+    #[error(
+        "no setting has a finite cross-validated {metric} ({settings}): every score is \
+         infinite or undefined, so there is nothing to choose from; check the target for \
+         huge or constant values"
+    )]
+    NoFiniteScore { metric: String, settings: String },
     #[error("{setting}: needs at least {needed} training rows, the fold has {available}")]
     TooFewRows {
         setting: String,

@@ -223,12 +223,18 @@ fn run_task(
     if let (Some(cache), Some(key)) = (policy.read, key) {
         match cache.get(key) {
             Lookup::Hit(bytes) => match postcard::from_bytes::<Vec<SettingFit>>(&bytes) {
-                Ok(fits) => {
+                Ok(fits) if fits_match_task(plan, task, &fits) => {
                     return Ok(TaskOutcome {
                         fits,
                         reused: true,
                         corrupt: None,
                     })
+                }
+                Ok(_) => {
+                    corrupt = Some(format!(
+                        "{}: holds fits of another shape than this task",
+                        cache.describe(key)
+                    ));
                 }
                 Err(e) => {
                     corrupt = Some(format!("{}: cannot decode: {e}", cache.describe(key)));
@@ -277,6 +283,27 @@ fn run_task(
         reused: false,
         corrupt,
     })
+}
+
+/// Whether fits read from the cache have the shape this task needs: one per
+/// setting, each predicting every evaluation row (and, for a full fit that
+/// predicts its training rows too, every training row). A cache entry is
+/// checked against its key already; this keeps a read that passes that check
+/// from ever indexing out of bounds.
+fn fits_match_task(plan: &ExperimentPlan, task: Task, fits: &[SettingFit]) -> bool {
+    let a = &plan.assignment;
+    let (eval, train) = match task.rows {
+        TaskRows::Fold(f) => (a.folds[f].valid.len(), None),
+        TaskRows::LeaveOneOut => (a.train.len(), None),
+        TaskRows::Full if plan.full_fit.training_as_evaluation => {
+            (a.test.len(), Some(a.train.len()))
+        }
+        TaskRows::Full => (a.test.len(), None),
+    };
+    fits.len() == plan.candidates[task.candidate].settings.len()
+        && fits.iter().all(|fit| {
+            fit.eval_pred.len() == eval && train.is_none_or(|rows| fit.train_pred.len() == rows)
+        })
 }
 
 /// Leave-one-out predictions for every training row and setting, as

@@ -22,6 +22,18 @@ pub(crate) fn write_atomic(path: &Path, contents: &[u8]) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// Refuses a folder option (`--out`, `--cache`) that names an existing file
+/// or anything else that is not a folder; a missing folder is created later.
+pub(crate) fn require_folder(path: &Path, option: &str) -> Result<(), crate::error::UsageError> {
+    match std::fs::metadata(path) {
+        Ok(metadata) if !metadata.is_dir() => Err(crate::error::UsageError(format!(
+            "{option} {}: is a file, not a folder; give a folder (it is created when missing)",
+            path.display()
+        ))),
+        _ => Ok(()),
+    }
+}
+
 /// The folder of one experiment's outputs: `<out>/<experiment name>/`.
 pub(crate) fn experiment_dir(out: &Path, experiment: &str) -> PathBuf {
     out.join(experiment)

@@ -216,7 +216,10 @@ fn ordered_map<S: Serializer>(
 }
 
 /// Scores every setting, applies the rule and assembles the results.
-pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results {
+pub(crate) fn assemble(
+    plan: &ExperimentPlan,
+    fits: &[CandidateFits],
+) -> Result<Results, crate::error::FitError> {
     let spec = &plan.spec.spec;
     let data = plan.spec.data();
     let metric = spec.choose.metric;
@@ -265,7 +268,7 @@ pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results
         chosen,
         best,
         threshold,
-    } = assess::choose(&scores, metric, spec.choose.rule);
+    } = assess::choose(&scores, metric, spec.choose.rule)?;
     let eligible = match threshold {
         Some(t) => scores
             .iter()
@@ -294,7 +297,7 @@ pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results
         fold_sizes.clone().min().unwrap_or(0),
         fold_sizes.max().unwrap_or(0),
     ];
-    Results {
+    Ok(Results {
         schema: SCHEMA.to_string(),
         experiment: spec.experiment.name.clone(),
         title: spec.experiment.title.clone(),
@@ -347,7 +350,7 @@ pub(crate) fn assemble(plan: &ExperimentPlan, fits: &[CandidateFits]) -> Results
         },
         candidates,
         simulation: None,
-    }
+    })
 }
 
 fn setting_value_json(value: crate::models::SettingValue) -> serde_json::Value {

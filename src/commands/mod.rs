@@ -74,6 +74,13 @@ fn evaluate_spec(
         return simulate::evaluate(loaded, spec_path, policy, shard, show_progress);
     }
     let plan = plan::resolve(loaded)?;
+    if plan.table.unterminated {
+        eprintln!(
+            "warning: {}: the last line ends without a line break; check that the table \
+             was not cut short inside its last value",
+            plan.table.path.display()
+        );
+    }
     evaluate(plan, spec_path, policy, shard, show_progress)
 }
 
@@ -135,7 +142,7 @@ fn finish(
     summary: Summary,
     simulation: Option<crate::simulate::SimulationOutput>,
 ) -> anyhow::Result<Evaluation> {
-    let mut results = results::assemble(&plan, fits);
+    let mut results = results::assemble(&plan, fits)?;
     results.simulation = simulation;
     let regenerate = regenerate_command(spec_path);
     let spec_text = report::spec_as_read(&plan.spec.spec);

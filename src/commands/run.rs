@@ -11,7 +11,17 @@ use crate::{output, receipt, report};
 pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let pool = super::thread_pool(args.jobs)?;
+    crate::output::require_folder(&args.out, "--out")?;
+    crate::output::require_folder(&args.cache.cache, "--cache")?;
     let cache = Cache::new(&args.cache.cache);
+    // Temporary files older than this run are what a killed run left. An
+    // entry is written and renamed within moments, so a minute's margin
+    // spares the files of a concurrent run in flight.
+    let started = std::time::SystemTime::now() - std::time::Duration::from_secs(60);
+    let swept = cache.sweep_orphans(started);
+    if swept > 0 && !args.quiet {
+        eprintln!("removed {swept} temporary file(s) a stopped run left in the cache");
+    }
     for spec_path in &args.specs {
         pool.install(|| run_one(spec_path, args, &cache, shard))?;
     }

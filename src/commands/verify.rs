@@ -13,6 +13,7 @@ use crate::results::Results;
 
 pub(crate) fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
     let pool = super::thread_pool(args.jobs)?;
+    crate::output::require_folder(&args.cache.cache, "--cache")?;
     let cache = Cache::new(&args.cache.cache);
     let mut failed = Vec::new();
     for spec_path in &args.specs {

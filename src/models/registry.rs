@@ -383,6 +383,9 @@ impl Settings {
     }
 }
 
+/// Most settings in one candidate's grid (a limit of `docs/spec.md`).
+pub(crate) const GRID_LENGTH: usize = 10_000;
+
 /// A grid of whole numbers must be non-empty, within bounds and free of repeats.
 pub(crate) fn check_whole_grid(
     values: &[usize],
@@ -416,6 +419,15 @@ fn check_grid<T: Copy + PartialEq + std::fmt::Display>(
 ) -> Result<(), SettingProblem> {
     if values.is_empty() {
         return Err(SettingProblem::new(key, format!("list at least one {key}")));
+    }
+    if values.len() > GRID_LENGTH {
+        return Err(SettingProblem::new(
+            key,
+            format!(
+                "{} settings is above the limit of {GRID_LENGTH} (see docs/spec.md, \"Limits\")",
+                values.len()
+            ),
+        ));
     }
     for (i, &value) in values.iter().enumerate() {
         if let Some(why) = refuse(value) {

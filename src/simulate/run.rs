@@ -21,7 +21,7 @@ use super::design::Setup;
 use crate::assess::{self, SettingScore};
 use crate::data::Table;
 use crate::digests;
-use crate::error::SpecError;
+use crate::error::{FitFailure, SpecError};
 use crate::execute::{self, CachePolicy, CandidateFits, ExecuteError, Shard, Summary};
 use crate::plan::{CandidatePlan, ExperimentPlan, FullFit};
 use crate::spec::{LoadedSpec, Metric, SplitMethod, DEFAULT_FOLDS};
@@ -141,6 +141,7 @@ impl SimulationPlan {
             lines: (2..rows as u64 + 2).collect(),
             row_numbers: (1..=rows as u64).collect(),
             dropped: 0,
+            unterminated: false,
         };
         let mut assignment = replicate.assignment.clone();
         assignment.test = (n..rows).collect();
@@ -275,7 +276,13 @@ pub(crate) fn run_replicate(
             scores.push(score);
         }
     }
-    outcome.chosen = assess::choose(&scores, metric, plan.spec.spec.choose.rule).chosen;
+    outcome.chosen = assess::choose(&scores, metric, plan.spec.spec.choose.rule)
+        .map_err(|cause| FitFailure {
+            candidate: "every candidate".into(),
+            fold: format!("replicate {}", replicate.index + 1),
+            cause,
+        })?
+        .chosen;
     if replicate.index == 0 {
         outcome.first = Some((experiment, fits));
     }

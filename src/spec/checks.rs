@@ -3,7 +3,7 @@
 
 use std::collections::BTreeSet;
 
-use super::{DataSpec, SplitMethod, SplitSpec};
+use super::{limits, DataSpec, SplitMethod, SplitSpec};
 use crate::error::SpecError;
 
 pub(super) fn validate_data(
@@ -77,6 +77,12 @@ pub(super) fn validate_split(
                 split.holdout
             ),
         ));
+    }
+    limits::at_most(split.repeats, limits::REPEATS, "repeats")
+        .map_err(|message| invalid("split.repeats", message))?;
+    if let Some(folds) = split.folds {
+        limits::at_most(folds, limits::FOLDS, "folds")
+            .map_err(|message| invalid("split.folds", message))?;
     }
     if split.repeats == 0 {
         return Err(invalid("split.repeats", "must be at least 1".into()));

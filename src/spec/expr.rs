@@ -231,6 +231,7 @@ pub(crate) fn parse(text: &str, names: &[String]) -> Result<Expr, ParseError> {
         names,
         text,
         open: Vec::new(),
+        depth: 0,
     };
     let expr = parser.sum()?;
     match parser.peek() {
@@ -250,6 +251,8 @@ struct Parser<'a> {
     text: &'a str,
     /// Columns of the parentheses currently open, innermost last.
     open: Vec<usize>,
+    /// How deep the descent is (every nesting level passes through `unary`).
+    depth: usize,
 }
 
 impl Parser<'_> {
@@ -310,6 +313,22 @@ impl Parser<'_> {
     }
 
     fn unary(&mut self) -> Result<Expr, ParseError> {
+        // Every level of parentheses, signs and powers passes through here;
+        // bounding it bounds the parser's stack and the tree's depth.
+        if self.depth >= super::limits::EXPRESSION_DEPTH {
+            return Err(self.error_here(format!(
+                "nested more than {} levels deep (parentheses, signs and powers; see \
+                 docs/spec.md, \"Limits\")",
+                super::limits::EXPRESSION_DEPTH
+            )));
+        }
+        self.depth += 1;
+        let result = self.unary_at_depth();
+        self.depth -= 1;
+        result
+    }
+
+    fn unary_at_depth(&mut self) -> Result<Expr, ParseError> {
         match self.peek() {
             Token::Minus => {
                 self.advance();

@@ -18,6 +18,7 @@ use crate::error::SpecError;
 mod candidate;
 mod checks;
 pub(crate) mod expr;
+pub(crate) mod limits;
 mod parse;
 pub(crate) mod simulation;
 #[cfg(test)]
@@ -68,10 +69,7 @@ impl LoadedSpec {
 
 /// Reads, parses and validates a spec file (TOML or YAML, chosen by extension).
 pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
-    let text = std::fs::read_to_string(path).map_err(|error| SpecError::Read {
-        path: path.to_path_buf(),
-        error,
-    })?;
+    let text = read_bounded(path)?;
     let spec = parse(path, &text)?;
     let families = validate(path, &spec)?;
     let simulated_data = spec.simulate.as_ref().map(|sim| DataSpec {
@@ -108,6 +106,39 @@ pub(crate) fn canonical(spec: &SpecFile) -> SpecFile {
         }
     }
     normal
+}
+
+/// Reads a spec file that is a regular file within [`limits::SPEC_BYTES`],
+/// and whose brackets nest at most [`limits::SPEC_NESTING`] deep (deeper
+/// text would cost the readers quadratic time or their stack).
+fn read_bounded(path: &Path) -> Result<String, SpecError> {
+    let read_error = |error| SpecError::Read {
+        path: path.to_path_buf(),
+        error,
+    };
+    let too = |message: String| SpecError::Parse {
+        location: path.display().to_string(),
+        message,
+        hint: String::new(),
+    };
+    let metadata = std::fs::metadata(path).map_err(read_error)?;
+    if !metadata.is_file() {
+        return Err(too("not a regular file".into()));
+    }
+    limits::at_most(
+        metadata.len() as usize,
+        limits::SPEC_BYTES as usize,
+        "bytes",
+    )
+    .map_err(too)?;
+    let text = std::fs::read_to_string(path).map_err(read_error)?;
+    limits::at_most(
+        limits::nesting(&text),
+        limits::SPEC_NESTING,
+        "levels of nested brackets",
+    )
+    .map_err(too)?;
+    Ok(text)
 }
 
 /// Checks values that the types alone cannot: ranges, names, grids, and the

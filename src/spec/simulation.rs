@@ -7,7 +7,7 @@ use std::collections::BTreeMap;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-use super::expr;
+use super::{expr, limits};
 use crate::error::SpecError;
 use crate::spec::{SplitMethod, SplitSpec};
 
@@ -164,6 +164,48 @@ pub(crate) fn validate(
     split: &SplitSpec,
     invalid: &impl Fn(&str, String) -> SpecError,
 ) -> Result<(), SpecError> {
+    // Sizes first: nothing below may allocate for a size past its limit.
+    let sizes = [
+        (
+            "simulate.replicates",
+            sim.replicates,
+            limits::REPLICATES,
+            "replicates",
+        ),
+        (
+            "simulate.train_size",
+            sim.train_size,
+            limits::TRAIN_SIZE,
+            "training rows",
+        ),
+        (
+            "simulate.test_points",
+            sim.test_points.unwrap_or(0),
+            limits::TEST_POINTS,
+            "test points",
+        ),
+        (
+            "simulate.test_grid",
+            sim.test_grid.unwrap_or(0),
+            limits::TEST_POINTS,
+            "test points",
+        ),
+        (
+            "simulate.truth",
+            sim.truth.chars().count(),
+            limits::EXPRESSION_LENGTH,
+            "characters",
+        ),
+        (
+            "simulate.replicates",
+            sim.replicates.saturating_mul(sim.train_size),
+            limits::SIMULATED_ROWS,
+            "simulated rows (replicates × train_size)",
+        ),
+    ];
+    for (key, value, limit, what) in sizes {
+        limits::at_most(value, limit, what).map_err(|message| invalid(key, message))?;
+    }
     if sim.inputs.is_empty() {
         return Err(invalid(
             "simulate.inputs",

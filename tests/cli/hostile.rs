@@ -1,0 +1,246 @@
+//! Hostile and careless inputs from the trust catalogue: each must end with
+//! exit 2 and a message that names the place (or be handled as stated),
+//! never a panic, an abort, a hang or a runaway allocation. Each test breaks
+//! one thing of a small valid spec and table.
+
+use std::path::Path;
+use std::process::Output;
+
+use crate::{simulation, util};
+
+const SPEC: &str = "[experiment]\nname = \"hostile\"\nseed = 3\n\n[data]\ntable = \"data.csv\"\n\
+target = \"y\"\nfeatures = [\"x\"]\n\n[split]\nholdout = 0\nfolds = 3\n\n[[candidate]]\n\
+family = \"polynomial\"\ndegree = [1, 2]\n";
+
+/// Invented rows: y close to 2x.
+fn table() -> String {
+    let mut text = String::from("x,y\n");
+    for i in 1..=12 {
+        text.push_str(&format!(
+            "{i},{}\n",
+            2.0 * f64::from(i) + 0.1 * f64::from(i % 3)
+        ));
+    }
+    text
+}
+
+/// Writes `spec` and `data` into a fresh folder and runs `heldout run`.
+fn run_with(spec: &str, data: &str, extra: &[&str]) -> (tempfile::TempDir, Output) {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("spec.toml"), spec).unwrap();
+    std::fs::write(dir.path().join("data.csv"), data).unwrap();
+    let mut args = vec![
+        "run",
+        "spec.toml",
+        "--out",
+        "out",
+        "--cache",
+        "cache",
+        "--quiet",
+    ];
+    args.extend_from_slice(extra);
+    let output = util::run_in(dir.path(), &args);
+    (dir, output)
+}
+
+/// Asserts exit 2 and that stderr names every one of `places`.
+fn refused(output: &Output, places: &[&str]) {
+    let stderr = util::stderr_of(output);
+    assert_eq!(output.status.code(), Some(2), "{stderr}");
+    for place in places {
+        assert!(stderr.contains(place), "{place:?} missing in:\n{stderr}");
+    }
+    assert!(!stderr.contains("panicked"), "{stderr}");
+}
+
+#[test]
+fn a_huge_target_cell_is_refused_with_its_line_and_column() {
+    // Catalogue row 3 (1e155 in the target) and row 10 (1e308 in a feature).
+    let data = table().replace("5,10.2", "5,1e155");
+    refused(
+        &run_with(SPEC, &data, &[]).1,
+        &["data.csv", "line 6", "y", "1e155"],
+    );
+    let data = table().replace("7,14.1", "1e308,14.1");
+    refused(&run_with(SPEC, &data, &[]).1, &["line 8", "x", "1e308"]);
+}
+
+#[test]
+fn all_non_finite_scores_are_refused_instead_of_chosen() {
+    // Catalogue row 4: a constant target has no R².
+    let spec = format!("{SPEC}\n[choose]\nmetric = \"r2\"\n");
+    let mut data = String::from("x,y\n");
+    for i in 1..=12 {
+        data.push_str(&format!("{i},5\n"));
+    }
+    refused(
+        &run_with(&spec, &data, &[]).1,
+        &["no setting has a finite cross-validated r2"],
+    );
+}
+
+#[test]
+fn sizes_past_their_limits_are_refused_by_key_before_any_work() {
+    // Catalogue row 5.
+    let dir = tempfile::tempdir().unwrap();
+    simulation::demo_spec(dir.path(), "sim.toml", 10);
+    let path = dir.path().join("specs/sim.toml");
+    let demo = std::fs::read_to_string(&path).unwrap();
+    let deep = format!(
+        "truth = \"{}outdoor_c{}\"",
+        "(".repeat(2000),
+        ")".repeat(2000)
+    );
+    for (from, to, key) in [
+        (
+            "replicates = 10",
+            "replicates = 20261202",
+            "simulate.replicates",
+        ),
+        (
+            "replicates = 10",
+            "replicates = 1000000",
+            "simulate.replicates",
+        ),
+        (
+            "train_size = 60",
+            "train_size = 999999999",
+            "simulate.train_size",
+        ),
+    ] {
+        assert!(demo.contains(from), "{from}");
+        std::fs::write(&path, demo.replace(from, to)).unwrap();
+        let output = simulation::heldout(dir.path(), &["run", "-q", "specs/sim.toml"]);
+        refused(&output, &[key, "limit"]);
+    }
+    let truth_line = demo.lines().find(|l| l.starts_with("truth = ")).unwrap();
+    std::fs::write(&path, demo.replace(truth_line, &deep)).unwrap();
+    let output = simulation::heldout(dir.path(), &["run", "-q", "specs/sim.toml"]);
+    refused(&output, &["simulate.truth", "limit"]);
+    let repeats = SPEC.replace("folds = 3\n", "folds = 3\nrepeats = 9999999999\n");
+    refused(
+        &run_with(&repeats, &table(), &[]).1,
+        &["split.repeats", "limit of 1000"],
+    );
+}
+
+#[test]
+fn deeply_nested_spec_text_is_refused_quickly() {
+    // Catalogue row 15: YAML nested 100 000 deep took 52 s.
+    let dir = tempfile::tempdir().unwrap();
+    let yaml = format!(
+        "experiment: {}1{}\n",
+        "[".repeat(100_000),
+        "]".repeat(100_000)
+    );
+    std::fs::write(dir.path().join("spec.yaml"), yaml).unwrap();
+    let started = std::time::Instant::now();
+    let output = util::run_in(dir.path(), &["run", "spec.yaml", "--quiet"]);
+    refused(&output, &["spec.yaml", "nested brackets", "limit of 32"]);
+    // Not a timing claim, a hang guard: quadratic parsing took 52 s.
+    assert!(started.elapsed().as_secs() < 20);
+}
+
+#[test]
+fn a_data_path_that_is_not_a_regular_file_is_refused() {
+    // Catalogue row 6: a FIFO blocked forever, /dev/zero ate memory.
+    let spec = SPEC.replace("table = \"data.csv\"", "table = \"/dev/zero\"");
+    refused(
+        &run_with(&spec, &table(), &[]).1,
+        &["/dev/zero", "not a regular file"],
+    );
+    let (dir, _) = run_with(SPEC, &table(), &[]);
+    let fifo = dir.path().join("pipe.csv");
+    let made = std::process::Command::new("mkfifo").arg(&fifo).status();
+    if made.is_ok_and(|s| s.success()) {
+        let spec = SPEC.replace("data.csv", "pipe.csv");
+        std::fs::write(dir.path().join("fifo.toml"), spec).unwrap();
+        let output = util::run_in(dir.path(), &["run", "fifo.toml", "--quiet", "--cache", "c"]);
+        refused(&output, &["pipe.csv", "not a regular file"]);
+    }
+}
+
+#[test]
+fn a_duplicate_header_name_is_refused() {
+    // Catalogue row 8: the first of two `x` columns was used silently.
+    let data: String = table()
+        .lines()
+        .map(|line| format!("{line},{}\n", if line == "x,y" { "x" } else { "0" }))
+        .collect();
+    refused(
+        &run_with(SPEC, &data, &[]).1,
+        &["data.csv", "line 1", "\"x\" twice", "columns 1 and 3"],
+    );
+}
+
+#[test]
+fn a_table_without_a_final_line_break_warns() {
+    // Catalogue row 9: a table cut inside its last value ran silently.
+    let data = table().trim_end().to_string();
+    let (_, output) = run_with(SPEC, &data, &[]);
+    util::assert_success(&output);
+    let stderr = util::stderr_of(&output);
+    assert!(
+        stderr.contains("warning: data.csv: the last line ends without a line break"),
+        "{stderr}"
+    );
+    let (_, output) = run_with(SPEC, &table(), &[]);
+    assert!(!util::stderr_of(&output).contains("line break"));
+}
+
+#[test]
+fn out_or_cache_naming_a_file_is_bad_input() {
+    // Catalogue row 11: exit 3 before.
+    let (dir, _) = run_with(SPEC, &table(), &[]);
+    std::fs::write(dir.path().join("a-file"), "x").unwrap();
+    for option in ["--out", "--cache"] {
+        let output = util::run_in(dir.path(), &["run", "spec.toml", option, "a-file", "-q"]);
+        refused(&output, &[option, "a-file", "not a folder"]);
+    }
+    let output = util::run_in(dir.path(), &["verify", "spec.toml", "--cache", "a-file"]);
+    refused(&output, &["--cache", "a-file"]);
+}
+
+#[test]
+fn swapped_cache_entries_are_recomputed_and_outputs_equal_a_cold_run() {
+    // Catalogue row 2: two valid entries swapped changed the kept model
+    // silently, and an entry overwritten by another panicked.
+    let (dir, output) = run_with(SPEC, &table(), &[]);
+    util::assert_success(&output);
+    let cold = std::fs::read(dir.path().join("out/hostile/results.json")).unwrap();
+    let mut entries: Vec<_> = walk(&dir.path().join("cache"));
+    entries.sort();
+    assert!(entries.len() >= 2, "{entries:?}");
+    let (a, b) = (&entries[0], &entries[1]);
+    let bytes_a = std::fs::read(a).unwrap();
+    std::fs::copy(b, a).unwrap();
+    std::fs::write(b, bytes_a).unwrap();
+    let output = util::run_in(
+        dir.path(),
+        &["run", "spec.toml", "--out", "out", "--cache", "cache"],
+    );
+    util::assert_success(&output);
+    let stderr = util::stderr_of(&output);
+    assert_eq!(
+        stderr.matches("written under another key").count(),
+        2,
+        "{stderr}"
+    );
+    assert_eq!(util::fit_counts(&stderr).0, 2, "{stderr}");
+    let warm = std::fs::read(dir.path().join("out/hostile/results.json")).unwrap();
+    assert_eq!(cold, warm);
+}
+
+/// Every file below `folder`.
+fn walk(folder: &Path) -> Vec<std::path::PathBuf> {
+    let mut files = Vec::new();
+    for entry in std::fs::read_dir(folder).into_iter().flatten().flatten() {
+        let path = entry.path();
+        if path.is_dir() {
+            files.extend(walk(&path));
+        } else {
+            files.push(path);
+        }
+    }
+    files
+}
