@@ -6,6 +6,7 @@
 mod bad_input;
 mod cv_reference;
 mod demo;
+mod fuzz;
 mod hostile;
 mod nist;
 mod ordered;
