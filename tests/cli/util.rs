@@ -15,11 +15,6 @@ pub fn crate_root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
 
-/// The shared reference folder beside the repository (`../shared/reference`).
-pub fn shared_reference() -> PathBuf {
-    crate_root().join("..").join("shared").join("reference")
-}
-
 /// Runs `heldout` with `args` in `dir`; returns the finished process output.
 pub fn run_in(dir: &Path, args: &[&str]) -> Output {
     heldout()
