@@ -4,6 +4,7 @@
 //! directory (see `util`).
 
 mod bad_input;
+mod ci_doc;
 mod cv_reference;
 mod demo;
 mod fuzz;

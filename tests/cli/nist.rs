@@ -1,7 +1,8 @@
 //! Numerical accuracy of the final least-squares fit, checked against the
 //! certified values of the NIST/ITL Statistical Reference Datasets (StRD),
 //! Linear Least Squares Regression suite (<https://www.itl.nist.gov/div898/strd/lls/>),
-//! kept in `../shared/reference/nist-strd-lls/` (data CSVs + `certified.toml`).
+//! kept in `tests/fixtures/nist-strd-lls/` (data CSVs + `certified.toml`; public
+//! domain, source and contents in its README).
 //!
 //! Each of the 11 datasets is run through `heldout run` exactly as a user
 //! would, with a one-candidate spec whose model is the certified model. The
@@ -49,7 +50,7 @@ const DATASETS: [(&str, Model); 11] = [
 /// McCullough (1998), certified values from NIST StRD LLS.
 const COEF_LRE_MIN: f64 = 8.0;
 /// Minimum coefficient LRE on Filip, the hardest set (design condition number
-/// about 1.8e15 in raw powers, per the reference folder's README). Bar set by
+/// about 1.8e15 in raw powers, per the fixture's README). Bar set by
 /// this project; it requires a method better than plain double-precision QR.
 const COEF_LRE_MIN_FILIP: f64 = 11.0;
 /// Minimum residual-SD LRE where the certified residual SD is non-zero.
@@ -92,7 +93,10 @@ fn lre(computed: f64, certified: f64) -> f64 {
 }
 
 fn reference_dir() -> PathBuf {
-    util::shared_reference().join("nist-strd-lls")
+    util::crate_root()
+        .join("tests")
+        .join("fixtures")
+        .join("nist-strd-lls")
 }
 
 fn number(value: &toml::Value, what: &str) -> f64 {
@@ -406,7 +410,7 @@ fn table_of(outcomes: &[Outcome]) -> String {
 }
 
 /// Source: NIST/ITL StRD Linear Least Squares Regression, certified values
-/// (`../shared/reference/nist-strd-lls/certified.toml`); accuracy measured as
+/// (`tests/fixtures/nist-strd-lls/certified.toml`); accuracy measured as
 /// LRE per McCullough (1998). Bars: coefficients >= 8 digits (Filip >= 11),
 /// residual SD >= 9 digits (absolute error <= 1e-8 where certified as 0).
 #[test]

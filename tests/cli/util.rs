@@ -15,11 +15,6 @@ pub fn crate_root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
 
-/// The shared reference folder beside the repository (`../shared/reference`).
-pub fn shared_reference() -> PathBuf {
-    crate_root().join("..").join("shared").join("reference")
-}
-
 /// Runs `heldout` with `args` in `dir`; returns the finished process output.
 pub fn run_in(dir: &Path, args: &[&str]) -> Output {
     heldout()
@@ -77,7 +72,8 @@ pub fn candidate<'a>(results: &'a serde_json::Value, id: &str) -> &'a serde_json
 
 /// Why `python3 -c "import <modules>"` fails here (with the pip command
 /// that would fix it), or `None` when those modules import. Tests that
-/// compare with a Python reference skip, saying so, when it is `Some`.
+/// compare with a Python reference hand it to [`skip_reference`] when it is
+/// `Some`.
 pub fn python_missing(modules: &str, install: &str) -> Option<String> {
     match Command::new("python3")
         .args(["-c", &format!("import {modules}")])
@@ -93,6 +89,35 @@ pub fn python_missing(modules: &str, install: &str) -> Option<String> {
         )),
         Ok(_) => None,
     }
+}
+
+/// The environment variable that turns a skipped reference check into a
+/// failure when set to `1` (`.ci/run` sets it, so CI cannot pass on checks
+/// that never ran).
+pub const REQUIRE_REFERENCES: &str = "HELDOUT_REQUIRE_REFERENCES";
+
+/// Whether [`REQUIRE_REFERENCES`] is set to `1`.
+pub fn references_required() -> bool {
+    std::env::var_os(REQUIRE_REFERENCES).is_some_and(|value| value == "1")
+}
+
+/// Reports that the reference check `check` cannot run here, for the reason
+/// `why`: panics when [`references_required`], and otherwise prints one
+/// `SKIPPED` line and returns, so the caller returns early.
+///
+/// The line is written to the process's stderr directly: libtest captures
+/// `eprintln!` of a passing test and throws it away, so a skip said that way
+/// is never seen in `cargo test`'s normal output.
+pub fn skip_reference(check: &str, why: &str) {
+    use std::io::Write as _;
+    assert!(
+        !references_required(),
+        "{check} could not run: {why} ({REQUIRE_REFERENCES}=1 makes a missing reference a failure)"
+    );
+    let _ = writeln!(
+        std::io::stderr(),
+        "SKIPPED {check}: {why} (set {REQUIRE_REFERENCES}=1 to fail instead)"
+    );
 }
 
 /// Stderr of a finished process as text.
@@ -140,5 +165,73 @@ pub fn log_relative_error(computed: f64, certified: f64) -> f64 {
         15.0
     } else {
         (-err.log10()).clamp(0.0, 15.0)
+    }
+}
+
+/// The skip line is seen in `cargo test`'s normal output and the variable
+/// turns it into a failure. Both are checked by running the probe below in a
+/// child test process without `--nocapture`, as `cargo test` runs it.
+mod skip_reporting {
+    use std::process::{Command, Output};
+
+    /// Set by [`run_probe`] so the probe acts only when started from here
+    /// (not when someone runs every ignored test).
+    const PROBE: &str = "HELDOUT_SKIP_PROBE";
+    const PROBE_CHECK: &str = "skip-probe: an absent reference";
+
+    #[test]
+    #[ignore = "a probe started as a child process by the skip-reporting tests"]
+    fn skip_probe() {
+        if std::env::var_os(PROBE).is_some() {
+            super::skip_reference(PROBE_CHECK, "nothing to compare with");
+        }
+    }
+
+    /// Runs [`skip_probe`] alone in this test binary, output captured as usual.
+    fn run_probe(require: Option<&str>) -> Output {
+        let mut command = Command::new(std::env::current_exe().expect("no test binary path"));
+        command
+            .args(["util::skip_reporting::skip_probe", "--exact", "--ignored"])
+            .env(PROBE, "1")
+            .env_remove(super::REQUIRE_REFERENCES);
+        if let Some(value) = require {
+            command.env(super::REQUIRE_REFERENCES, value);
+        }
+        command
+            .output()
+            .expect("the test binary could not be started")
+    }
+
+    #[test]
+    fn a_skipped_reference_check_is_printed_past_the_test_harness() {
+        for require in [None, Some("0")] {
+            let output = run_probe(require);
+            let stderr = super::stderr_of(&output);
+            assert!(
+                output.status.success(),
+                "the probe failed with {require:?}:\n{stderr}"
+            );
+            assert!(
+                stderr.contains(&format!("SKIPPED {PROBE_CHECK}: nothing to compare with")),
+                "no SKIPPED line in the normal output with {require:?}:\n{stderr}"
+            );
+        }
+    }
+
+    #[test]
+    fn a_skipped_reference_check_fails_when_references_are_required() {
+        let output = run_probe(Some("1"));
+        let stdout = super::stdout_of(&output);
+        assert!(
+            !output.status.success(),
+            "the probe passed although {}=1:\n{stdout}",
+            super::REQUIRE_REFERENCES
+        );
+        assert!(
+            stdout.contains(&format!(
+                "{PROBE_CHECK} could not run: nothing to compare with"
+            )),
+            "the failure does not name the check:\n{stdout}"
+        );
     }
 }
