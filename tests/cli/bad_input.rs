@@ -85,7 +85,7 @@ fn assert_bad_input(dir: &Path, output: &Output) {
 
 /// The exit code and the whole stderr of a run in `dir`, with `dir` (as given
 /// and canonical) replaced by [`TMP`]: what a snapshot pins.
-fn transcript(dir: &Path, output: &Output) -> String {
+fn exit_and_stderr(dir: &Path, output: &Output) -> String {
     let mut stderr = util::stderr_of(output);
     let canonical = dir
         .canonicalize()
@@ -150,7 +150,7 @@ fn bad_input_cases() {
         );
         let (dir, output) = run_case(Some(spec), name);
         assert_bad_input(dir.path(), &output);
-        insta::assert_snapshot!(transcript(dir.path(), &output));
+        insta::assert_snapshot!(exit_and_stderr(dir.path(), &output));
     });
 }
 
@@ -177,7 +177,7 @@ fn spec_file_missing() {
     // The tables are there; the spec named on the command line is not.
     let (dir, output) = run_case(None, "spec.toml");
     assert_bad_input(dir.path(), &output);
-    insta::assert_snapshot!(transcript(dir.path(), &output));
+    insta::assert_snapshot!(exit_and_stderr(dir.path(), &output));
 }
 
 // ------------------------------------------------------ positive control ---
