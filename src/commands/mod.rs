@@ -156,17 +156,60 @@ fn finish(
 }
 
 /// The commands a report gives for regenerating its outputs, run from the
-/// spec's folder. The same spec in YAML gives the same bytes, so they name
-/// the TOML form; the report says a YAML twin works alike.
+/// spec's folder. They name the spec file that was given (a YAML spec as
+/// `.yaml`), so the command can be pasted as it stands.
 fn regenerate_command(spec_path: &Path) -> String {
-    let stem = spec_path
-        .file_stem()
-        .map(|n| n.to_string_lossy().into_owned())
+    let name = spec_path
+        .file_name()
+        .map(|n| shell_word(&n.to_string_lossy()))
         .unwrap_or_default();
-    format!("heldout verify {stem}.toml\nheldout run {stem}.toml")
+    format!("heldout verify {name}\nheldout run {name}")
+}
+
+/// `word` as a POSIX shell reads it back: unchanged when it holds only
+/// characters no shell treats specially, otherwise in single quotes.
+fn shell_word(word: &str) -> String {
+    let plain = !word.is_empty()
+        && word
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "-_.,+@%/:=".contains(c));
+    if plain {
+        word.to_string()
+    } else {
+        format!("'{}'", word.replace('\'', r"'\''"))
+    }
 }
 
 /// Whether progress may be drawn on stderr.
 fn progress_wanted(quiet: bool) -> bool {
     !quiet && std::io::stderr().is_terminal()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn regenerate_command_names_the_file_that_was_given() {
+        assert_eq!(
+            regenerate_command(Path::new("specs/heat-demand.yaml")),
+            "heldout verify heat-demand.yaml\nheldout run heat-demand.yaml"
+        );
+        assert_eq!(
+            regenerate_command(Path::new("/abs/dir/study.yml")),
+            "heldout verify study.yml\nheldout run study.yml"
+        );
+        assert_eq!(
+            regenerate_command(Path::new("heat-demand.toml")),
+            "heldout verify heat-demand.toml\nheldout run heat-demand.toml"
+        );
+    }
+
+    #[test]
+    fn file_names_a_shell_would_split_are_quoted() {
+        assert_eq!(shell_word("plain-name_1.toml"), "plain-name_1.toml");
+        assert_eq!(shell_word("two words.toml"), "'two words.toml'");
+        assert_eq!(shell_word("it's.yaml"), r"'it'\''s.yaml'");
+        assert_eq!(shell_word("$HOME.toml"), "'$HOME.toml'");
+    }
 }
