@@ -2,6 +2,7 @@
 //! Shared here: the evaluation pipeline that `run` and `verify` both use.
 
 mod compare;
+mod completions;
 mod inspect;
 mod render;
 mod run;
@@ -11,13 +12,13 @@ mod simulate;
 mod verify;
 
 use std::io::IsTerminal;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicUsize, Ordering};
 
 use anyhow::Context;
 
 use crate::cli::Command;
-use crate::error::UsageError;
+use crate::error::{exit, exit_code_for, SpecsFailed, UsageError, VerifyMismatch};
 use crate::execute::{self, CachePolicy, CandidateFits, Shard, Summary};
 use crate::plan::{self, ExperimentPlan};
 use crate::receipt::{self, Receipt};
@@ -35,7 +36,81 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::New(args) => scaffold::scaffold(&args),
         Command::Schema => schema::schema(),
         Command::Report(args) => render::report(&args),
+        Command::Completions(args) => completions::completions(&args),
+        Command::Manual(args) => completions::manual(&args),
     }
+}
+
+/// Runs `one` for every spec in turn, so that one failing spec does not hide
+/// the others. A single spec's error is returned as it is. With several,
+/// each error is printed as it happens, naming its spec (a mismatch was
+/// already reported by `verify` itself), and the command ends with a summary
+/// carrying the worst exit code.
+fn for_each_spec(
+    specs: &[PathBuf],
+    mut one: impl FnMut(&Path) -> anyhow::Result<()>,
+) -> anyhow::Result<()> {
+    if let [only] = specs {
+        return one(only);
+    }
+    let mut codes = Vec::with_capacity(specs.len());
+    for spec in specs {
+        let code = match one(spec) {
+            Ok(()) => exit::OK,
+            Err(error) => {
+                if !error.is::<VerifyMismatch>() {
+                    eprintln!("error: {}", naming_spec(spec, &error));
+                }
+                exit_code_for(&error)
+            }
+        };
+        codes.push((spec.as_path(), code));
+    }
+    match several_failed(&codes) {
+        None => Ok(()),
+        Some(failed) => Err(failed.into()),
+    }
+}
+
+/// The error's text, led by the spec's path unless it already names it
+/// (spec errors do; a data or fit error names the table or the candidate).
+fn naming_spec(spec: &Path, error: &anyhow::Error) -> String {
+    let text = format!("{error:#}");
+    let shown = spec.display().to_string();
+    if text.contains(&shown) {
+        text
+    } else {
+        format!("{shown}: {text}")
+    }
+}
+
+/// The closing error of a command given several specs, `None` when every one
+/// succeeded. Its exit code is the worst: an internal error (3) outranks bad
+/// input (2), which outranks a verification mismatch (1), which outranks
+/// success (0). The codes are numbered in that order, so the worst is the
+/// largest.
+fn several_failed(codes: &[(&Path, u8)]) -> Option<SpecsFailed> {
+    let worst = codes.iter().map(|&(_, code)| code).max()?;
+    if worst == exit::OK {
+        return None;
+    }
+    let failed = codes
+        .iter()
+        .filter(|&&(_, code)| code != exit::OK)
+        .map(|&(spec, code)| {
+            let what = match code {
+                exit::MISMATCH => "mismatch",
+                exit::BAD_INPUT => "bad input",
+                _ => "internal error",
+            };
+            format!("{} ({what})", spec.display())
+        })
+        .collect();
+    Some(SpecsFailed {
+        code: worst,
+        total: codes.len(),
+        failed,
+    })
 }
 
 /// A rayon pool with `jobs` threads (default: one per core).
@@ -188,6 +263,48 @@ fn progress_wanted(quiet: bool) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn several_specs_end_with_the_worst_exit_code() {
+        let (a, b, c) = (
+            Path::new("a.toml"),
+            Path::new("b.toml"),
+            Path::new("c.toml"),
+        );
+        assert!(several_failed(&[(a, exit::OK), (b, exit::OK)]).is_none());
+        let failed = several_failed(&[(a, exit::OK), (b, exit::MISMATCH)]).unwrap();
+        assert_eq!(failed.code, exit::MISMATCH);
+        assert_eq!(failed.to_string(), "1 of 2 specs failed: b.toml (mismatch)");
+        let failed =
+            several_failed(&[(a, exit::BAD_INPUT), (b, exit::MISMATCH), (c, exit::OK)]).unwrap();
+        assert_eq!(failed.code, exit::BAD_INPUT);
+        // Whatever the order, an internal error is the worst.
+        let failed = several_failed(&[
+            (a, exit::INTERNAL),
+            (b, exit::BAD_INPUT),
+            (c, exit::MISMATCH),
+        ])
+        .unwrap();
+        assert_eq!(failed.code, exit::INTERNAL);
+        assert_eq!(
+            failed.to_string(),
+            "3 of 3 specs failed: a.toml (internal error), b.toml (bad input), c.toml (mismatch)"
+        );
+        let error: anyhow::Error = failed.into();
+        assert_eq!(exit_code_for(&error), exit::INTERNAL);
+    }
+
+    #[test]
+    fn errors_of_several_specs_name_the_spec_once() {
+        let spec = Path::new("specs/b.toml");
+        let data = anyhow::anyhow!("data.csv: line 3, column \"y\": cannot read \"x\" as a number");
+        assert_eq!(
+            naming_spec(spec, &data),
+            "specs/b.toml: data.csv: line 3, column \"y\": cannot read \"x\" as a number"
+        );
+        let parse = anyhow::anyhow!("specs/b.toml:4:1: unknown key");
+        assert_eq!(naming_spec(spec, &parse), "specs/b.toml:4:1: unknown key");
+    }
 
     #[test]
     fn regenerate_command_names_the_file_that_was_given() {

@@ -12,10 +12,9 @@ pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let pool = super::thread_pool(args.jobs)?;
     let cache = Cache::new(&args.cache.cache);
-    for spec_path in &args.specs {
-        pool.install(|| run_one(spec_path, args, &cache, shard))?;
-    }
-    Ok(())
+    super::for_each_spec(&args.specs, |spec_path| {
+        pool.install(|| run_one(spec_path, args, &cache, shard))
+    })
 }
 
 /// Parses `I/N` (1-based I) into a 0-based shard.

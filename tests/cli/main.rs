@@ -4,6 +4,7 @@
 //! directory (see `util`).
 
 mod bad_input;
+mod completions;
 mod cv_reference;
 mod demo;
 mod nist;
@@ -14,6 +15,7 @@ mod reproducible;
 mod ridge_lasso;
 mod scaffold;
 mod schema;
+mod several_specs;
 mod simulation;
 mod simulation_report;
 mod smoothing_spline;
