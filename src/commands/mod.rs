@@ -4,6 +4,7 @@
 mod compare;
 mod completions;
 mod inspect;
+mod progress;
 mod render;
 mod run;
 mod scaffold;
@@ -13,7 +14,6 @@ mod verify;
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicUsize, Ordering};
 
 use anyhow::Context;
 
@@ -148,8 +148,10 @@ fn evaluate_spec(
     if loaded.is_simulation() {
         return simulate::evaluate(loaded, spec_path, policy, shard, show_progress);
     }
-    let plan = plan::resolve(loaded)?;
-    evaluate(plan, spec_path, policy, shard, show_progress)
+    let reading = progress::TableProgress::new(&loaded.data().table, show_progress);
+    let plan = plan::resolve_reporting(loaded, &|parsed, total| reading.update(parsed, total));
+    reading.finish(plan.is_ok());
+    evaluate(plan?, spec_path, policy, shard, show_progress)
 }
 
 /// Fits (through the cache policy) and renders a planned spec, or only fills
@@ -166,7 +168,7 @@ fn evaluate(
         .enumerate()
         .filter(|(n, _)| shard.is_none_or(|s| s.owns(*n)))
         .count();
-    let (fits, summary) = with_progress("fitting", total, "tasks", show_progress, |done| {
+    let (fits, summary) = with_progress("fitting", total, "fits", show_progress, |done| {
         Ok(execute::run(&plan, policy, shard, done)?)
     })?;
     let Some(fits) = fits else {
@@ -175,28 +177,22 @@ fn evaluate(
     Ok(Ok(finish(plan, spec_path, &fits, summary, None)?))
 }
 
-/// Runs `work`, which calls `done` once per finished unit of `total`,
-/// drawing `{what}: N/total {units}` on stderr when `show` is set; then
-/// warns about every cache entry that had to be recomputed. Shared by
-/// tables and simulations.
+/// Runs `work`, which calls `done(cached)` once per finished unit of
+/// `total` (from any thread), drawing progress on stderr when `show` is set:
+/// the units computed out of those to compute, the cached ones counted apart,
+/// the time taken and an estimate of the time left. Then warns about every
+/// cache entry that had to be recomputed. Shared by tables and simulations.
 fn with_progress<T>(
     what: &str,
     total: usize,
-    units: &str,
+    units: &'static str,
     show: bool,
-    work: impl FnOnce(&(dyn Fn() + Sync)) -> anyhow::Result<(T, Summary)>,
+    work: impl FnOnce(&(dyn Fn(bool) + Sync)) -> anyhow::Result<(T, Summary)>,
 ) -> anyhow::Result<(T, Summary)> {
-    let finished = AtomicUsize::new(0);
-    let done = || {
-        let count = finished.fetch_add(1, Ordering::Relaxed) + 1;
-        if show {
-            eprint!("\r{what}: {count}/{total} {units}");
-        }
-    };
-    let (value, summary) = work(&done)?;
-    if show {
-        eprintln!();
-    }
+    let progress = progress::WorkProgress::new(what, total, units, show);
+    let outcome = work(&|cached| progress.record(cached));
+    progress.finish(outcome.is_ok());
+    let (value, summary) = outcome?;
     for why in &summary.corrupt {
         eprintln!("warning: cache entry ignored and recomputed: {why}");
     }
