@@ -11,8 +11,8 @@ use clap::{Args, Parser, Subcommand};
     version,
     about = "Choose how flexible a model should be, on data each fit never saw, with evidence a \
              reviewer can regenerate.",
-    after_help = "Exit codes: 0 ok, 1 verification mismatch, 2 bad input (spec, data, arguments), \
-                  3 internal error.\n\nExample:\n  heldout run specs/heat-demand.toml\n  \
+    after_help = "Exit codes: 0 ok, 1 verification mismatch, 2 bad input (spec, data,\n\
+                  arguments), 3 internal error.\n\nExample:\n  heldout run specs/heat-demand.toml\n  \
                   heldout verify specs/heat-demand.toml"
 )]
 pub struct Cli {
@@ -26,19 +26,23 @@ pub enum Command {
     /// spec's rule, write results.json and reports, and the receipt beside the spec.
     #[command(
         after_help = "Example:\n  heldout run specs/heat-demand.toml --out out\n\n\
-        Writes out/<experiment name>/results.json and report.md, and\n\
-        specs/heat-demand.receipt.toml. With --shard I/N only the I-th of N\n\
-        slices of the fits is computed into the cache; a final run without\n\
-        --shard assembles the outputs."
+        Writes out/<experiment name>/results.json, report.md and figures/*.svg,\n\
+        and specs/heat-demand.receipt.toml. report.html is written too when the\n\
+        spec's [report] formats includes \"html\" (formats = [\"markdown\", \"html\"]).\n\
+        With several specs each is run and reported; the exit code is the worst\n\
+        (internal error 3, bad input 2, success 0). With --shard I/N only the\n\
+        I-th of N slices of the fits is computed into the cache; a final run\n\
+        without --shard assembles the outputs. On a terminal, progress shows\n\
+        the fits computed (cached fits counted apart), time taken and time left."
     )]
     Run(RunArgs),
     /// Recompute everything without trusting the cache and compare with the
     /// receipt bit for bit; exit 1 on any difference, naming the first.
-    #[command(
-        after_help = "Example (in CI):\n  heldout verify specs/heat-demand.toml\n\n\
-        Never rewrites the receipt or the outputs. With --trust-cache, cached\n\
-        fits are used (faster, but a tampered cache would go unnoticed)."
-    )]
+    #[command(after_help = "Example (in CI):\n  heldout verify specs/*.toml\n\n\
+        Never rewrites the receipt or the outputs. Every spec is checked, one\n\
+        line each; the exit code is the worst (internal error 3, bad input 2,\n\
+        mismatch 1, identical 0). With --trust-cache, cached fits are used\n\
+        (faster, but a tampered cache would go unnoticed).")]
     Verify(VerifyArgs),
     /// Dry run: rows, folds, fits, and which fits are cached, without fitting.
     #[command(after_help = "Example:\n  heldout plan specs/heat-demand.toml")]
@@ -97,6 +101,21 @@ pub enum Command {
         keys) stay with heldout itself."
     )]
     Schema,
+    /// Print a completion script for bash, zsh or fish, so the shell completes
+    /// heldout's commands, options and file names.
+    #[command(
+        after_help = "Example (bash; put the line in ~/.bashrc to keep it):\n  \
+        source <(heldout completions bash)\n\n\
+        zsh: heldout completions zsh > ~/.zfunc/_heldout (a folder on $fpath)\n\
+        fish: heldout completions fish > ~/.config/fish/completions/heldout.fish"
+    )]
+    Completions(CompletionsArgs),
+    /// Print the manual page (roff) of heldout, or of one command, on stdout.
+    #[command(after_help = "Example:\n  heldout manual | man -l -\n  \
+        heldout manual run > heldout-run.1\n\n\
+        The page of heldout lists every command as heldout-<command>(1); `heldout\n\
+        manual <command>` writes that page. The text is the same as --help's.")]
+    Manual(ManualArgs),
 }
 
 /// Where fitted grids are cached.
@@ -213,4 +232,26 @@ pub struct CompareArgs {
     /// List every number that moved (default: the 40 largest relative changes).
     #[arg(long)]
     pub all: bool,
+}
+
+/// Shells a completion script can be written for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum CompletionShell {
+    Bash,
+    Zsh,
+    Fish,
+}
+
+#[derive(Debug, Args)]
+pub struct CompletionsArgs {
+    /// The shell that will read the script.
+    #[arg(value_name = "SHELL")]
+    pub shell: CompletionShell,
+}
+
+#[derive(Debug, Args)]
+pub struct ManualArgs {
+    /// A command whose page to write instead of heldout's own (e.g. run).
+    #[arg(value_name = "COMMAND")]
+    pub command: Option<String>,
 }

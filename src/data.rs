@@ -62,9 +62,20 @@ impl Table {
 /// squares over millions of rows) stay finite in double precision.
 pub(crate) const LARGEST_VALUE: f64 = 1e150;
 
+/// How often, in bytes parsed, [`load`] reports its progress.
+const REPORT_EVERY: u64 = 1 << 20;
+
 /// Reads `path` (already resolved against the spec folder); `shown` is the
-/// path as messages should print it.
-pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<Table, DataError> {
+/// path as messages should print it. `on_read(parsed, total)` is told the
+/// bytes parsed so far: once with 0 when the file has been read, then about
+/// every mebibyte, and with the total when every row is in. It lets a caller
+/// show progress for a large table; this module draws nothing itself.
+pub(crate) fn load(
+    path: &Path,
+    shown: &Path,
+    request: &TableRequest,
+    on_read: &dyn Fn(u64, u64),
+) -> Result<Table, DataError> {
     let read_error = |error| DataError::Read {
         path: shown.to_path_buf(),
         error,
@@ -80,6 +91,9 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
         ));
     }
     let bytes = std::fs::read(path).map_err(read_error)?;
+    let total = bytes.len() as u64;
+    on_read(0, total);
+    let mut next_report = REPORT_EVERY;
     let digest = crate::digests::file_digest(&bytes);
     let unterminated = !bytes.is_empty() && !bytes.ends_with(b"\n");
 
@@ -164,6 +178,11 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
         if !more {
             break;
         }
+        let parsed = reader.position().byte();
+        if parsed >= next_report {
+            on_read(parsed, total);
+            next_report = parsed + REPORT_EVERY;
+        }
         data_rows += 1;
         let line = record.position().map_or(data_rows + 1, |p| p.line());
         let cell_error = |column: &str, message: String| DataError::Cell {
@@ -236,6 +255,7 @@ pub(crate) fn load(path: &Path, shown: &Path, request: &TableRequest) -> Result<
         row_numbers.push(data_rows);
     }
 
+    on_read(total, total);
     if data_rows == 0 {
         return Err(table_error("the table has a header but no rows".into()));
     }
@@ -278,7 +298,7 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("t.csv");
         std::fs::write(&path, text).unwrap();
-        load(&path, Path::new("t.csv"), request)
+        load(&path, Path::new("t.csv"), request, &|_, _| {})
     }
 
     #[test]
@@ -318,5 +338,38 @@ mod tests {
                 .to_string();
             assert!(err.contains("not a finite number"), "{err}");
         }
+    }
+
+    #[test]
+    fn progress_is_reported_in_bytes_up_to_the_whole_file() {
+        // Rows enough for reports between the start and the end.
+        let mut text = String::from("x,y\n");
+        for row in 0..200_000 {
+            text.push_str(&format!("{row}.25,{}.5\n", row % 97));
+        }
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("t.csv");
+        std::fs::write(&path, &text).unwrap();
+        let seen = std::cell::RefCell::new(Vec::new());
+        let table = load(&path, Path::new("t.csv"), &request(), &|done, total| {
+            seen.borrow_mut().push((done, total));
+        })
+        .unwrap();
+        assert_eq!(table.len(), 200_000);
+        let seen = seen.into_inner();
+        let total = text.len() as u64;
+        assert!(seen.iter().all(|&(_, t)| t == total), "{seen:?}");
+        assert_eq!(seen.first(), Some(&(0, total)));
+        assert_eq!(seen.last(), Some(&(total, total)));
+        // 2.9 MB: reports at the start, past 1 MiB, past 2 MiB and at the end,
+        // each at least a mebibyte after the one before but the last.
+        assert_eq!(seen.len(), 4, "{seen:?}");
+        assert!(
+            seen[..3]
+                .windows(2)
+                .all(|w| w[1].0 - w[0].0 >= REPORT_EVERY),
+            "{seen:?}"
+        );
+        assert!(seen[2].0 < seen[3].0, "{seen:?}");
     }
 }

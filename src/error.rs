@@ -183,6 +183,18 @@ pub(crate) struct VerifyMismatch {
     pub(crate) specs: Vec<String>,
 }
 
+/// Some of several specs given to one command failed. Each was reported
+/// as it failed; this closes the command with the worst exit code of them.
+#[derive(Debug, thiserror::Error)]
+#[error("{} of {total} specs failed: {}", failed.len(), failed.join(", "))]
+pub(crate) struct SpecsFailed {
+    /// The worst exit code among the specs.
+    pub(crate) code: u8,
+    pub(crate) total: usize,
+    /// Each failed spec with what went wrong, e.g. `b.toml (mismatch)`.
+    pub(crate) failed: Vec<String>,
+}
+
 /// Wrong use of the command line that clap cannot catch.
 #[derive(Debug, thiserror::Error)]
 #[error("{0}")]
@@ -193,6 +205,9 @@ pub(crate) struct UsageError(pub String);
 pub fn exit_code_for(error: &anyhow::Error) -> u8 {
     if error.is::<VerifyMismatch>() {
         return exit::MISMATCH;
+    }
+    if let Some(several) = error.downcast_ref::<SpecsFailed>() {
+        return several.code;
     }
     if let Some(crate::execute::ExecuteError::Fit(_)) = error.downcast_ref() {
         return exit::BAD_INPUT;

@@ -354,11 +354,12 @@ pub(crate) fn leave_one_out(
 }
 
 /// Runs every task in parallel and returns the gathered fits.
-/// `on_done` is called once per finished task, from any thread.
+/// `on_done(reused)` is called once per finished task, from any thread, with
+/// whether its fits came from the cache.
 pub(crate) fn run_all(
     plan: &ExperimentPlan,
     policy: CachePolicy<'_>,
-    on_done: &(dyn Fn() + Sync),
+    on_done: &(dyn Fn(bool) + Sync),
 ) -> Result<(Vec<CandidateFits>, Summary), ExecuteError> {
     let (fits, summary) = run(plan, policy, None, on_done)?;
     Ok((fits.unwrap_or_default(), summary))
@@ -366,12 +367,13 @@ pub(crate) fn run_all(
 
 /// Runs the tasks (all, or one shard's) in parallel. Returns the gathered
 /// fits, or `None` for a shard, which only fills the cache.
-/// `on_done` is called once per finished task, from any thread.
+/// `on_done(reused)` is called once per finished task, from any thread, with
+/// whether its fits came from the cache (a failed task counts as computed).
 pub(crate) fn run(
     plan: &ExperimentPlan,
     policy: CachePolicy<'_>,
     shard: Option<Shard>,
-    on_done: &(dyn Fn() + Sync),
+    on_done: &(dyn Fn(bool) + Sync),
 ) -> Result<(Option<Vec<CandidateFits>>, Summary), ExecuteError> {
     let selected: Vec<Task> = tasks(plan)
         .into_iter()
@@ -394,7 +396,7 @@ pub(crate) fn run(
                 }
                 o
             });
-            on_done();
+            on_done(outcome.as_ref().is_ok_and(|o| o.reused));
             outcome
         })
         .collect();

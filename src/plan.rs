@@ -106,6 +106,15 @@ impl ExperimentPlan {
 
 /// Loads the data and resolves the spec into a plan.
 pub(crate) fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
+    resolve_reporting(spec, &|_, _| {})
+}
+
+/// [`resolve`], telling `on_read` how far the table has been read (see
+/// [`data::load`]).
+pub(crate) fn resolve_reporting(
+    spec: LoadedSpec,
+    on_read: &dyn Fn(u64, u64),
+) -> Result<ExperimentPlan, DataError> {
     let data_spec = spec.data().clone();
     let split_spec = spec.spec.split.clone();
 
@@ -143,7 +152,7 @@ pub(crate) fn resolve(spec: LoadedSpec) -> Result<ExperimentPlan, DataError> {
     };
     let shown = PathBuf::from(&data_spec.table);
     let resolved = resolve_relative(spec.base_dir(), &shown);
-    let table = data::load(&resolved, &resolved, &request)?;
+    let table = data::load(&resolved, &resolved, &request, on_read)?;
     let target = table.column(&data_spec.target).to_vec();
 
     let table_error = |message: String| DataError::Table {

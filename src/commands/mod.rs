@@ -2,7 +2,9 @@
 //! Shared here: the evaluation pipeline that `run` and `verify` both use.
 
 mod compare;
+mod completions;
 mod inspect;
+mod progress;
 mod render;
 mod run;
 mod scaffold;
@@ -11,13 +13,12 @@ mod simulate;
 mod verify;
 
 use std::io::IsTerminal;
-use std::path::Path;
-use std::sync::atomic::{AtomicUsize, Ordering};
+use std::path::{Path, PathBuf};
 
 use anyhow::Context;
 
 use crate::cli::Command;
-use crate::error::UsageError;
+use crate::error::{exit, exit_code_for, SpecsFailed, UsageError, VerifyMismatch};
 use crate::execute::{self, CachePolicy, CandidateFits, Shard, Summary};
 use crate::plan::{self, ExperimentPlan};
 use crate::receipt::{self, Receipt};
@@ -35,7 +36,81 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::New(args) => scaffold::scaffold(&args),
         Command::Schema => schema::schema(),
         Command::Report(args) => render::report(&args),
+        Command::Completions(args) => completions::completions(&args),
+        Command::Manual(args) => completions::manual(&args),
     }
+}
+
+/// Runs `one` for every spec in turn, so that one failing spec does not hide
+/// the others. A single spec's error is returned as it is. With several,
+/// each error is printed as it happens, naming its spec (a mismatch was
+/// already reported by `verify` itself), and the command ends with a summary
+/// carrying the worst exit code.
+fn for_each_spec(
+    specs: &[PathBuf],
+    mut one: impl FnMut(&Path) -> anyhow::Result<()>,
+) -> anyhow::Result<()> {
+    if let [only] = specs {
+        return one(only);
+    }
+    let mut codes = Vec::with_capacity(specs.len());
+    for spec in specs {
+        let code = match one(spec) {
+            Ok(()) => exit::OK,
+            Err(error) => {
+                if !error.is::<VerifyMismatch>() {
+                    eprintln!("error: {}", naming_spec(spec, &error));
+                }
+                exit_code_for(&error)
+            }
+        };
+        codes.push((spec.as_path(), code));
+    }
+    match several_failed(&codes) {
+        None => Ok(()),
+        Some(failed) => Err(failed.into()),
+    }
+}
+
+/// The error's text, led by the spec's path unless it already names it
+/// (spec errors do; a data or fit error names the table or the candidate).
+fn naming_spec(spec: &Path, error: &anyhow::Error) -> String {
+    let text = format!("{error:#}");
+    let shown = spec.display().to_string();
+    if text.contains(&shown) {
+        text
+    } else {
+        format!("{shown}: {text}")
+    }
+}
+
+/// The closing error of a command given several specs, `None` when every one
+/// succeeded. Its exit code is the worst: an internal error (3) outranks bad
+/// input (2), which outranks a verification mismatch (1), which outranks
+/// success (0). The codes are numbered in that order, so the worst is the
+/// largest.
+fn several_failed(codes: &[(&Path, u8)]) -> Option<SpecsFailed> {
+    let worst = codes.iter().map(|&(_, code)| code).max()?;
+    if worst == exit::OK {
+        return None;
+    }
+    let failed = codes
+        .iter()
+        .filter(|&&(_, code)| code != exit::OK)
+        .map(|&(spec, code)| {
+            let what = match code {
+                exit::MISMATCH => "mismatch",
+                exit::BAD_INPUT => "bad input",
+                _ => "internal error",
+            };
+            format!("{} ({what})", spec.display())
+        })
+        .collect();
+    Some(SpecsFailed {
+        code: worst,
+        total: codes.len(),
+        failed,
+    })
 }
 
 /// A rayon pool with `jobs` threads (default: one per core).
@@ -73,7 +148,10 @@ fn evaluate_spec(
     if loaded.is_simulation() {
         return simulate::evaluate(loaded, spec_path, policy, shard, show_progress);
     }
-    let plan = plan::resolve(loaded)?;
+    let reading = progress::TableProgress::new(&loaded.data().table, show_progress);
+    let plan = plan::resolve_reporting(loaded, &|parsed, total| reading.update(parsed, total));
+    reading.finish(plan.is_ok());
+    let plan = plan?;
     if plan.table.unterminated {
         eprintln!(
             "warning: {}: the last line ends without a line break; check that the table \
@@ -98,7 +176,7 @@ fn evaluate(
         .enumerate()
         .filter(|(n, _)| shard.is_none_or(|s| s.owns(*n)))
         .count();
-    let (fits, summary) = with_progress("fitting", total, "tasks", show_progress, |done| {
+    let (fits, summary) = with_progress("fitting", total, "fits", show_progress, |done| {
         Ok(execute::run(&plan, policy, shard, done)?)
     })?;
     let Some(fits) = fits else {
@@ -107,28 +185,22 @@ fn evaluate(
     Ok(Ok(finish(plan, spec_path, &fits, summary, None)?))
 }
 
-/// Runs `work`, which calls `done` once per finished unit of `total`,
-/// drawing `{what}: N/total {units}` on stderr when `show` is set; then
-/// warns about every cache entry that had to be recomputed. Shared by
-/// tables and simulations.
+/// Runs `work`, which calls `done(cached)` once per finished unit of
+/// `total` (from any thread), drawing progress on stderr when `show` is set:
+/// the units computed out of those to compute, the cached ones counted apart,
+/// the time taken and an estimate of the time left. Then warns about every
+/// cache entry that had to be recomputed. Shared by tables and simulations.
 fn with_progress<T>(
     what: &str,
     total: usize,
-    units: &str,
+    units: &'static str,
     show: bool,
-    work: impl FnOnce(&(dyn Fn() + Sync)) -> anyhow::Result<(T, Summary)>,
+    work: impl FnOnce(&(dyn Fn(bool) + Sync)) -> anyhow::Result<(T, Summary)>,
 ) -> anyhow::Result<(T, Summary)> {
-    let finished = AtomicUsize::new(0);
-    let done = || {
-        let count = finished.fetch_add(1, Ordering::Relaxed) + 1;
-        if show {
-            eprint!("\r{what}: {count}/{total} {units}");
-        }
-    };
-    let (value, summary) = work(&done)?;
-    if show {
-        eprintln!();
-    }
+    let progress = progress::WorkProgress::new(what, total, units, show);
+    let outcome = work(&|cached| progress.record(cached));
+    progress.finish(outcome.is_ok());
+    let (value, summary) = outcome?;
     for why in &summary.corrupt {
         eprintln!("warning: cache entry ignored and recomputed: {why}");
     }
@@ -163,17 +235,102 @@ fn finish(
 }
 
 /// The commands a report gives for regenerating its outputs, run from the
-/// spec's folder. The same spec in YAML gives the same bytes, so they name
-/// the TOML form; the report says a YAML twin works alike.
+/// spec's folder. They name the spec file that was given (a YAML spec as
+/// `.yaml`), so the command can be pasted as it stands.
 fn regenerate_command(spec_path: &Path) -> String {
-    let stem = spec_path
-        .file_stem()
-        .map(|n| n.to_string_lossy().into_owned())
+    let name = spec_path
+        .file_name()
+        .map(|n| shell_word(&n.to_string_lossy()))
         .unwrap_or_default();
-    format!("heldout verify {stem}.toml\nheldout run {stem}.toml")
+    format!("heldout verify {name}\nheldout run {name}")
+}
+
+/// `word` as a POSIX shell reads it back: unchanged when it holds only
+/// characters no shell treats specially, otherwise in single quotes.
+fn shell_word(word: &str) -> String {
+    let plain = !word.is_empty()
+        && word
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "-_.,+@%/:=".contains(c));
+    if plain {
+        word.to_string()
+    } else {
+        format!("'{}'", word.replace('\'', r"'\''"))
+    }
 }
 
 /// Whether progress may be drawn on stderr.
 fn progress_wanted(quiet: bool) -> bool {
     !quiet && std::io::stderr().is_terminal()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn several_specs_end_with_the_worst_exit_code() {
+        let (a, b, c) = (
+            Path::new("a.toml"),
+            Path::new("b.toml"),
+            Path::new("c.toml"),
+        );
+        assert!(several_failed(&[(a, exit::OK), (b, exit::OK)]).is_none());
+        let failed = several_failed(&[(a, exit::OK), (b, exit::MISMATCH)]).unwrap();
+        assert_eq!(failed.code, exit::MISMATCH);
+        assert_eq!(failed.to_string(), "1 of 2 specs failed: b.toml (mismatch)");
+        let failed =
+            several_failed(&[(a, exit::BAD_INPUT), (b, exit::MISMATCH), (c, exit::OK)]).unwrap();
+        assert_eq!(failed.code, exit::BAD_INPUT);
+        // Whatever the order, an internal error is the worst.
+        let failed = several_failed(&[
+            (a, exit::INTERNAL),
+            (b, exit::BAD_INPUT),
+            (c, exit::MISMATCH),
+        ])
+        .unwrap();
+        assert_eq!(failed.code, exit::INTERNAL);
+        assert_eq!(
+            failed.to_string(),
+            "3 of 3 specs failed: a.toml (internal error), b.toml (bad input), c.toml (mismatch)"
+        );
+        let error: anyhow::Error = failed.into();
+        assert_eq!(exit_code_for(&error), exit::INTERNAL);
+    }
+
+    #[test]
+    fn errors_of_several_specs_name_the_spec_once() {
+        let spec = Path::new("specs/b.toml");
+        let data = anyhow::anyhow!("data.csv: line 3, column \"y\": cannot read \"x\" as a number");
+        assert_eq!(
+            naming_spec(spec, &data),
+            "specs/b.toml: data.csv: line 3, column \"y\": cannot read \"x\" as a number"
+        );
+        let parse = anyhow::anyhow!("specs/b.toml:4:1: unknown key");
+        assert_eq!(naming_spec(spec, &parse), "specs/b.toml:4:1: unknown key");
+    }
+
+    #[test]
+    fn regenerate_command_names_the_file_that_was_given() {
+        assert_eq!(
+            regenerate_command(Path::new("specs/heat-demand.yaml")),
+            "heldout verify heat-demand.yaml\nheldout run heat-demand.yaml"
+        );
+        assert_eq!(
+            regenerate_command(Path::new("/abs/dir/study.yml")),
+            "heldout verify study.yml\nheldout run study.yml"
+        );
+        assert_eq!(
+            regenerate_command(Path::new("heat-demand.toml")),
+            "heldout verify heat-demand.toml\nheldout run heat-demand.toml"
+        );
+    }
+
+    #[test]
+    fn file_names_a_shell_would_split_are_quoted() {
+        assert_eq!(shell_word("plain-name_1.toml"), "plain-name_1.toml");
+        assert_eq!(shell_word("two words.toml"), "'two words.toml'");
+        assert_eq!(shell_word("it's.yaml"), r"'it'\''s.yaml'");
+        assert_eq!(shell_word("$HOME.toml"), "'$HOME.toml'");
+    }
 }

@@ -22,10 +22,9 @@ pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
     if swept > 0 && !args.quiet {
         eprintln!("removed {swept} temporary file(s) a stopped run left in the cache");
     }
-    for spec_path in &args.specs {
-        pool.install(|| run_one(spec_path, args, &cache, shard))?;
-    }
-    Ok(())
+    super::for_each_spec(&args.specs, |spec_path| {
+        pool.install(|| run_one(spec_path, args, &cache, shard))
+    })
 }
 
 /// Parses `I/N` (1-based I) into a 0-based shard.

@@ -15,27 +15,24 @@ pub(crate) fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
     let pool = super::thread_pool(args.jobs)?;
     crate::output::require_folder(&args.cache.cache, "--cache")?;
     let cache = Cache::new(&args.cache.cache);
-    let mut failed = Vec::new();
-    for spec_path in &args.specs {
+    super::for_each_spec(&args.specs, |spec_path| {
         let differences = pool.install(|| verify_one(spec_path, args, &cache))?;
         if differences.is_empty() {
             if !args.quiet {
                 println!("verified {}: identical to its receipt", spec_path.display());
             }
-        } else {
-            println!("MISMATCH {}", spec_path.display());
-            println!("  first difference: {}", differences[0]);
-            for other in &differences[1..] {
-                println!("  also: {other}");
-            }
-            failed.push(spec_path.display().to_string());
+            return Ok(());
         }
-    }
-    if failed.is_empty() {
-        Ok(())
-    } else {
-        Err(VerifyMismatch { specs: failed }.into())
-    }
+        println!("MISMATCH {}", spec_path.display());
+        println!("  first difference: {}", differences[0]);
+        for other in &differences[1..] {
+            println!("  also: {other}");
+        }
+        Err(VerifyMismatch {
+            specs: vec![spec_path.display().to_string()],
+        }
+        .into())
+    })
 }
 
 fn verify_one(spec_path: &Path, args: &VerifyArgs, cache: &Cache) -> anyhow::Result<Vec<String>> {

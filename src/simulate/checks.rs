@@ -22,7 +22,7 @@ fn outcomes(plan: &SimulationPlan) -> Vec<ReplicateOutcome> {
         read: None,
         write: None,
     };
-    run::run(plan, policy, None, &|| {}).unwrap().0.unwrap()
+    run::run(plan, policy, None, &|_| {}).unwrap().0.unwrap()
 }
 
 /// The decomposition of setting `s`, with its pointwise standard errors.

@@ -239,7 +239,7 @@ pub(crate) fn run_replicate(
     summary: &mut Summary,
 ) -> Result<ReplicateOutcome, ExecuteError> {
     let experiment = plan.replicate_plan(&replicate);
-    let (fits, part) = execute::run_all(&experiment, policy, &|| {})?;
+    let (fits, part) = execute::run_all(&experiment, policy, &|_| {})?;
     summary.absorb(part);
     let metric = plan.spec.spec.choose.metric;
     let mut outcome = ReplicateOutcome {
@@ -301,11 +301,13 @@ pub(crate) enum SimulateError {
 
 /// Runs every replicate (or one shard's), in parallel, gathered in order.
 /// Returns the outcomes, or `None` for a shard, which only fills the cache.
+/// `on_done(cached)` is called once per finished replicate, from any thread,
+/// with whether every one of its fits came from the cache.
 pub(crate) fn run(
     plan: &SimulationPlan,
     policy: CachePolicy<'_>,
     shard: Option<Shard>,
-    on_done: &(dyn Fn() + Sync),
+    on_done: &(dyn Fn(bool) + Sync),
 ) -> Result<(Option<Vec<ReplicateOutcome>>, Summary), SimulateError> {
     let selected: Vec<usize> = (0..plan.setup.replicates)
         .filter(|&r| shard.is_none_or(|s| s.owns(r)))
@@ -322,7 +324,8 @@ pub(crate) fn run(
                     run_replicate(plan, replicate, policy, &mut summary)
                         .map_err(SimulateError::from)
                 });
-            on_done();
+            // A replicate counts as cached when none of its fits was computed.
+            on_done(outcome.is_ok() && summary.computed == 0);
             outcome.map(|o| (keep.then_some(o), summary))
         })
         .collect();

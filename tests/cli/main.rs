@@ -5,6 +5,7 @@
 
 mod bad_input;
 mod ci_doc;
+mod completions;
 mod cv_reference;
 mod demo;
 mod fuzz;
@@ -17,6 +18,7 @@ mod reproducible;
 mod ridge_lasso;
 mod scaffold;
 mod schema;
+mod several_specs;
 mod simulation;
 mod simulation_report;
 mod smoothing_spline;

@@ -275,15 +275,43 @@ report:
 "#;
 
 #[test]
-fn yaml_twin_of_the_spec_writes_identical_bytes() {
+fn yaml_twin_of_the_spec_writes_identical_bytes_but_for_the_file_it_names() {
     let (_base, baseline) = demo_baseline();
     let dir = tempfile::tempdir().unwrap();
     demo_tree(dir.path());
     std::fs::remove_file(dir.path().join("specs/heat-demand.toml")).unwrap();
     std::fs::write(dir.path().join("specs/heat-demand.yaml"), DEMO_YAML).unwrap();
     heldout_ok(dir.path(), &["run", "specs/heat-demand.yaml"]);
-    // Same stem, so the same receipt name; the contents must match too.
-    assert_eq!(demo_artifacts(dir.path()), baseline);
+    // Same stem, so the same receipt name; the numbers and figures match.
+    let twin = demo_artifacts(dir.path());
+    assert_eq!(twin.results, baseline.results);
+    // The report's regeneration commands name the file that was run, which
+    // is the only difference in its text ...
+    let toml_commands = "heldout verify heat-demand.toml\nheldout run heat-demand.toml";
+    let yaml_commands = "heldout verify heat-demand.yaml\nheldout run heat-demand.yaml";
+    assert!(
+        baseline.report.contains(toml_commands),
+        "{}",
+        baseline.report
+    );
+    assert!(twin.report.contains(yaml_commands), "{}", twin.report);
+    assert_eq!(
+        twin.report.replace(yaml_commands, toml_commands),
+        baseline.report
+    );
+    // ... and so the receipt differs in the two reports' digests alone.
+    let other_entries = |receipt: &str| -> Vec<String> {
+        receipt
+            .split("\n\n")
+            .filter(|entry| !entry.contains("path = \"report."))
+            .map(str::to_owned)
+            .collect()
+    };
+    assert_eq!(
+        other_entries(&twin.receipt),
+        other_entries(&baseline.receipt)
+    );
+    assert_ne!(twin.receipt, baseline.receipt);
 }
 
 // ---------------------------------------------------------------------------
