@@ -143,6 +143,7 @@ pub(crate) fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Fig
         families => families.iter().map(|f| f.name).collect::<Vec<_>>(),
         family_counts => Value::from_serialize(&families),
         split_phrase => super::split_phrase(results),
+        test_share => super::test_share(results),
         metric_label => super::metric_label(results.metric),
         rule_words => super::rule_words(results.rule),
         higher_is_better => results.metric.higher_is_better(),

@@ -32,7 +32,7 @@ pub(crate) fn render(
         }
     });
     env.add_filter("num", |v: f64| super::format_number(v));
-    env.add_filter("exact", |v: f64| super::format_exact(v));
+    env.add_filter("coef", |v: f64| super::format_coefficient(v));
     env.add_filter("df", |v: f64| super::format_df(v));
     env.add_template("report.html", TEMPLATE)?;
     env.add_template("report.css", STYLE)?;

@@ -20,7 +20,7 @@ pub(crate) fn render(
     let mut env = Environment::new();
     env.set_trim_blocks(true);
     env.add_filter("num", |v: f64| super::format_number(v));
-    env.add_filter("exact", |v: f64| super::format_exact(v));
+    env.add_filter("coef", |v: f64| super::format_coefficient(v));
     env.add_filter("df", |v: f64| super::format_df(v));
     env.add_filter("md", |v: String| super::escape_markdown(&v));
     env.add_template("report.md", TEMPLATE)?;

@@ -13,6 +13,8 @@ mod context;
 pub(crate) mod figures;
 pub(crate) mod html;
 pub(crate) mod markdown;
+#[cfg(test)]
+pub(crate) mod sample;
 pub(crate) mod scaffold;
 pub(crate) mod terminal;
 
@@ -150,6 +152,35 @@ pub(crate) fn split_phrase(results: &Results) -> String {
     }
 }
 
+/// How the locked test set's size reads after "N rows": the fraction of the
+/// table it actually holds and, when that differs from `[split] holdout`,
+/// the fraction asked for and why they differ (whole groups or time points
+/// go to one side, and a count of rows is a whole number).
+pub(crate) fn test_share(results: &Results) -> String {
+    let share = |v: f64| {
+        let text = format_significant(v, 3);
+        if text.contains('.') && !text.contains('e') {
+            text.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            text
+        }
+    };
+    let rows = &results.rows;
+    let actual = share(rows.test as f64 / rows.total.max(1) as f64);
+    let asked = share(results.split.holdout);
+    if actual == asked {
+        return format!("{actual} of the table");
+    }
+    let why = if results.data.group.is_some() {
+        "whole groups go to one side"
+    } else if results.split.method == crate::spec::SplitMethod::Ordered {
+        "whole time points go to one side"
+    } else {
+        "a test set holds whole rows"
+    };
+    format!("{actual} of the table; holdout asked for {asked}, but {why}")
+}
+
 /// Positions of `items` in order of effective degrees of freedom, least
 /// flexible first. The sort is stable, so ties keep the given (spec) order;
 /// a NaN df sorts last.
@@ -196,6 +227,14 @@ pub(crate) fn table_order<T>(
 /// A number for people: four significant digits, scientific when very large
 /// or small. Deterministic: uses only Rust's own float formatting.
 pub(crate) fn format_number(value: f64) -> String {
+    format_significant(value, 4)
+}
+
+/// `value` to `digits` significant digits (trailing zeros kept, so a column
+/// reads to one precision), scientific when its decimal exponent is below −3
+/// or reaches `digits + 2`; "n/a" for NaN. Only Rust's own float formatting
+/// is used, so the text is the same on every machine.
+pub(crate) fn format_significant(value: f64, digits: usize) -> String {
     if value.is_nan() {
         return "n/a".to_string();
     }
@@ -205,39 +244,36 @@ pub(crate) fn format_number(value: f64) -> String {
     if value.is_infinite() {
         return if value > 0.0 { "∞" } else { "-∞" }.to_string();
     }
-    let scientific = format!("{value:.3e}");
+    let last = digits.max(1) - 1;
+    let scientific = format!("{value:.last$e}");
     let exponent: i32 = scientific
         .rsplit('e')
         .next()
         .and_then(|e| e.parse().ok())
         .unwrap_or(0);
-    if (-3..6).contains(&exponent) {
-        let decimals = (3 - exponent).max(0) as usize;
+    if (-3..digits as i32 + 2).contains(&exponent) {
+        let decimals = (last as i32 - exponent).max(0) as usize;
         format!("{value:.decimals$}")
     } else {
         scientific
     }
 }
 
-/// Effective degrees of freedom: whole numbers without decimals (a degree-3
-/// polynomial has 4), others as [`format_number`].
+/// Effective degrees of freedom, to three significant digits in every table
+/// and caption (2.00, 14.0, 240), so a column reads to one precision;
+/// values of 100 and more keep their whole digits.
 pub(crate) fn format_df(value: f64) -> String {
-    if value.fract() == 0.0 && value.abs() < 1e15 {
+    if value.abs() >= 100.0 && value.abs() < 1e15 {
         format!("{value:.0}")
     } else {
-        format_number(value)
+        format_significant(value, 3)
     }
 }
 
-/// A number with every digit that round-trips: plain decimals for ordinary
-/// magnitudes, scientific notation for very large or small ones.
-pub(crate) fn format_exact(value: f64) -> String {
-    let magnitude = value.abs();
-    if value == 0.0 || (1e-4..1e15).contains(&magnitude) {
-        format!("{value}")
-    } else {
-        format!("{value:e}")
-    }
+/// A coefficient of the final fit in the reports: six significant digits
+/// (`results.json` keeps every bit).
+pub(crate) fn format_coefficient(value: f64) -> String {
+    format_significant(value, 6)
 }
 
 /// Escapes text from data or the spec for Markdown (including table cells).
@@ -270,9 +306,49 @@ mod tests {
         assert_eq!(format_number(123456.0), "123456");
         assert_eq!(format_number(1.5e-7), "1.500e-7");
         assert_eq!(format_number(0.0), "0");
-        assert_eq!(format_df(4.0), "4");
+        // Effective df: three significant digits, whatever the family.
+        assert_eq!(format_df(4.0), "4.00");
+        assert_eq!(format_df(14.0), "14.0");
+        assert_eq!(format_df(2.999_4), "3.00");
+        assert_eq!(format_df(1.386_7), "1.39");
         assert_eq!(format_df(240.0), "240");
-        assert_eq!(format_df(4.25), "4.250");
+        assert_eq!(format_df(1234.4), "1234");
+        assert_eq!(format_df(0.012_34), "0.0123");
+        assert_eq!(format_df(f64::NAN), "n/a");
+        // Coefficients: six significant digits.
+        assert_eq!(format_coefficient(12.345_678_9), "12.3457");
+        assert_eq!(format_coefficient(-0.001_234_567_89), "-0.00123457");
+        assert_eq!(format_coefficient(-0.000_123_456_789), "-1.23457e-4");
+        assert_eq!(format_coefficient(2.0), "2.00000");
+        assert_eq!(format_coefficient(1_234_567.0), "1234567");
+        assert_eq!(format_coefficient(123_456_789.0), "1.23457e8");
+        assert_eq!(format_coefficient(3.2e-9), "3.20000e-9");
+    }
+
+    #[test]
+    fn the_test_set_states_the_share_it_holds() {
+        let mut results = sample::results(&[("linear", 2.0, 1.0, 1.1, 0.1)]);
+        // 20 of 100 rows, as asked.
+        assert_eq!(test_share(&results), "0.2 of the table");
+        // Whole groups: 29 of 100 rows where 0.2 was asked for.
+        results.rows.test = 29;
+        results.data.group = Some("site".to_string());
+        assert_eq!(
+            test_share(&results),
+            "0.29 of the table; holdout asked for 0.2, but whole groups go to one side"
+        );
+        // Rounding to whole rows: 0.199 of 301.
+        results.data.group = None;
+        results.rows = crate::results::RowCounts {
+            total: 301,
+            train: 241,
+            test: 60,
+            dropped: 0,
+        };
+        assert_eq!(
+            test_share(&results),
+            "0.199 of the table; holdout asked for 0.2, but a test set holds whole rows"
+        );
     }
 
     #[test]

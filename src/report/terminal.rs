@@ -2,7 +2,7 @@
 
 use std::fmt::Write;
 
-use super::format_number;
+use super::{format_df, format_number};
 use crate::results::Results;
 
 /// Renders the terminal summary.
@@ -36,7 +36,7 @@ pub(crate) fn render(results: &Results) -> String {
             out,
             "{:<id_width$}  {:>8}  {:>10}  {:>10}  {:>9}{mark}",
             c.id,
-            format_number(c.effective_df),
+            format_df(c.effective_df),
             format_number(c.train_score),
             format_number(c.cv_score),
             format_number(c.cv_se),
@@ -106,7 +106,7 @@ pub(crate) fn render_simulation(results: &Results) -> String {
             out,
             "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
             s.id,
-            format_number(s.effective_df),
+            format_df(s.effective_df),
             format_number(s.bias_sq),
             format_number(s.variance),
             format_number(s.decomposition_sum),

@@ -25,4 +25,5 @@ mod smoothing_spline;
 mod spec_as_read;
 mod splines;
 mod split_reference;
+mod svg;
 mod util;

@@ -120,27 +120,31 @@ fn demo_page_is_self_contained() {
 /// A column name and a title that would run as markup if left unescaped.
 const HOSTILE: &str = "<script>alert(1)</script> & \"q\"";
 
-/// A small table whose only feature is named [`HOSTILE`], and its spec.
-fn hostile_tree(dir: &Path) {
-    let mut csv = String::from("\"<script>alert(1)</script> & \"\"q\"\"\",y\n");
+/// Writes `table.csv` in `dir`: 60 rows of a feature (its header cell as
+/// given) from 0 to 9.83 and a target `y` = `curve` plus a fixed wiggle as
+/// noise.
+fn wiggly_table(dir: &Path, feature: &str, curve: impl Fn(f64) -> f64) {
+    let mut csv = format!("{feature},y\n");
     for i in 0..60 {
         let x = f64::from(i) / 6.0;
-        // An invented bent line with a fixed wiggle as noise.
-        let y = 1.0 + 0.5 * x - 0.04 * x * x + [0.3, -0.2, 0.1, -0.3, 0.2][i as usize % 5];
+        let y = curve(x) + [0.3, -0.2, 0.1, -0.3, 0.2][i as usize % 5];
         csv.push_str(&format!("{x:.4},{y:.4}\n"));
     }
     std::fs::write(dir.join("table.csv"), csv).unwrap();
-    std::fs::write(
-        dir.join("hostile.toml"),
+}
+
+/// The spec of a table written by [`wiggly_table`]: the `experiment` table's
+/// lines, its one feature as a TOML string, polynomials of degree 1 to 3 and
+/// `more` candidates, a report in `formats` (TOML strings).
+fn wiggly_spec(experiment: &str, feature: &str, more: &str, formats: &str) -> String {
+    format!(
         r#"[experiment]
-name = "hostile"
-title = "<b>bold</b> & <i>it</i>"
-seed = 7
+{experiment}
 
 [data]
 table = "table.csv"
 target = "y"
-features = ['<script>alert(1)</script> & "q"']
+features = [{feature}]
 
 [split]
 holdout = 0.2
@@ -149,10 +153,27 @@ folds = 5
 [[candidate]]
 family = "polynomial"
 degree = [1, 2, 3]
-
+{more}
 [report]
-formats = ["markdown", "html"]
-"#,
+formats = [{formats}]
+"#
+    )
+}
+
+/// A small table whose only feature is named [`HOSTILE`], and its spec.
+fn hostile_tree(dir: &Path) {
+    // An invented bent line.
+    wiggly_table(dir, "\"<script>alert(1)</script> & \"\"q\"\"\"", |x| {
+        1.0 + 0.5 * x - 0.04 * x * x
+    });
+    std::fs::write(
+        dir.join("hostile.toml"),
+        wiggly_spec(
+            "name = \"hostile\"\ntitle = \"<b>bold</b> & <i>it</i>\"\nseed = 7",
+            r#"'<script>alert(1)</script> & "q"'"#,
+            "",
+            r#""markdown", "html""#,
+        ),
     )
     .unwrap();
 }
@@ -333,12 +354,96 @@ fn tables_list_settings_by_effective_df_while_results_keep_spec_order() {
 }
 
 // ---------------------------------------------------------------------------
+// The score axis of the error-by-flexibility figure.
+
+/// A straight line with a small fixed wiggle, fitted by polynomials and by
+/// ridge with a penalty so large that it predicts little but the mean: one
+/// setting far off the others.
+fn far_off_tree(dir: &Path) {
+    wiggly_table(dir, "x", |x| 2.0 + 3.0 * x);
+    std::fs::write(
+        dir.join("spec.toml"),
+        wiggly_spec(
+            "name = \"far-off\"\nseed = 11",
+            r#""x""#,
+            "\n[[candidate]]\nfamily = \"ridge\"\npenalty = [1000000]\n",
+            r#""markdown""#,
+        ),
+    )
+    .unwrap();
+}
+
+#[test]
+fn a_far_off_setting_sits_on_the_edge_of_the_score_axis_with_its_value() {
+    let dir = tempfile::tempdir().unwrap();
+    far_off_tree(dir.path());
+    let output = util::run_spec(dir.path(), "run");
+    util::assert_success(&output);
+    let out = dir.path().join("out/far-off");
+    let results = util::read_json(&out.join("results.json"));
+    let score = |c: &serde_json::Value, key: &str| c[key].as_f64().unwrap();
+    let candidates = results["candidates"].as_array().unwrap();
+    let ridge = candidates.iter().find(|c| c["family"] == "ridge").unwrap();
+    let far = score(ridge, "cv_score");
+    let best = score(&results["choice"], "best_cv_score");
+    let se = score(&results["choice"], "best_cv_se");
+    assert!(
+        far > best + 8.0 * se,
+        "ridge {far} is not far off {best} ± {se}"
+    );
+
+    let all = crate::svg::elements(&read(&out.join("figures/error-by-flexibility.svg")));
+    // The value axis stops short of the far-off score but reaches every
+    // polynomial's cross-validated score.
+    let ticks: Vec<(f64, f64)> = all
+        .iter()
+        .filter(|e| e.tag == "text" && e.get("text-anchor") == Some("end"))
+        .filter_map(|e| Some((e.words.parse::<f64>().ok()?, e.at().1)))
+        .collect();
+    let (edge, bottom) = crate::svg::value_axis_rows(&all, "#555E6A");
+    assert!(ticks.len() >= 3, "value ticks {ticks:?}");
+    assert!(
+        crate::svg::pixel_row(&ticks, far) < edge - 50.0,
+        "{far} is within the axis"
+    );
+    for c in candidates.iter().filter(|c| c["family"] == "polynomial") {
+        let row = crate::svg::pixel_row(&ticks, score(c, "cv_score"));
+        assert!(
+            row >= edge && row <= bottom,
+            "{}: outside the axis",
+            c["id"]
+        );
+    }
+    // The ridge setting (second family: ember squares) is drawn on the top
+    // edge, filled, with its cross-validated score written just below it.
+    let on_edge: Vec<(f64, f64)> = all
+        .iter()
+        .filter(|e| e.tag == "polygon" && e.get("fill") == Some("#D0711C"))
+        .map(crate::svg::Element::at)
+        .filter(|&(_, y)| (y - edge).abs() <= 1.0)
+        .collect();
+    assert_eq!(on_edge.len(), 1, "ridge markers on the edge: {on_edge:?}");
+    let labels = crate::svg::edge_labels(&all, "#1D232B");
+    assert!(
+        labels.iter().any(|&(v, x, y)| crate::svg::reads_as(v, far)
+            && (x - on_edge[0].0).abs() < 60.0
+            && y > edge
+            && y < edge + 40.0),
+        "no label reading {far} below the marker: {labels:?}"
+    );
+    // The caption states the rule.
+    let markdown = read(&out.join("report.md"));
+    assert!(markdown.contains("axis reaches the scores within 8 standard errors of the best"));
+    assert!(markdown.contains("Scores beyond it sit on its edge with their value beside them"));
+}
+
+// ---------------------------------------------------------------------------
 // A real browser.
 
-const CHROMIUM: &str = "/usr/bin/chromium";
+pub const CHROMIUM: &str = "/usr/bin/chromium";
 
 /// Runs headless Chromium on `page` with `extra` arguments; returns stderr.
-fn chromium(page: &Path, profile: &Path, extra: &[&str]) -> (String, String) {
+pub fn chromium(page: &Path, profile: &Path, extra: &[&str]) -> (String, String) {
     let output = Command::new(CHROMIUM)
         .args([
             "--headless",

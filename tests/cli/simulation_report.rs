@@ -8,6 +8,7 @@ use serde_json::Value;
 
 use crate::reports::{inline_svgs, read, without_svgs};
 use crate::simulation::{demo_spec, heldout_ok, number};
+use crate::svg::{edge_labels, elements, pixel_row, reads_as, value_axis_rows, Element};
 
 const FIGURE: &str = "bias-variance.svg";
 /// Colours of the figure (src/report/figures/palette.rs): expected error is
@@ -28,96 +29,6 @@ fn run_simulation(dir: &Path, replicates: usize) -> PathBuf {
     dir.join("out/heat-demand-simulation")
 }
 
-/// One SVG element: its tag, attributes and (for `<text>`) its words.
-#[derive(Debug)]
-struct Element {
-    tag: String,
-    attributes: Vec<(String, String)>,
-    words: String,
-}
-
-impl Element {
-    fn get(&self, name: &str) -> Option<&str> {
-        self.attributes
-            .iter()
-            .find(|(n, _)| n == name)
-            .map(|(_, v)| v.as_str())
-    }
-
-    fn number(&self, name: &str) -> f64 {
-        self.get(name)
-            .and_then(|v| v.parse().ok())
-            .unwrap_or_else(|| panic!("{name} of {self:?}"))
-    }
-
-    /// The pixel points of a `<polygon>` or `<polyline>`.
-    fn points(&self) -> Vec<(f64, f64)> {
-        self.get("points")
-            .unwrap_or_default()
-            .split_whitespace()
-            .map(|pair| {
-                let (x, y) = pair.split_once(',').unwrap();
-                (x.parse().unwrap(), y.parse().unwrap())
-            })
-            .collect()
-    }
-
-    /// (x, y) of the element: a circle's centre, the middle of a shape's
-    /// extent, or a text's anchor.
-    fn at(&self) -> (f64, f64) {
-        match self.tag.as_str() {
-            "circle" => (self.number("cx"), self.number("cy")),
-            "text" => (self.number("x"), self.number("y")),
-            _ => {
-                let points = self.points();
-                let (xs, ys): (Vec<f64>, Vec<f64>) = points.into_iter().unzip();
-                let mid = |v: &[f64]| {
-                    let lo = v.iter().copied().fold(f64::INFINITY, f64::min);
-                    let hi = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-                    (lo + hi) / 2.0
-                };
-                (mid(&xs), mid(&ys))
-            }
-        }
-    }
-}
-
-/// Every element of an SVG document written by plotters, in order.
-fn elements(svg: &str) -> Vec<Element> {
-    let mut found = Vec::new();
-    let mut rest = svg;
-    while let Some(start) = rest.find('<') {
-        rest = &rest[start + 1..];
-        if rest.starts_with('/') {
-            continue;
-        }
-        let end = rest.find('>').expect("every tag is closed");
-        let inside = rest[..end].trim_end_matches('/');
-        let tag: String = inside.chars().take_while(|c| c.is_alphanumeric()).collect();
-        let mut attributes = Vec::new();
-        let mut attrs = &inside[tag.len()..];
-        while let Some(eq) = attrs.find("=\"") {
-            let name = attrs[..eq].trim().to_string();
-            let value_end = attrs[eq + 2..].find('"').unwrap() + eq + 2;
-            attributes.push((name, attrs[eq + 2..value_end].to_string()));
-            attrs = &attrs[value_end + 1..];
-        }
-        rest = &rest[end + 1..];
-        let words = if tag == "text" {
-            let close = rest.find("</text>").unwrap();
-            rest[..close].trim().to_string()
-        } else {
-            String::new()
-        };
-        found.push(Element {
-            tag,
-            attributes,
-            words,
-        });
-    }
-    found
-}
-
 /// Markers of one series: filled circles of radius 5 (expected error, ink)
 /// or filled polygons (squared bias, variance).
 fn markers<'a>(all: &'a [Element], colour: &str) -> Vec<&'a Element> {
@@ -126,14 +37,6 @@ fn markers<'a>(all: &'a [Element], colour: &str) -> Vec<&'a Element> {
         .filter(|e| e.tag == shape && e.get("fill") == Some(colour))
         .filter(|e| shape == "polygon" || e.get("r") == Some("5"))
         .collect()
-}
-
-/// Pixel row of `value` on a panel's value axis, interpolated between its
-/// first and last labelled tick.
-fn pixel_row(ticks: &[(f64, f64)], value: f64) -> f64 {
-    let (v0, y0) = ticks[0];
-    let (v1, y1) = ticks[ticks.len() - 1];
-    y0 + (value - v0) * (y1 - y0) / (v1 - v0)
 }
 
 #[test]
@@ -168,6 +71,7 @@ fn bias_variance_figure_reads_back_from_its_axes() {
     let panel_of = |y: f64| tops.iter().rposition(|&top| y >= top);
 
     let mut ringed = 0;
+    let mut beyond = 0;
     for (p, family) in families.iter().enumerate() {
         let inside = |e: &&Element| panel_of(e.at().1) == Some(p);
         // The value axis: labelled ticks at the left, right-aligned.
@@ -180,6 +84,10 @@ fn bias_variance_figure_reads_back_from_its_axes() {
         assert!(ticks.len() >= 3, "{family}: value ticks {ticks:?}");
         let slope =
             (ticks[ticks.len() - 1].1 - ticks[0].1) / (ticks[ticks.len() - 1].0 - ticks[0].0);
+        // A value beyond the axis sits on its top edge.
+        let (edge, _) = value_axis_rows(all.iter().filter(inside), MUTED);
+        let row = |value: f64| pixel_row(&ticks, value).max(edge);
+        let labels = edge_labels(all.iter().filter(inside), INK);
 
         // The noise floor: a dashed muted line, every dash at σ².
         let floor = pixel_row(&ticks, sigma_sq);
@@ -230,27 +138,39 @@ fn bias_variance_figure_reads_back_from_its_axes() {
                 i == 0 || expected[i].0 > expected[i - 1].0,
                 "{id}: x rises with df"
             );
+            let expected_mse = number(s, "expected_mse");
             assert!(
-                (expected[i].1 - pixel_row(&ticks, number(s, "expected_mse"))).abs() <= 1.5,
+                (expected[i].1 - row(expected_mse)).abs() <= 1.5,
                 "{id}: expected error marker"
             );
+            if pixel_row(&ticks, expected_mse) < edge - 1.5 {
+                // On the edge, its value written just below it.
+                assert!(
+                    labels.iter().any(|&(v, x, y)| reads_as(v, expected_mse)
+                        && (x - expected[i].0).abs() < 60.0
+                        && y > edge
+                        && y < edge + 40.0),
+                    "{id}: {expected_mse} beyond the axis, labelled"
+                );
+                beyond += 1;
+            }
             // Expected error = bias² + variance + σ², up to the identity gap
             // results.json reports (and pixel rounding).
             let sum = number(s, "bias_sq") + number(s, "variance") + sigma_sq;
             let allowed = 1.5 + (slope * number(s, "identity_gap")).abs();
             assert!(
-                (expected[i].1 - pixel_row(&ticks, sum)).abs() <= allowed,
+                (expected[i].1 - row(sum)).abs() <= allowed,
                 "{id}: expected error {} px from bias² + variance + σ²",
-                (expected[i].1 - pixel_row(&ticks, sum)).abs()
+                (expected[i].1 - row(sum)).abs()
             );
             assert!(
-                (bias[i].1 - pixel_row(&ticks, number(s, "bias_sq"))).abs() <= 1.5,
+                (bias[i].1 - row(number(s, "bias_sq"))).abs() <= 1.5,
                 "{id}: squared bias marker"
             );
             // A variance triangle points up: its middle sits 1 px below the
             // value's row for marker size 5 (apex 6 above, base 4 below).
             assert!(
-                (variance[i].1 + 1.0 - pixel_row(&ticks, number(s, "variance"))).abs() <= 1.5,
+                (variance[i].1 + 1.0 - row(number(s, "variance"))).abs() <= 1.5,
                 "{id}: variance marker"
             );
             if id == oracle {
@@ -268,6 +188,9 @@ fn bias_variance_figure_reads_back_from_its_axes() {
         }
     }
     assert_eq!(ringed, 1, "exactly one oracle");
+    // The demo's largest k (k = 45, expected error about ten times the
+    // oracle's) lies beyond its panel's axis.
+    assert!(beyond >= 1, "no expected error beyond its axis");
     assert!(svg.contains(&format!("oracle: {oracle}")));
     insta::assert_snapshot!("simulation_figure_bias_variance", svg);
 }
@@ -303,4 +226,52 @@ fn reports_show_the_figure_in_their_simulation_section() {
     let data = html.find("<section id=\"data\">").unwrap();
     assert!(section < at && at < data);
     insta::assert_snapshot!("simulation_report_html", without_svgs(&html));
+}
+
+#[test]
+fn simulation_tables_fit_a_1200_pixel_window() {
+    use crate::reports::{chromium, CHROMIUM};
+    if !Path::new(CHROMIUM).exists() {
+        eprintln!("skipped: {CHROMIUM} is absent; install it (apt-get install -y chromium)");
+        return;
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let out = run_simulation(dir.path(), 4);
+    // A copy of the page that measures itself: the page's own policy allows
+    // no script, so the copy drops it and adds one that writes every table
+    // box wider than its room into an attribute of the body.
+    let html = read(&out.join("report.html"));
+    let policy_at = html
+        .find("<meta http-equiv=\"Content-Security-Policy\"")
+        .unwrap();
+    let policy_end = policy_at + html[policy_at..].find('>').unwrap() + 1;
+    let measured = format!(
+        "{}{}",
+        &html[..policy_at],
+        &html[policy_end..].replace(
+            "</body>",
+            "<script>document.body.setAttribute('data-wide', \
+             Array.from(document.querySelectorAll('.table-wrap, table'))\
+             .filter(e => e.scrollWidth > e.clientWidth + 1)\
+             .map(e => e.scrollWidth + '>' + e.clientWidth).join(' ') || 'none');</script></body>",
+        )
+    );
+    let page = dir.path().join("measured.html");
+    std::fs::write(&page, measured).unwrap();
+    let (dom, _) = chromium(
+        &page,
+        &dir.path().join("profile"),
+        &["--window-size=1200,900", "--dump-dom"],
+    );
+    assert!(
+        dom.contains("class=\"numbers wide\""),
+        "the decomposition tables"
+    );
+    assert!(
+        dom.contains("data-wide=\"none\""),
+        "tables wider than their room: {}",
+        dom.split("data-wide=\"")
+            .nth(1)
+            .map_or("no measurement", |r| r.split('"').next().unwrap())
+    );
 }

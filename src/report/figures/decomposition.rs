@@ -14,8 +14,9 @@ use plotters::style::text_anchor::{HPos, VPos};
 use super::axis::Axis;
 use super::palette::{self, INK, MUTED};
 use super::{
-    df_axis_words, draw_numeric_mesh, draw_svg, label, legend, polyline, stem, text, Figure,
-    FigureError, Marker, Section, Swatch, TEXT_SMALL, TEXT_STRONG,
+    beyond, clip_rows, df_axis_words, draw_edge_labels, draw_numeric_mesh, draw_svg, label, legend,
+    polyline, stem, text, EdgeLabel, Figure, FigureError, Marker, Section, Swatch, EDGE_ROOM,
+    TEXT_SMALL, TEXT_STRONG,
 };
 use crate::report::{format_df, format_number};
 use crate::results::Results;
@@ -112,18 +113,34 @@ fn family_best<'a>(panel: &Panel<'a>) -> Option<&'a SimulatedSetting> {
     best
 }
 
-/// A panel's value axis: zero, every series value and the noise floor.
+/// How far a panel's value axis reaches: this many times the panel's lowest
+/// expected error (docs/reports.md, "Figures").
+pub(crate) const REACH_TIMES_BEST: f64 = 3.0;
+
+/// A panel's value axis: zero, the noise floor and every series value up to
+/// [`REACH_TIMES_BEST`] times the panel's lowest expected error (every value
+/// when that is not a positive number), so one far-off setting does not
+/// flatten the rest of the panel; values beyond sit on the top edge.
 fn value_axis(panel: &Panel<'_>, noise: f64) -> Axis {
+    let reach = family_best(panel)
+        .map(|b| REACH_TIMES_BEST * b.expected_mse)
+        .filter(|r| r.is_finite() && *r > 0.0)
+        .unwrap_or(f64::INFINITY);
     let mut low: f64 = 0.0;
     let mut high = if noise.is_finite() { noise } else { 0.0 };
+    let mut beyond_reach = false;
     for s in &panel.settings {
         for series in &SERIES {
             let v = (series.value)(s);
-            if v.is_finite() {
+            if v.is_finite() && v <= reach {
                 low = low.min(v);
                 high = high.max(v);
             }
+            beyond_reach |= v > reach;
         }
+    }
+    if beyond_reach {
+        high += EDGE_ROOM * (high - low);
     }
     Axis::linear(low, high, 0.04, 6)
 }
@@ -140,6 +157,21 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
         return Ok(None);
     }
     let several = panels.len() > 1;
+
+    let axes: Vec<(Axis, Axis)> = panels
+        .iter()
+        .map(|p| {
+            let dfs: Vec<f64> = p.settings.iter().map(|s| s.effective_df).collect();
+            (Axis::for_flexibility(&dfs), value_axis(p, noise))
+        })
+        .collect();
+    let clipped = panels.iter().zip(&axes).any(|(p, (_, y_axis))| {
+        p.settings.iter().any(|s| {
+            SERIES
+                .iter()
+                .any(|series| beyond(y_axis, (series.value)(s)).is_some())
+        })
+    });
 
     // The legend reads expected error first, then its parts.
     let mut entries: Vec<(Swatch, String)> = [&SERIES[2], &SERIES[0], &SERIES[1]]
@@ -174,15 +206,15 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
             "lowest expected error in its family".into(),
         ));
     }
+    if clipped {
+        entries.push((
+            Swatch::Note,
+            "beyond the value axis: on its top edge, with the expected error".into(),
+        ));
+    }
 
-    let axes: Vec<(Axis, Axis)> = panels
-        .iter()
-        .map(|p| {
-            let dfs: Vec<f64> = p.settings.iter().map(|s| s.effective_df).collect();
-            (Axis::for_flexibility(&dfs), value_axis(p, noise))
-        })
-        .collect();
-    let height = LEGEND + PANEL * panels.len() as u32;
+    // The note on clipped points takes a legend row of its own.
+    let height = LEGEND + if clipped { 22 } else { 0 } + PANEL * panels.len() as u32;
     let svg = draw_svg("bias and variance", (WIDTH, height), |root| {
         let legend_bottom = legend(root, &entries, (80, 22), WIDTH as i32 - 24)?;
         let (_, body) = root.split_vertically(legend_bottom + 16);
@@ -227,21 +259,55 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
                     VPos::Bottom,
                 )?;
             }
+            let plot_x = x_axis.range();
+            let plot_y = y_axis.range();
+            let (left, top) = at(plot_x.start, plot_y.end);
+            let (right, bottom) = at(plot_x.end, plot_y.start);
+            let mut edge_labels: Vec<EdgeLabel> = Vec::new();
             for series in &SERIES {
-                let points: Vec<(i32, i32)> = panel
+                let values: Vec<(f64, f64)> = panel
                     .settings
                     .iter()
                     .map(|s| (s.effective_df, (series.value)(s)))
                     .filter(|(df, v)| df.is_finite() && v.is_finite())
-                    .map(|(df, v)| at(df, v))
                     .collect();
-                polyline(root, &points, series.colour.stroke_width(2), false)?;
-                for &point in &points {
-                    series
-                        .marker
-                        .draw(root, point, MARKER, series.colour, true)?;
+                let points: Vec<(i32, i32)> = values.iter().map(|&(df, v)| at(df, v)).collect();
+                for run in clip_rows(&points, top, bottom) {
+                    polyline(root, &run, series.colour.stroke_width(2), false)?;
+                }
+                for &(df, v) in &values {
+                    let p = at(df, v.clamp(plot_y.start, plot_y.end));
+                    series.marker.draw(root, p, MARKER, series.colour, true)?;
                 }
             }
+            // A setting beyond the axis shows its expected error, which is
+            // never below its squared bias or variance by more than the
+            // Monte-Carlo error; a part beyond it alone shows its own words.
+            for s in &panel.settings {
+                if !s.effective_df.is_finite() {
+                    continue;
+                }
+                let expected_edge = beyond(y_axis, s.expected_mse);
+                for series in &SERIES {
+                    let v = (series.value)(s);
+                    let Some(edge) = beyond(y_axis, v) else {
+                        continue;
+                    };
+                    let words = if std::ptr::eq(series, &SERIES[2]) {
+                        format_number(v)
+                    } else if expected_edge == Some(edge) {
+                        continue;
+                    } else {
+                        format!("{} {}", series.words, format_number(v))
+                    };
+                    edge_labels.push(EdgeLabel {
+                        x: at(s.effective_df, v).0,
+                        edge,
+                        text: words,
+                    });
+                }
+            }
+            draw_edge_labels(root, &edge_labels, (left, right), (top, bottom))?;
             for s in &panel.settings {
                 if !(s.effective_df.is_finite() && s.expected_mse.is_finite()) {
                     continue;
@@ -266,7 +332,7 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
     Ok(Some(Figure {
         file: FILE.to_string(),
         title: "Squared bias, variance and noise against flexibility".into(),
-        caption: caption(results, oracle, several, any_log),
+        caption: caption(results, oracle, several, any_log, clipped),
         alt: format!(
             "Line charts, one per family ({}), of expected test error, squared bias and \
              variance against effective degrees of freedom, with the noise floor at σ² = {}; \
@@ -285,6 +351,7 @@ fn caption(
     oracle: Option<&SimulatedSetting>,
     several: bool,
     log: bool,
+    clipped: bool,
 ) -> String {
     let Some(sim) = &results.simulation else {
         return String::new();
@@ -322,6 +389,15 @@ fn caption(
     } else {
         ""
     };
+    let reach = if clipped {
+        format!(
+            " Each value axis reaches {REACH_TIMES_BEST} times the lowest expected error in its \
+             panel; points beyond it sit on its top edge, the expected error labelled with its \
+             value."
+        )
+    } else {
+        String::new()
+    };
     format!(
         "Expected test error (ink circles) and its parts, squared bias (orange squares) and \
          variance (teal triangles), of every setting against its effective degrees of \
@@ -332,7 +408,7 @@ fn caption(
          noise (here at most {gap} apart). More flexible fits usually trade squared bias for \
          variance. The ringed point is the oracle, {oracle_words}: the setting with the lowest \
          expected error, which only a simulation, knowing the truth, can find; the table of \
-         cross-validation's choices below shows how often it was found.{flagged}",
+         cross-validation's choices below shows how often it was found.{flagged}{reach}",
         replicates = summary.replicates,
         n = summary.train_size,
         m = summary.test.count,

@@ -131,7 +131,8 @@ pub(crate) fn text_width(text: &str, size: f64) -> i32 {
     libm::round(em * 0.7 * text.chars().count() as f64) as i32
 }
 
-/// Marker shapes; each family gets its own, so colour is never the only cue.
+/// Marker shapes; each of ten families gets its own, so colour is never the
+/// only cue.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum Marker {
     Circle,
@@ -140,15 +141,23 @@ pub(crate) enum Marker {
     TriangleUp,
     TriangleDown,
     Plus,
+    Cross,
+    Star,
+    Hourglass,
+    TriangleRight,
 }
 
-const MARKERS: [Marker; 6] = [
+const MARKERS: [Marker; 10] = [
     Marker::Circle,
     Marker::Square,
     Marker::Diamond,
     Marker::TriangleUp,
     Marker::TriangleDown,
     Marker::Plus,
+    Marker::Cross,
+    Marker::Star,
+    Marker::Hourglass,
+    Marker::TriangleRight,
 ];
 
 impl Marker {
@@ -185,6 +194,14 @@ impl Marker {
                     (x - d, y - (d * 3) / 4),
                 ]
             }
+            Marker::TriangleRight => {
+                let d = r + 1;
+                vec![
+                    (x + d, y),
+                    (x - (d * 3) / 4, y + d),
+                    (x - (d * 3) / 4, y - d),
+                ]
+            }
             Marker::Plus => {
                 let (a, w) = (r + 1, (r + 1) / 3);
                 vec![
@@ -200,6 +217,51 @@ impl Marker {
                     (x - a, y + w),
                     (x - a, y - w),
                     (x - w, y - w),
+                ]
+            }
+            Marker::Cross => {
+                // Diagonal arms, `t` pixels from the centre line each way.
+                let (a, t) = (r, (r + 1) / 3);
+                vec![
+                    (x - a, y - a + t),
+                    (x - a + t, y - a),
+                    (x, y - t),
+                    (x + a - t, y - a),
+                    (x + a, y - a + t),
+                    (x + t, y),
+                    (x + a, y + a - t),
+                    (x + a - t, y + a),
+                    (x, y + t),
+                    (x - a + t, y + a),
+                    (x - a, y + a - t),
+                    (x - t, y),
+                ]
+            }
+            Marker::Star => {
+                // Five points, one straight up; the inner corners at 0.45 of
+                // the outer radius. Angles come from libm, not the platform.
+                let outer = f64::from(r + 2);
+                (0..10)
+                    .map(|k| {
+                        let radius = if k % 2 == 0 { outer } else { outer * 0.45 };
+                        let angle = std::f64::consts::PI * f64::from(k) / 5.0;
+                        (
+                            x + libm::round(radius * libm::sin(angle)) as i32,
+                            y - libm::round(radius * libm::cos(angle)) as i32,
+                        )
+                    })
+                    .collect()
+            }
+            Marker::Hourglass => {
+                // Two triangles meeting at a narrow waist.
+                let d = r;
+                vec![
+                    (x - d, y - d),
+                    (x + d, y - d),
+                    (x + 1, y),
+                    (x + d, y + d),
+                    (x - d, y + d),
+                    (x - 1, y),
                 ]
             }
         }
@@ -296,6 +358,174 @@ pub(crate) fn polyline(
     } else {
         root.draw(&PathElement::new(points.to_vec(), style))
     }
+}
+
+/// Splits a polyline (pixels) into the runs that lie between the rows `top`
+/// and `bottom` (inclusive), cutting each segment where it crosses them, so a
+/// curve stops at the edge of a value axis that does not reach all its points.
+pub(crate) fn clip_rows(points: &[(i32, i32)], top: i32, bottom: i32) -> Vec<Vec<(i32, i32)>> {
+    let mut runs: Vec<Vec<(i32, i32)>> = Vec::new();
+    let mut current: Vec<(i32, i32)> = Vec::new();
+    let mut end_run = |current: &mut Vec<(i32, i32)>| {
+        if current.len() > 1 {
+            runs.push(std::mem::take(current));
+        } else {
+            current.clear();
+        }
+    };
+    for pair in points.windows(2) {
+        let (a, b) = (pair[0], pair[1]);
+        let (x0, y0) = (f64::from(a.0), f64::from(a.1));
+        let (x1, y1) = (f64::from(b.0), f64::from(b.1));
+        // The part of the segment inside, as parameters t0 ≤ t1 along a → b.
+        let (t0, t1) = if y1 == y0 {
+            if a.1 < top || a.1 > bottom {
+                end_run(&mut current);
+                continue;
+            }
+            (0.0, 1.0)
+        } else {
+            let (at_top, at_bottom) = (
+                (f64::from(top) - y0) / (y1 - y0),
+                (f64::from(bottom) - y0) / (y1 - y0),
+            );
+            (
+                at_top.min(at_bottom).max(0.0),
+                at_top.max(at_bottom).min(1.0),
+            )
+        };
+        if t0 > t1 {
+            end_run(&mut current);
+            continue;
+        }
+        let point = |t: f64| {
+            if t <= 0.0 {
+                a
+            } else if t >= 1.0 {
+                b
+            } else {
+                (
+                    libm::round(x0 + t * (x1 - x0)) as i32,
+                    libm::round(y0 + t * (y1 - y0)) as i32,
+                )
+            }
+        };
+        let (from, to) = (point(t0), point(t1));
+        if current.last() != Some(&from) {
+            end_run(&mut current);
+            current.push(from);
+        }
+        current.push(to);
+        if t1 < 1.0 {
+            end_run(&mut current);
+        }
+    }
+    end_run(&mut current);
+    runs
+}
+
+/// Room added to a value axis on a side where points lie beyond it, as a
+/// share of the span it reaches, so the labels written inside that edge
+/// have a band free of the points the axis does reach.
+pub(crate) const EDGE_ROOM: f64 = 0.12;
+
+/// The edge of a value axis that a value lies beyond.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Edge {
+    Top,
+    Bottom,
+}
+
+/// Which edge of `axis` (a value axis, drawn upwards) `value` lies beyond;
+/// `None` when the axis reaches it (or it is not a number).
+pub(crate) fn beyond(axis: &axis::Axis, value: f64) -> Option<Edge> {
+    let range = axis.range();
+    if value > range.end {
+        Some(Edge::Top)
+    } else if value < range.start {
+        Some(Edge::Bottom)
+    } else {
+        None
+    }
+}
+
+/// The words beside a point drawn on the edge of its value axis.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct EdgeLabel {
+    /// The point's pixel column.
+    pub(crate) x: i32,
+    pub(crate) edge: Edge,
+    pub(crate) text: String,
+}
+
+/// Where each edge label goes, in the order given: its first pixel column and
+/// its row counted inwards from the edge. A label is centred on its point
+/// and kept within `columns` (the plot's first and last pixel column); one
+/// that would run into the label before it on its edge moves right while it
+/// still spans its point, and otherwise one row further in.
+pub(crate) fn edge_label_places(labels: &[EdgeLabel], columns: (i32, i32)) -> Vec<(i32, usize)> {
+    let mut places = vec![(0, 0); labels.len()];
+    for edge in [Edge::Top, Edge::Bottom] {
+        let mut on_edge: Vec<usize> = (0..labels.len())
+            .filter(|&i| labels[i].edge == edge)
+            .collect();
+        on_edge.sort_by_key(|&i| labels[i].x);
+        // Where each row's last label ends.
+        let mut row_ends: Vec<i32> = Vec::new();
+        for i in on_edge {
+            let item = &labels[i];
+            let width = text_width(&item.text, TEXT_SMALL);
+            let centred = (item.x - width / 2).min(columns.1 - width).max(columns.0);
+            let (row, start) = row_ends
+                .iter()
+                .enumerate()
+                .find_map(|(row, &end)| {
+                    let start = centred.max(end + 8);
+                    (start <= item.x && start + width <= columns.1).then_some((row, start))
+                })
+                .unwrap_or((row_ends.len(), centred));
+            if row == row_ends.len() {
+                row_ends.push(start + width);
+            } else {
+                row_ends[row] = start + width;
+            }
+            places[i] = (start, row);
+        }
+    }
+    places
+}
+
+/// Writes the edge labels where [`edge_label_places`] puts them, just inside
+/// the plot (`rows`: its first and last pixel row), each on a patch of paper
+/// so the curves running to the edge do not cross the words.
+pub(crate) fn draw_edge_labels(
+    root: &Root<'_>,
+    labels: &[EdgeLabel],
+    columns: (i32, i32),
+    rows: (i32, i32),
+) -> Drawn {
+    let style = text(TEXT_SMALL, INK);
+    for (item, (start, row)) in labels.iter().zip(edge_label_places(labels, columns)) {
+        let width = text_width(&item.text, TEXT_SMALL);
+        let inward = 16 + 16 * row as i32;
+        let y = match item.edge {
+            Edge::Top => rows.0 + inward,
+            Edge::Bottom => rows.1 - inward,
+        };
+        root.draw(&Rectangle::new(
+            [(start - 3, y - 8), (start + width + 3, y + 8)],
+            PAPER.filled(),
+        ))?;
+        label(
+            root,
+            &item.text,
+            (start, y),
+            &style,
+            HPos::Left,
+            VPos::Center,
+        )?;
+    }
+    Ok(())
 }
 
 /// How one family is drawn in every figure.
@@ -504,6 +734,62 @@ mod tests {
     }
 
     #[test]
+    fn clipped_curves_stop_at_the_edges() {
+        // Rows 10..=50: a segment leaving through the top is cut there, one
+        // coming back starts a new run, one wholly outside is dropped.
+        let runs = clip_rows(&[(0, 30), (10, 0), (20, -20), (30, 30), (40, 40)], 10, 50);
+        assert_eq!(
+            runs,
+            vec![vec![(0, 30), (7, 10)], vec![(26, 10), (30, 30), (40, 40)]]
+        );
+        // Inside throughout: unchanged.
+        let inside = [(0, 20), (5, 30), (9, 10)];
+        assert_eq!(clip_rows(&inside, 10, 50), vec![inside.to_vec()]);
+        // Beyond the bottom only: nothing.
+        assert!(clip_rows(&[(0, 60), (9, 70)], 10, 50).is_empty());
+    }
+
+    #[test]
+    fn edge_labels_never_overlap_and_stay_in_the_plot() {
+        let at = |x: i32, edge: Edge, text: &str| EdgeLabel {
+            x,
+            edge,
+            text: text.to_string(),
+        };
+        let labels = [
+            at(100, Edge::Top, "15.37"),
+            at(140, Edge::Top, "4.240"),
+            at(150, Edge::Top, "4.591"),
+            at(790, Edge::Top, "3.965"),
+            at(110, Edge::Bottom, "(0.9752)"),
+        ];
+        let places = edge_label_places(&labels, (80, 800));
+        for (i, a) in labels.iter().enumerate() {
+            let (start, row) = places[i];
+            let width = text_width(&a.text, TEXT_SMALL);
+            assert!(start >= 80 && start + width <= 800, "{}", a.text);
+            for (j, b) in labels.iter().enumerate().skip(i + 1) {
+                let (other, other_row) = places[j];
+                if a.edge == b.edge && row == other_row {
+                    let other_width = text_width(&b.text, TEXT_SMALL);
+                    assert!(
+                        start + width < other || other + other_width < start,
+                        "{} and {} overlap",
+                        a.text,
+                        b.text
+                    );
+                }
+            }
+        }
+        // Close points share a row while a label can still span its point;
+        // the bottom edge is laid out on its own.
+        assert_eq!(places[0].1, 0);
+        assert_eq!(places[1].1, 0);
+        assert_eq!(places[2].1, 1);
+        assert_eq!(places[4], (110 - text_width("(0.9752)", TEXT_SMALL) / 2, 0));
+    }
+
+    #[test]
     fn families_get_distinct_styles_in_order_of_appearance() {
         let candidate = |id: &str| CandidateResult {
             id: id.to_string(),
@@ -527,5 +813,30 @@ mod tests {
         assert_eq!(styles[1].colour, palette::SERIES[1]);
         assert_eq!(styles[2].marker, Marker::Diamond);
         assert_eq!(style_of(&styles, "linear").stem, "linear");
+
+        // Ten families: ten colours and ten marker shapes, no two alike.
+        let ten: Vec<CandidateResult> = (0..10).map(|i| candidate(&format!("f{i}"))).collect();
+        let styles = family_styles(&ten);
+        for (i, a) in styles.iter().enumerate() {
+            for b in &styles[i + 1..] {
+                assert_ne!(a.colour, b.colour, "{} and {}", a.stem, b.stem);
+                assert_ne!(a.marker, b.marker, "{} and {}", a.stem, b.stem);
+            }
+        }
+    }
+
+    #[test]
+    fn marker_outlines_stay_within_their_size() {
+        // Every corner lies within r + 2 pixels of the centre, and no shape
+        // repeats another's outline.
+        let mut outlines = Vec::new();
+        for marker in MARKERS {
+            let corners = marker.outline((100, 100), 5);
+            for &(x, y) in &corners {
+                assert!((x - 100).abs() <= 7 && (y - 100).abs() <= 7, "{marker:?}");
+            }
+            assert!(!outlines.contains(&corners), "{marker:?}");
+            outlines.push(corners);
+        }
     }
 }
