@@ -2,6 +2,7 @@
 
 use std::path::Path;
 
+use super::summary::{self, RunEntry};
 use crate::cache::Cache;
 use crate::cli::RunArgs;
 use crate::error::UsageError;
@@ -9,11 +10,27 @@ use crate::execute::{CachePolicy, Shard};
 use crate::{output, receipt, report};
 
 pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
+    let mut entries = Vec::new();
+    let outcome = run_specs(args, &mut entries);
+    if args.json {
+        return summary::print_specs("run", &entries, outcome);
+    }
+    outcome
+}
+
+/// Runs the specs in order, noting what each gave in `entries`.
+fn run_specs(args: &RunArgs, entries: &mut Vec<RunEntry>) -> anyhow::Result<()> {
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let pool = super::thread_pool(args.jobs)?;
     let cache = Cache::new(&args.cache.cache);
     for spec_path in &args.specs {
-        pool.install(|| run_one(spec_path, args, &cache, shard))?;
+        match pool.install(|| run_one(spec_path, args, &cache, shard)) {
+            Ok(entry) => entries.push(entry),
+            Err(error) => {
+                entries.push(RunEntry::failed(spec_path, &error));
+                return Err(error);
+            }
+        }
     }
     Ok(())
 }
@@ -42,7 +59,7 @@ fn run_one(
     args: &RunArgs,
     cache: &Cache,
     shard: Option<Shard>,
-) -> anyhow::Result<()> {
+) -> anyhow::Result<RunEntry> {
     let policy = CachePolicy {
         read: Some(cache),
         write: Some(cache),
@@ -64,7 +81,7 @@ fn run_one(
                     cache.root().display()
                 );
             }
-            return Ok(());
+            return Ok(RunEntry::shard(spec_path, shard, &summary));
         }
     };
 
@@ -87,6 +104,8 @@ fn run_one(
             "fits: {} computed, {} reused from the cache",
             evaluation.summary.computed, evaluation.summary.reused
         );
+    }
+    if !args.quiet && !args.json {
         print!("{}", report::terminal::render(&evaluation.results));
         if evaluation.results.simulation.is_some() {
             print!(
@@ -100,7 +119,7 @@ fn run_one(
             receipt_path.display()
         );
     }
-    Ok(())
+    Ok(RunEntry::done(spec_path, &evaluation, &dir, &receipt_path))
 }
 
 #[cfg(test)]

@@ -6,6 +6,7 @@
 mod bad_input;
 mod cv_reference;
 mod demo;
+mod json;
 mod nist;
 mod ordered;
 mod report_command;
