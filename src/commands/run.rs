@@ -10,12 +10,7 @@ use crate::execute::{CachePolicy, Shard};
 use crate::{output, receipt, report};
 
 pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
-    let mut entries = Vec::new();
-    let outcome = run_specs(args, &mut entries);
-    if args.json {
-        return summary::print_specs("run", &entries, outcome);
-    }
-    outcome
+    summary::for_specs("run", args.json, |entries| run_specs(args, entries))
 }
 
 /// Runs the specs in order, noting what each gave in `entries`.

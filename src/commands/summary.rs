@@ -19,7 +19,7 @@ use serde_json::Value;
 use super::Evaluation;
 use crate::cli::CompareArgs;
 use crate::execute::{Shard, Summary};
-use crate::report::compare::{BeforeAfter, Comparison, Moved};
+use crate::report::compare::{BeforeAfter, CandidateChange, CandidateOnly, Comparison, Moved};
 use crate::spec::{Metric, Rule};
 
 /// The name and version of the object's layout. A field's meaning never
@@ -103,13 +103,19 @@ struct Specs<'a, E: Serialize> {
     specs: &'a [E],
 }
 
-/// Prints the object of `run` (`command` is its name) or `verify`.
-pub(crate) fn print_specs<E: Serialize>(
+/// Runs `work` for `run` or `verify` (`command`), which notes one entry per
+/// spec it got to; with `json`, prints the object holding them.
+pub(crate) fn for_specs<E: Serialize>(
     command: &'static str,
-    entries: &[E],
-    outcome: anyhow::Result<()>,
+    json: bool,
+    work: impl FnOnce(&mut Vec<E>) -> anyhow::Result<()>,
 ) -> anyhow::Result<()> {
-    print(command, &Specs { specs: entries }, outcome)
+    let mut entries = Vec::new();
+    let outcome = work(&mut entries);
+    if !json {
+        return outcome;
+    }
+    print(command, &Specs { specs: &entries }, outcome)
 }
 
 fn path_text(path: &Path) -> String {
@@ -511,26 +517,9 @@ struct AddedRemoved {
 
 #[derive(Serialize)]
 struct CandidateChanges {
-    added: Vec<CandidateSide>,
-    removed: Vec<CandidateSide>,
-    changed: Vec<CandidateDiff>,
-}
-
-#[derive(Serialize)]
-struct CandidateSide {
-    candidate: String,
-    family: String,
-    features: Vec<String>,
-    settings: usize,
-}
-
-#[derive(Serialize)]
-struct CandidateDiff {
-    candidate: String,
-    family: Option<BeforeAfter<String>>,
-    features: Option<BeforeAfter<Vec<String>>>,
-    settings_added: Vec<String>,
-    settings_removed: Vec<String>,
+    added: Vec<CandidateOnly>,
+    removed: Vec<CandidateOnly>,
+    changed: Vec<CandidateChange>,
 }
 
 #[derive(Serialize)]
@@ -592,12 +581,6 @@ fn change_of(m: &Moved) -> (Option<f64>, Option<f64>) {
 }
 
 fn compare_summary(c: Comparison) -> CompareSummary {
-    let side = |only: &crate::report::compare::CandidateOnly| CandidateSide {
-        candidate: only.candidate.clone(),
-        family: only.family.clone(),
-        features: only.features.clone(),
-        settings: only.settings,
-    };
     CompareSummary {
         experiment: c.experiment,
         metric: c.metric,
@@ -631,19 +614,9 @@ fn compare_summary(c: Comparison) -> CompareSummary {
             removed: c.families_removed,
         },
         candidates: CandidateChanges {
-            added: c.candidates_added.iter().map(side).collect(),
-            removed: c.candidates_removed.iter().map(side).collect(),
-            changed: c
-                .candidates_changed
-                .into_iter()
-                .map(|d| CandidateDiff {
-                    candidate: d.candidate,
-                    family: d.family,
-                    features: d.features,
-                    settings_added: d.settings_added,
-                    settings_removed: d.settings_removed,
-                })
-                .collect(),
+            added: c.candidates_added,
+            removed: c.candidates_removed,
+            changed: c.candidates_changed,
         },
         settings: SettingIds {
             in_both: c.settings_in_both,

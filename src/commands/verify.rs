@@ -13,12 +13,7 @@ use crate::receipt::{self, FileDigest, Receipt};
 use crate::results::Results;
 
 pub(crate) fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
-    let mut entries = Vec::new();
-    let outcome = verify_specs(args, &mut entries);
-    if args.json {
-        return summary::print_specs("verify", &entries, outcome);
-    }
-    outcome
+    summary::for_specs("verify", args.json, |entries| verify_specs(args, entries))
 }
 
 /// Verifies the specs in order, noting what each gave in `entries`.

@@ -75,7 +75,7 @@ pub(crate) struct SetupChange {
 
 /// A candidate (one `[[candidate]]` table, known by the stem of its ids)
 /// that only one of the result sets has.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub(crate) struct CandidateOnly {
     pub(crate) candidate: String,
     pub(crate) family: String,
@@ -85,7 +85,7 @@ pub(crate) struct CandidateOnly {
 }
 
 /// A candidate both result sets have, whose family, features or grid differ.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub(crate) struct CandidateChange {
     pub(crate) candidate: String,
     /// Only when the family differs (a label kept over a new family).
@@ -235,25 +235,6 @@ struct SetupView<'a> {
     after: String,
 }
 
-/// A candidate only one result set has.
-#[derive(Serialize)]
-struct CandidateOnlyView<'a> {
-    candidate: &'a str,
-    family: &'a str,
-    features: String,
-    settings: usize,
-}
-
-/// How a candidate in both result sets changed.
-#[derive(Serialize)]
-struct CandidateChangeView<'a> {
-    candidate: &'a str,
-    family: Option<&'a BeforeAfter<String>>,
-    features: Option<BeforeAfter<String>>,
-    settings_added: &'a [String],
-    settings_removed: &'a [String],
-}
-
 /// The template context: the comparison with its numbers written out.
 #[derive(Serialize)]
 struct View<'a> {
@@ -266,9 +247,9 @@ struct View<'a> {
     setup: Vec<SetupView<'a>>,
     families_added: &'a [String],
     families_removed: &'a [String],
-    candidates_added: Vec<CandidateOnlyView<'a>>,
-    candidates_removed: Vec<CandidateOnlyView<'a>>,
-    candidates_changed: Vec<CandidateChangeView<'a>>,
+    candidates_added: &'a [CandidateOnly],
+    candidates_removed: &'a [CandidateOnly],
+    candidates_changed: &'a [CandidateChange],
     settings_in_both: usize,
     added: &'a [String],
     removed: &'a [String],
@@ -319,22 +300,9 @@ impl<'a> View<'a> {
                 .collect(),
             families_added: &c.families_added,
             families_removed: &c.families_removed,
-            candidates_added: c.candidates_added.iter().map(only_view).collect(),
-            candidates_removed: c.candidates_removed.iter().map(only_view).collect(),
-            candidates_changed: c
-                .candidates_changed
-                .iter()
-                .map(|change| CandidateChangeView {
-                    candidate: &change.candidate,
-                    family: change.family.as_ref(),
-                    features: change.features.as_ref().map(|f| BeforeAfter {
-                        before: f.before.join(", "),
-                        after: f.after.join(", "),
-                    }),
-                    settings_added: &change.settings_added,
-                    settings_removed: &change.settings_removed,
-                })
-                .collect(),
+            candidates_added: &c.candidates_added,
+            candidates_removed: &c.candidates_removed,
+            candidates_changed: &c.candidates_changed,
             settings_in_both: c.settings_in_both,
             added: &c.added,
             removed: &c.removed,
@@ -354,15 +322,6 @@ impl<'a> View<'a> {
             folds_compared: c.folds_compared,
             folds_by_position: c.folds_by_position,
         }
-    }
-}
-
-fn only_view(c: &CandidateOnly) -> CandidateOnlyView<'_> {
-    CandidateOnlyView {
-        candidate: &c.candidate,
-        family: &c.family,
-        features: c.features.join(", "),
-        settings: c.settings,
     }
 }
 

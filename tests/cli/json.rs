@@ -29,24 +29,45 @@ fn table() -> String {
     text
 }
 
-/// The first experiment: four candidates, 4 folds repeated twice.
-const SPEC_A: &str = r#"
+/// A spec reading `table.csv`, its parts given as TOML lines; what the two
+/// experiments share (the target, the key, the choice) is written here once.
+fn table_spec(name: &str, seed: u64, features: &str, split: &str, candidates: &str) -> String {
+    format!(
+        r#"
 [experiment]
-name = "json-a"
-seed = 11
+name = "{name}"
+seed = {seed}
 
 [data]
 table = "table.csv"
 target = "y"
-features = ["x", "z"]
+features = {features}
 key = "id"
 
 [split]
-holdout = 0.2
 method = "kfold"
-folds = 4
-repeats = 2
+{split}
 
+{candidates}
+
+[choose]
+metric = "mse"
+rule = "one-se"
+
+[report]
+formats = ["markdown"]
+"#
+    )
+}
+
+/// The first experiment: four candidates, 4 folds repeated twice.
+fn spec_a() -> String {
+    table_spec(
+        "json-a",
+        11,
+        r#"["x", "z"]"#,
+        "holdout = 0.2\nfolds = 4\nrepeats = 2",
+        r#"
 [[candidate]]
 family = "polynomial"
 features = ["x"]
@@ -64,36 +85,21 @@ family = "polynomial"
 label = "flex"
 features = ["x"]
 degree = [4]
-
-[choose]
-metric = "mse"
-rule = "one-se"
-
-[report]
-formats = ["markdown"]
-"#;
+"#,
+    )
+}
 
 /// The second experiment differs from the first in every way `compare`
 /// names: the seed, the holdout, the folds and repeats, `[data] features`,
 /// one candidate's features, one grid, a family removed and one added, and
 /// a label (`flex`) kept over another family.
-const SPEC_B: &str = r#"
-[experiment]
-name = "json-b"
-seed = 12
-
-[data]
-table = "table.csv"
-target = "y"
-features = ["x"]
-key = "id"
-
-[split]
-holdout = 0.25
-method = "kfold"
-folds = 5
-repeats = 1
-
+fn spec_b() -> String {
+    table_spec(
+        "json-b",
+        12,
+        r#"["x"]"#,
+        "holdout = 0.25\nfolds = 5\nrepeats = 1",
+        r#"
 [[candidate]]
 family = "polynomial"
 features = ["x"]
@@ -112,14 +118,9 @@ family = "smoothing-spline"
 label = "flex"
 features = ["x"]
 df = [4]
-
-[choose]
-metric = "mse"
-rule = "one-se"
-
-[report]
-formats = ["markdown"]
-"#;
+"#,
+    )
+}
 
 /// A small simulation spec, for `plan` of a `[simulate]` spec.
 const SPEC_SIMULATION: &str = r#"
@@ -153,8 +154,8 @@ rule = "lowest"
 /// Writes the table and the specs `a.toml`, `b.toml` and `sim.toml` into `dir`.
 fn write_tree(dir: &Path) {
     std::fs::write(dir.join("table.csv"), table()).unwrap();
-    std::fs::write(dir.join("a.toml"), SPEC_A).unwrap();
-    std::fs::write(dir.join("b.toml"), SPEC_B).unwrap();
+    std::fs::write(dir.join("a.toml"), spec_a()).unwrap();
+    std::fs::write(dir.join("b.toml"), spec_b()).unwrap();
     std::fs::write(dir.join("sim.toml"), SPEC_SIMULATION).unwrap();
 }
 
@@ -388,7 +389,7 @@ fn run_json_lists_every_spec_and_stops_at_the_one_that_fails() {
     write_tree(dir.path());
     std::fs::write(
         dir.path().join("bad.toml"),
-        SPEC_A.replace("folds = 4", "folds = 1"),
+        spec_a().replace("folds = 4", "folds = 1"),
     )
     .unwrap();
     let output = heldout(
@@ -738,7 +739,7 @@ fn compare_names_every_kind_of_setup_change_in_markdown_and_json() {
         *line = format!("{head},{:.4}", y + 0.05);
     }
     std::fs::write(dir.path().join("table2.csv"), lines.join("\n") + "\n").unwrap();
-    let spec = SPEC_A
+    let spec = spec_a()
         .replace("name = \"json-a\"", "name = \"json-a2\"")
         .replace("table.csv", "table2.csv");
     std::fs::write(dir.path().join("a2.toml"), spec).unwrap();
