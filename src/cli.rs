@@ -150,6 +150,9 @@ pub struct RunArgs {
     /// Print nothing but errors and warnings.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Print one JSON object on stdout instead of text (fields: docs/json.md).
+    #[arg(long)]
+    pub json: bool,
 }
 
 #[derive(Debug, Args)]
@@ -171,6 +174,9 @@ pub struct VerifyArgs {
     /// Print nothing but differences and errors.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Print one JSON object on stdout instead of text (fields: docs/json.md).
+    #[arg(long)]
+    pub json: bool,
 }
 
 #[derive(Debug, Args)]
@@ -180,6 +186,9 @@ pub struct PlanArgs {
     pub spec: PathBuf,
     #[command(flatten)]
     pub cache: CacheArgs,
+    /// Print one JSON object on stdout instead of text (fields: docs/json.md).
+    #[arg(long)]
+    pub json: bool,
 }
 
 #[derive(Debug, Args)]
@@ -232,6 +241,9 @@ pub struct CompareArgs {
     /// List every number that moved (default: the 40 largest relative changes).
     #[arg(long)]
     pub all: bool,
+    /// Print one JSON object on stdout instead of text (fields: docs/json.md).
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// Shells a completion script can be written for.

@@ -193,14 +193,7 @@ fn describe_rows(plan: &ExperimentPlan, rows: TaskRows) -> String {
 
 fn describe_fold(plan: &ExperimentPlan, rows: TaskRows) -> String {
     match rows {
-        TaskRows::Fold(f) => {
-            let fold = &plan.assignment.folds[f];
-            if plan.assignment.repeats > 1 {
-                format!("fold {} of repeat {}", fold.label, fold.repeat + 1)
-            } else {
-                format!("fold {}", fold.label)
-            }
-        }
+        TaskRows::Fold(f) => plan.assignment.describe_fold(f),
         TaskRows::LeaveOneOut => "leave-one-out".to_string(),
         TaskRows::Full => "the fit on all non-test rows".to_string(),
     }

@@ -84,6 +84,12 @@ impl Assignment {
         out
     }
 
+    /// Fold `f` as people are told about it (see [`describe_fold`]).
+    pub(crate) fn describe_fold(&self, f: usize) -> String {
+        let fold = &self.folds[f];
+        describe_fold(&fold.label, fold.repeat, self.repeats)
+    }
+
     /// Number of training rows of fold `f`.
     pub(crate) fn fold_train_len(&self, f: usize) -> usize {
         match &self.folds[f].train {
@@ -117,6 +123,19 @@ impl Assignment {
             }
         }
         placement
+    }
+}
+
+/// How a fold is named wherever a person reads it (fit errors, `verify`,
+/// `compare`): `fold 3`, or `fold 3 of repeat 2` when folds are repeated, so
+/// nobody has to turn a position in `fold_scores` into a fold by hand.
+/// `repeat` is 0-based; the label is the fold's own (`3`, or the fold
+/// column's text).
+pub(crate) fn describe_fold(label: &str, repeat: usize, repeats: usize) -> String {
+    if repeats > 1 {
+        format!("fold {label} of repeat {}", repeat + 1)
+    } else {
+        format!("fold {label}")
     }
 }
 
@@ -457,6 +476,20 @@ mod tests {
 
     fn rows(n: usize) -> (Vec<String>, Vec<usize>) {
         ((1..=n).map(|i| i.to_string()).collect(), (0..n).collect())
+    }
+
+    #[test]
+    fn folds_are_named_within_their_repeat() {
+        let (ids, units) = rows(40);
+        let scheme = FoldScheme::Kfold {
+            folds: 4,
+            repeats: 3,
+        };
+        let a = assign(7, 0.0, &scheme, &ids, &units).unwrap();
+        // Position 5 of fold_scores is the second fold of the second repeat.
+        assert_eq!(a.describe_fold(5), "fold 2 of repeat 2");
+        assert_eq!(a.describe_fold(11), "fold 4 of repeat 3");
+        assert_eq!(describe_fold("north", 0, 1), "fold north");
     }
 
     #[test]

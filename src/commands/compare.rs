@@ -15,21 +15,28 @@ use serde_json::Value;
 use crate::cli::CompareArgs;
 use crate::error::UsageError;
 use crate::report::compare::{
-    same_bits, BeforeAfter, Comparison, FoldsMoved, Input, InputRow, Moved, SetupChange,
+    same_bits, BeforeAfter, CandidateChange, CandidateOnly, Comparison, FoldsMoved, Input,
+    InputRow, Moved, SetupChange,
 };
 
 pub(crate) fn compare(args: &CompareArgs) -> anyhow::Result<()> {
+    let comparison = read_and_compare(args);
+    if args.json {
+        return super::summary::print_compare(args, comparison);
+    }
+    let text = crate::report::compare::render(&comparison?)
+        .context("internal error: cannot render the comparison")?;
+    super::summary::write_stdout(&text)
+}
+
+fn read_and_compare(args: &CompareArgs) -> anyhow::Result<Comparison> {
     let before = read(&args.before)?;
     let after = read(&args.after)?;
     let files = BeforeAfter {
         before: args.before.display().to_string(),
         after: args.after.display().to_string(),
     };
-    let comparison = comparison(&before, &after, files, args.all);
-    let text = crate::report::compare::render(&comparison)
-        .context("internal error: cannot render the comparison")?;
-    print!("{text}");
-    Ok(())
+    Ok(comparison(&before, &after, files, args.all))
 }
 
 fn read(path: &Path) -> anyhow::Result<Value> {
@@ -75,6 +82,34 @@ fn id(candidate: &Value) -> &str {
     candidate["id"].as_str().unwrap_or("?")
 }
 
+/// The name `verify` gives the fold at `position` in `fold_scores` (repeats
+/// concatenated), from the split a result set records: `fold 3 of repeat 2`.
+/// A fold column's labels are not in results.json, so those folds are named
+/// by their place in label order (`fold #2`).
+fn fold_name(split: &Value, position: usize) -> String {
+    let per_repeat = split["folds"]
+        .as_u64()
+        .and_then(|n| usize::try_from(n).ok())
+        .filter(|&n| n > 0)
+        .unwrap_or(usize::MAX);
+    let repeats = split["repeats"]
+        .as_u64()
+        .and_then(|n| usize::try_from(n).ok())
+        .unwrap_or(1);
+    let (repeat, index) = (position / per_repeat, position % per_repeat);
+    let label = if folds_by_position(split) {
+        format!("#{}", index + 1)
+    } else {
+        (index + 1).to_string()
+    };
+    crate::split::describe_fold(&label, repeat, repeats)
+}
+
+/// Whether the folds are a fold column's, known here only by position.
+fn folds_by_position(split: &Value) -> bool {
+    split["method"] == "column"
+}
+
 /// Every number that moved, in results order, and the fold scores that moved
 /// by candidate.
 fn moved_numbers(before: &Value, after: &Value) -> (Vec<Moved>, Vec<FoldsMoved>) {
@@ -87,6 +122,23 @@ fn moved_numbers(before: &Value, after: &Value) -> (Vec<Moved>, Vec<FoldsMoved>)
         &after["rows"],
         &mut out,
     );
+    // Fold sizes follow from the data and the split; they are counts, not
+    // settings, so they are listed with the numbers.
+    for (i, key) in ["fold_rows[0]", "fold_rows[1]"].into_iter().enumerate() {
+        let (b, a) = (
+            before["split"]["fold_rows"][i].as_f64(),
+            after["split"]["fold_rows"][i].as_f64(),
+        );
+        if !same_bits(b, a) {
+            out.push(Moved {
+                place: "split".into(),
+                number: key.into(),
+                before: b,
+                after: a,
+            });
+        }
+    }
+    let pair_folds = same_fold_layout(before, after);
     for c in candidates(before) {
         let Some(d) = candidates(after).into_iter().find(|d| id(d) == id(c)) else {
             continue;
@@ -98,37 +150,8 @@ fn moved_numbers(before: &Value, after: &Value) -> (Vec<Moved>, Vec<FoldsMoved>)
             d,
             &mut out,
         );
-        let (fb, fa) = (
-            c["fold_scores"].as_array().cloned().unwrap_or_default(),
-            d["fold_scores"].as_array().cloned().unwrap_or_default(),
-        );
-        let folds = fb.len().max(fa.len());
-        let mut moved_folds = 0;
-        let mut largest: Option<(usize, Moved)> = None;
-        for i in 0..folds {
-            let m = Moved {
-                place: id(c).to_string(),
-                number: String::new(),
-                before: fb.get(i).and_then(Value::as_f64),
-                after: fa.get(i).and_then(Value::as_f64),
-            };
-            if !same_bits(m.before, m.after) {
-                moved_folds += 1;
-                if largest
-                    .as_ref()
-                    .is_none_or(|(_, l)| m.relative() > l.relative())
-                {
-                    largest = Some((i, m));
-                }
-            }
-        }
-        if let Some((i, m)) = largest {
-            fold_changes.push(FoldsMoved {
-                moved: moved_folds,
-                folds,
-                largest: i,
-                values: m,
-            });
+        if pair_folds {
+            fold_changes.extend(fold_scores_moved(c, d, &after["split"]));
         }
     }
     scalars(
@@ -166,6 +189,52 @@ fn moved_numbers(before: &Value, after: &Value) -> (Vec<Moved>, Vec<FoldsMoved>)
     (out, fold_changes)
 }
 
+/// Whether fold scores pair up position by position: the same split method,
+/// folds per repeat and repeats. (With another seed or other rows the folds
+/// hold other rows, but a fold still has the same name in both.)
+fn same_fold_layout(before: &Value, after: &Value) -> bool {
+    ["method", "folds", "repeats"]
+        .iter()
+        .all(|key| before["split"][key] == after["split"][key])
+}
+
+/// How the fold scores of one setting (`c` before, `d` after) moved: how
+/// many, and the one that moved most, named from `split`.
+fn fold_scores_moved(c: &Value, d: &Value, split: &Value) -> Option<FoldsMoved> {
+    let (fb, fa) = (
+        c["fold_scores"].as_array().cloned().unwrap_or_default(),
+        d["fold_scores"].as_array().cloned().unwrap_or_default(),
+    );
+    let folds = fb.len().max(fa.len());
+    let mut moved_folds = 0;
+    let mut largest: Option<(usize, Moved)> = None;
+    for i in 0..folds {
+        let m = Moved {
+            place: id(c).to_string(),
+            number: String::new(),
+            before: fb.get(i).and_then(Value::as_f64),
+            after: fa.get(i).and_then(Value::as_f64),
+        };
+        if !same_bits(m.before, m.after) {
+            moved_folds += 1;
+            if largest
+                .as_ref()
+                .is_none_or(|(_, l)| m.relative() > l.relative())
+            {
+                largest = Some((i, m));
+            }
+        }
+    }
+    let (i, values) = largest?;
+    Some(FoldsMoved {
+        moved: moved_folds,
+        folds,
+        largest: i,
+        largest_fold: fold_name(split, i),
+        values,
+    })
+}
+
 /// What a comparison of two result sets says: every difference, as data.
 fn comparison(
     before: &Value,
@@ -193,28 +262,37 @@ fn comparison(
         input(Input::Templates, |r| &r["inputs"]["templates"]),
     ];
 
-    let mut setup = Vec::new();
-    for key in ["metric", "rule"] {
-        if before[key] != after[key] {
-            setup.push(SetupChange {
-                what: key.to_string(),
-                before: before[key].to_string(),
-                after: after[key].to_string(),
-            });
-        }
-    }
-    if let (Some(sb), Some(sa)) = (before["split"].as_object(), after["split"].as_object()) {
-        for (key, b) in sb {
-            let a = sa.get(key).unwrap_or(&Value::Null);
-            if a != b {
-                setup.push(SetupChange {
-                    what: format!("split {key}"),
-                    before: b.to_string(),
-                    after: a.to_string(),
-                });
+    let setup = setup_changes(before, after);
+    let (before_groups, after_groups) = (groups(before), groups(after));
+    let families = |groups: &[Group<'_>]| {
+        let mut names: Vec<String> = Vec::new();
+        for g in groups {
+            if !names.iter().any(|n| n == g.family) {
+                names.push(g.family.to_string());
             }
         }
-    }
+        names
+    };
+    let (families_before, families_after) = (families(&before_groups), families(&after_groups));
+    let only = |groups: &[Group<'_>], others: &[Group<'_>]| -> Vec<CandidateOnly> {
+        groups
+            .iter()
+            .filter(|g| !others.iter().any(|o| o.stem == g.stem))
+            .map(|g| CandidateOnly {
+                candidate: g.stem.to_string(),
+                family: g.family.to_string(),
+                features: g.features.clone(),
+                settings: g.settings.len(),
+            })
+            .collect()
+    };
+    let candidates_changed = before_groups
+        .iter()
+        .filter_map(|b| {
+            let a = after_groups.iter().find(|a| a.stem == b.stem)?;
+            candidate_change(b, a)
+        })
+        .collect();
 
     let ids = |r: &Value| {
         candidates(r)
@@ -224,16 +302,8 @@ fn comparison(
             .collect::<Vec<_>>()
     };
     let (ids_before, ids_after) = (ids(before), ids(after));
-    let added: Vec<String> = ids_after
-        .iter()
-        .filter(|i| !ids_before.contains(i))
-        .cloned()
-        .collect();
-    let removed: Vec<String> = ids_before
-        .iter()
-        .filter(|i| !ids_after.contains(i))
-        .cloned()
-        .collect();
+    let added = not_in(&ids_after, &ids_before);
+    let removed = not_in(&ids_before, &ids_after);
 
     let (mut moved, folds_moved) = moved_numbers(before, after);
     // Largest relative change first; ties keep results order.
@@ -251,13 +321,143 @@ fn comparison(
         tables: both(|r| r["data"]["table"].as_str().unwrap_or("?").to_string()),
         inputs,
         setup,
+        families_added: not_in(&families_after, &families_before),
+        families_removed: not_in(&families_before, &families_after),
+        candidates_added: only(&after_groups, &before_groups),
+        candidates_removed: only(&before_groups, &after_groups),
+        candidates_changed,
         settings_in_both: ids_before.len() - removed.len(),
         added,
         removed,
         moved,
         folds_moved,
+        folds_compared: same_fold_layout(before, after),
+        folds_by_position: folds_by_position(&after["split"]),
         list_all,
     }
+}
+
+/// The items of `these` that `those` lacks, in order.
+fn not_in(these: &[String], those: &[String]) -> Vec<String> {
+    these
+        .iter()
+        .filter(|item| !those.contains(item))
+        .cloned()
+        .collect()
+}
+
+/// The settings of the run that differ: metric and rule, every `[split]`
+/// value results.json records (fold sizes are numbers, listed with them),
+/// and the `[data]` columns. The table itself is an input, compared by digest.
+fn setup_changes(before: &Value, after: &Value) -> Vec<SetupChange> {
+    let mut setup = Vec::new();
+    let mut differ = |what: String, b: &Value, a: &Value| {
+        if a != b {
+            setup.push(SetupChange {
+                what,
+                before: b.clone(),
+                after: a.clone(),
+            });
+        }
+    };
+    for key in ["metric", "rule"] {
+        differ(key.to_string(), &before[key], &after[key]);
+    }
+    let keys = |v: &Value| -> Vec<String> {
+        v.as_object()
+            .map(|o| o.keys().cloned().collect())
+            .unwrap_or_default()
+    };
+    let (split_before, split_after) = (keys(&before["split"]), keys(&after["split"]));
+    let split_keys = split_before
+        .iter()
+        .chain(not_in(&split_after, &split_before).iter())
+        .filter(|key| *key != "fold_rows")
+        .cloned()
+        .collect::<Vec<_>>();
+    for key in split_keys {
+        differ(
+            format!("split.{key}"),
+            &before["split"][&key],
+            &after["split"][&key],
+        );
+    }
+    for key in ["target", "features", "key", "group", "order"] {
+        differ(
+            format!("data.{key}"),
+            &before["data"][key],
+            &after["data"][key],
+        );
+    }
+    setup
+}
+
+/// One `[[candidate]]` table as results.json shows it: the settings whose
+/// ids share a stem (the candidate's label, or its family's name).
+struct Group<'a> {
+    stem: &'a str,
+    family: &'a str,
+    features: Vec<String>,
+    /// Grid points by label (`degree=3`; empty for a family without settings).
+    settings: Vec<&'a str>,
+}
+
+/// The candidates of a result set, in results order.
+fn groups(results: &Value) -> Vec<Group<'_>> {
+    let mut out: Vec<Group<'_>> = Vec::new();
+    for c in candidates(results) {
+        let (stem, label) = id(c).split_once('/').unwrap_or((id(c), ""));
+        let at = match out.iter().position(|g| g.stem == stem) {
+            Some(at) => at,
+            None => {
+                out.push(Group {
+                    stem,
+                    family: c["family"].as_str().unwrap_or("?"),
+                    features: c["features"]
+                        .as_array()
+                        .map(|f| {
+                            f.iter()
+                                .map(|name| name.as_str().unwrap_or("?").to_string())
+                                .collect()
+                        })
+                        .unwrap_or_default(),
+                    settings: Vec::new(),
+                });
+                out.len() - 1
+            }
+        };
+        out[at].settings.push(label);
+    }
+    out
+}
+
+/// How a candidate both result sets have changed, if it did.
+fn candidate_change(before: &Group<'_>, after: &Group<'_>) -> Option<CandidateChange> {
+    let labels = |these: &[&str], those: &[&str]| -> Vec<String> {
+        these
+            .iter()
+            .filter(|s| !those.contains(s))
+            .map(|s| s.to_string())
+            .collect()
+    };
+    let change = CandidateChange {
+        candidate: before.stem.to_string(),
+        family: (before.family != after.family).then(|| BeforeAfter {
+            before: before.family.to_string(),
+            after: after.family.to_string(),
+        }),
+        features: (before.features != after.features).then(|| BeforeAfter {
+            before: before.features.clone(),
+            after: after.features.clone(),
+        }),
+        settings_added: labels(&after.settings, &before.settings),
+        settings_removed: labels(&before.settings, &after.settings),
+    };
+    let changed = change.family.is_some()
+        || change.features.is_some()
+        || !change.settings_added.is_empty()
+        || !change.settings_removed.is_empty();
+    changed.then_some(change)
 }
 
 #[cfg(test)]
@@ -302,5 +502,184 @@ mod tests {
         assert_eq!((c.folds_moved[0].moved, c.folds_moved[0].largest), (1, 1));
         assert!(c.setup.is_empty());
         assert!(c.inputs.iter().all(|row| !row.changed));
+    }
+
+    /// Results with two candidates (a polynomial in x with two degrees, a
+    /// linear fit in x and z), 4 folds repeated twice.
+    fn setup() -> Value {
+        let entry = |id: &str, family: &str, features: &[&str]| {
+            json!({
+                "id": id, "family": family, "features": features,
+                "cv_score": 1.0, "fold_scores": vec![1.0; 8],
+            })
+        };
+        json!({
+            "schema": "heldout-results/1",
+            "experiment": "e",
+            "metric": "mse",
+            "rule": "one-se",
+            "data": {"table": "t.csv", "target": "y", "features": ["x", "z"], "key": null},
+            "split": {
+                "method": "kfold", "seed": 7, "holdout": 0.2,
+                "folds": 4, "repeats": 2, "fold_rows": [5, 6],
+            },
+            "candidates": [
+                entry("polynomial/degree=1", "polynomial", &["x"]),
+                entry("polynomial/degree=2", "polynomial", &["x"]),
+                entry("linear", "linear", &["x", "z"]),
+            ],
+        })
+    }
+
+    fn compared(before: &Value, after: &Value) -> Comparison {
+        let files = BeforeAfter {
+            before: "a.json".to_string(),
+            after: "b.json".to_string(),
+        };
+        comparison(before, after, files, false)
+    }
+
+    /// The setup changes as (what, before, after) text.
+    fn setup_of(c: &Comparison) -> Vec<(String, String, String)> {
+        c.setup
+            .iter()
+            .map(|s| (s.what.clone(), s.before.to_string(), s.after.to_string()))
+            .collect()
+    }
+
+    /// Nothing about the candidates changed.
+    fn candidates_unchanged(c: &Comparison) -> bool {
+        c.families_added.is_empty()
+            && c.families_removed.is_empty()
+            && c.candidates_added.is_empty()
+            && c.candidates_removed.is_empty()
+            && c.candidates_changed.is_empty()
+    }
+
+    #[test]
+    fn each_split_setting_is_named_alone() {
+        let cases: [(&str, Value); 5] = [
+            ("method", json!("leave-one-out")),
+            ("folds", json!(5)),
+            ("repeats", json!(3)),
+            ("holdout", json!(0.25)),
+            ("seed", json!(8)),
+        ];
+        for (key, value) in cases {
+            let before = setup();
+            let mut after = setup();
+            let old = after["split"][key].to_string();
+            after["split"][key] = value.clone();
+            let c = compared(&before, &after);
+            assert_eq!(
+                setup_of(&c),
+                [(format!("split.{key}"), old, value.to_string())],
+                "{key}"
+            );
+            assert!(candidates_unchanged(&c), "{key}");
+            // Only another seed or holdout keeps the folds' positions.
+            let pairs = matches!(key, "holdout" | "seed");
+            assert_eq!(c.folds_compared, pairs, "{key}");
+        }
+    }
+
+    #[test]
+    fn data_features_and_a_candidates_features_are_named() {
+        let before = setup();
+        let mut after = setup();
+        after["data"]["features"] = json!(["x"]);
+        let c = compared(&before, &after);
+        assert_eq!(
+            setup_of(&c),
+            [(
+                "data.features".to_string(),
+                r#"["x","z"]"#.to_string(),
+                r#"["x"]"#.to_string()
+            )]
+        );
+        assert!(candidates_unchanged(&c));
+
+        let mut after = setup();
+        after["candidates"][2]["features"] = json!(["z"]);
+        let c = compared(&before, &after);
+        assert!(c.setup.is_empty());
+        assert_eq!(c.candidates_changed.len(), 1);
+        let change = &c.candidates_changed[0];
+        assert_eq!(change.candidate, "linear");
+        assert_eq!(
+            change.features,
+            Some(BeforeAfter {
+                before: vec!["x".to_string(), "z".to_string()],
+                after: vec!["z".to_string()],
+            })
+        );
+        assert!(change.family.is_none() && change.settings_added.is_empty());
+    }
+
+    #[test]
+    fn families_added_and_removed_are_named_with_their_candidates() {
+        let before = setup();
+        let mut after = setup();
+        let candidates = after["candidates"].as_array_mut().unwrap();
+        candidates.pop();
+        candidates.push(json!({
+            "id": "nearest-neighbors/k=3", "family": "nearest-neighbors",
+            "features": ["x", "z"], "cv_score": 1.0, "fold_scores": vec![1.0; 8],
+        }));
+        let c = compared(&before, &after);
+        assert_eq!(c.families_added, ["nearest-neighbors"]);
+        assert_eq!(c.families_removed, ["linear"]);
+        assert_eq!(
+            c.candidates_added,
+            [CandidateOnly {
+                candidate: "nearest-neighbors".into(),
+                family: "nearest-neighbors".into(),
+                features: vec!["x".into(), "z".into()],
+                settings: 1,
+            }]
+        );
+        assert_eq!(c.candidates_removed[0].candidate, "linear");
+        assert!(c.candidates_changed.is_empty());
+        assert!(c.setup.is_empty());
+    }
+
+    #[test]
+    fn a_changed_grid_names_the_settings_added_and_removed() {
+        let before = setup();
+        let mut after = setup();
+        after["candidates"][0]["id"] = json!("polynomial/degree=3");
+        let c = compared(&before, &after);
+        assert_eq!(
+            c.candidates_changed,
+            [CandidateChange {
+                candidate: "polynomial".into(),
+                family: None,
+                features: None,
+                settings_added: vec!["degree=3".into()],
+                settings_removed: vec!["degree=1".into()],
+            }]
+        );
+        // The family is still there: nothing added or removed at that level.
+        assert!(c.families_added.is_empty() && c.families_removed.is_empty());
+        assert_eq!(c.added, ["polynomial/degree=3"]);
+        assert_eq!(c.removed, ["polynomial/degree=1"]);
+    }
+
+    #[test]
+    fn folds_are_named_within_their_repeat_as_verify_names_them() {
+        let before = setup();
+        let mut after = setup();
+        after["candidates"][1]["fold_scores"][5] = json!(1.5);
+        let c = compared(&before, &after);
+        assert_eq!(c.folds_moved.len(), 1);
+        let moved = &c.folds_moved[0];
+        assert_eq!((moved.largest, moved.moved, moved.folds), (5, 1, 8));
+        assert_eq!(moved.largest_fold, "fold 2 of repeat 2");
+
+        // Without repeats, as verify says it: no repeat named.
+        assert_eq!(fold_name(&json!({"folds": 8, "repeats": 1}), 5), "fold 6");
+        // A fold column's labels are not in results.json: named by position.
+        let column = json!({"method": "column", "folds": 8, "repeats": 1});
+        assert_eq!(fold_name(&column, 5), "fold #6");
     }
 }

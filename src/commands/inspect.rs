@@ -5,11 +5,21 @@ use std::io::Write as _;
 
 use anyhow::Context;
 
+use super::summary::{self, FitCounts, PlanCandidate, PlanFolds, PlanRows};
 use crate::cache::Cache;
 use crate::cli::{FoldsArgs, PlanArgs};
 use crate::execute::{self, TaskRows};
 
 pub(crate) fn plan(args: &PlanArgs) -> anyhow::Result<()> {
+    let planned = plan_spec(args);
+    if args.json {
+        return summary::print_plan(&args.spec, planned.map(|(plan, _)| plan));
+    }
+    summary::write_stdout(&planned?.1)
+}
+
+/// What `plan` finds for the spec: the counts, and the text that shows them.
+fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
     let cache = Cache::new(&args.cache.cache);
     let loaded = crate::spec::load(&args.spec)?;
     if loaded.is_simulation() {
@@ -18,32 +28,9 @@ pub(crate) fn plan(args: &PlanArgs) -> anyhow::Result<()> {
     let plan = crate::plan::resolve(loaded)?;
     let a = &plan.assignment;
     let folds_per_repeat = a.folds.len() / a.repeats;
-    let mut out = String::new();
-    let _ = writeln!(out, "experiment  {}", plan.spec.spec.experiment.name);
-    let _ = writeln!(
-        out,
-        "rows        {} read ({} dropped), {} for cross-validation, {} locked as the test set",
-        plan.table.len(),
-        plan.table.dropped,
-        a.train.len(),
-        a.test.len()
-    );
-    let _ = writeln!(
-        out,
-        "folds       {folds_per_repeat} per repeat × {} repeat(s) = {} folds",
-        a.repeats,
-        a.folds.len()
-    );
-    let _ = writeln!(out, "cache       {}", cache.root().display());
-    let _ = writeln!(out);
-    let _ = writeln!(
-        out,
-        "{:<24} {:>8} {:>6} {:>7} {:>8} {:>14}",
-        "candidate", "settings", "fits", "cached", "to fit", "row-settings"
-    );
     let tasks = execute::tasks(&plan);
     let keys = execute::task_keys(&plan, &tasks);
-    let (mut all_fits, mut all_cached, mut all_work) = (0, 0, 0u64);
+    let mut candidates = Vec::new();
     for (index, candidate) in plan.candidates.iter().enumerate() {
         let mine: Vec<_> = tasks
             .iter()
@@ -64,28 +51,76 @@ pub(crate) fn plan(args: &PlanArgs) -> anyhow::Result<()> {
                 work += (rows * candidate.settings.len()) as u64;
             }
         }
+        candidates.push(PlanCandidate {
+            candidate: candidate.stem.clone(),
+            family: candidate.family_name.to_string(),
+            settings: candidate.settings.len(),
+            fits: FitCounts::new(mine.len(), cached),
+            work: Some(work),
+        });
+    }
+    let summary = summary::Plan {
+        experiment: plan.spec.spec.experiment.name.clone(),
+        kind: "table",
+        rows: Some(PlanRows {
+            read: plan.table.len(),
+            dropped: plan.table.dropped,
+            train: a.train.len(),
+            test: a.test.len(),
+        }),
+        simulation: None,
+        folds: PlanFolds {
+            per_repeat: folds_per_repeat,
+            repeats: a.repeats,
+        },
+        cache: cache.root().display().to_string(),
+        total: FitCounts::total(&candidates),
+        candidates,
+    };
+
+    let mut out = String::new();
+    let _ = writeln!(out, "experiment  {}", summary.experiment);
+    let _ = writeln!(
+        out,
+        "rows        {} read ({} dropped), {} for cross-validation, {} locked as the test set",
+        plan.table.len(),
+        plan.table.dropped,
+        a.train.len(),
+        a.test.len()
+    );
+    let _ = writeln!(
+        out,
+        "folds       {folds_per_repeat} per repeat × {} repeat(s) = {} folds",
+        a.repeats,
+        a.folds.len()
+    );
+    let _ = writeln!(out, "cache       {}", summary.cache);
+    let _ = writeln!(out);
+    let _ = writeln!(
+        out,
+        "{:<24} {:>8} {:>6} {:>7} {:>8} {:>14}",
+        "candidate", "settings", "fits", "cached", "to fit", "row-settings"
+    );
+    for c in &summary.candidates {
         let _ = writeln!(
             out,
             "{:<24} {:>8} {:>6} {:>7} {:>8} {:>14}",
-            candidate.stem,
-            candidate.settings.len(),
-            mine.len(),
-            cached,
-            mine.len() - cached,
-            work
+            c.candidate,
+            c.settings,
+            c.fits.fits,
+            c.fits.cached,
+            c.fits.to_fit,
+            c.work.unwrap_or_default()
         );
-        all_fits += mine.len();
-        all_cached += cached;
-        all_work += work;
     }
+    let all_work: u64 = summary.candidates.iter().filter_map(|c| c.work).sum();
     let _ = writeln!(
         out,
-        "\n{all_fits} fits (one per candidate and fold, plus one on all non-test rows): \
-         {all_cached} cached, {} to compute; work ≈ {all_work} training rows × settings",
-        all_fits - all_cached
+        "\n{} fits (one per candidate and fold, plus one on all non-test rows): \
+         {} cached, {} to compute; work ≈ {all_work} training rows × settings",
+        summary.total.fits, summary.total.cached, summary.total.to_fit
     );
-    print!("{out}");
-    Ok(())
+    Ok((summary, out))
 }
 
 pub(crate) fn folds(args: &FoldsArgs) -> anyhow::Result<()> {

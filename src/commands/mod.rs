@@ -10,6 +10,7 @@ mod run;
 mod scaffold;
 mod schema;
 mod simulate;
+mod summary;
 mod verify;
 
 use std::io::IsTerminal;

@@ -2,6 +2,7 @@
 
 use std::path::Path;
 
+use super::summary::{self, RunEntry};
 use crate::cache::Cache;
 use crate::cli::RunArgs;
 use crate::error::UsageError;
@@ -9,6 +10,11 @@ use crate::execute::{CachePolicy, Shard};
 use crate::{output, receipt, report};
 
 pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
+    summary::for_specs("run", args.json, |entries| run_specs(args, entries))
+}
+
+/// Runs the specs in order, noting what each gave in `entries`.
+fn run_specs(args: &RunArgs, entries: &mut Vec<RunEntry>) -> anyhow::Result<()> {
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let pool = super::thread_pool(args.jobs)?;
     crate::output::require_folder(&args.out, "--out")?;
@@ -23,7 +29,16 @@ pub(crate) fn run(args: &RunArgs) -> anyhow::Result<()> {
         eprintln!("removed {swept} temporary file(s) a stopped run left in the cache");
     }
     super::for_each_spec(&args.specs, |spec_path| {
-        pool.install(|| run_one(spec_path, args, &cache, shard))
+        match pool.install(|| run_one(spec_path, args, &cache, shard)) {
+            Ok(entry) => {
+                entries.push(entry);
+                Ok(())
+            }
+            Err(error) => {
+                entries.push(RunEntry::failed(spec_path, &error));
+                Err(error)
+            }
+        }
     })
 }
 
@@ -51,7 +66,7 @@ fn run_one(
     args: &RunArgs,
     cache: &Cache,
     shard: Option<Shard>,
-) -> anyhow::Result<()> {
+) -> anyhow::Result<RunEntry> {
     let policy = CachePolicy {
         read: Some(cache),
         write: Some(cache),
@@ -73,7 +88,7 @@ fn run_one(
                     cache.root().display()
                 );
             }
-            return Ok(());
+            return Ok(RunEntry::shard(spec_path, shard, &summary));
         }
     };
 
@@ -96,6 +111,8 @@ fn run_one(
             "fits: {} computed, {} reused from the cache",
             evaluation.summary.computed, evaluation.summary.reused
         );
+    }
+    if !args.quiet && !args.json {
         print!("{}", report::terminal::render(&evaluation.results));
         if evaluation.results.simulation.is_some() {
             print!(
@@ -109,7 +126,7 @@ fn run_one(
             receipt_path.display()
         );
     }
-    Ok(())
+    Ok(RunEntry::done(spec_path, &evaluation, &dir, &receipt_path))
 }
 
 #[cfg(test)]

@@ -6,6 +6,7 @@ use std::path::Path;
 
 use anyhow::Context;
 
+use super::summary::{self, FitCounts, PlanCandidate, PlanFolds, PlanSimulation};
 use super::Evaluation;
 use crate::cache::Cache;
 use crate::execute::{self, CachePolicy, Shard, Summary};
@@ -51,8 +52,9 @@ pub(super) fn evaluate(
     )?))
 }
 
-/// `heldout plan` for a simulation spec.
-pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<()> {
+/// `heldout plan` for a simulation spec: the counts, and the text that
+/// shows them.
+pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<(summary::Plan, String)> {
     let plan = simulate::resolve(loaded)?;
     let setup = &plan.setup;
     let mut out = String::new();
@@ -102,26 +104,49 @@ pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<()> {
             cached[task.candidate] += usize::from(cache.contains(&key));
         }
     }
-    for (c, candidate) in plan.candidates.iter().enumerate() {
+    let candidates: Vec<PlanCandidate> = plan
+        .candidates
+        .iter()
+        .enumerate()
+        .map(|(c, candidate)| PlanCandidate {
+            candidate: candidate.stem.clone(),
+            family: candidate.family_name.to_string(),
+            settings: candidate.settings.len(),
+            fits: FitCounts::new(fits[c], cached[c]),
+            work: None,
+        })
+        .collect();
+    for c in &candidates {
         let _ = writeln!(
             out,
             "{:<24} {:>8} {:>8} {:>8} {:>8}",
-            candidate.stem,
-            candidate.settings.len(),
-            fits[c],
-            cached[c],
-            fits[c] - cached[c]
+            c.candidate, c.settings, c.fits.fits, c.fits.cached, c.fits.to_fit
         );
     }
-    let (all, hits): (usize, usize) = (fits.iter().sum(), cached.iter().sum());
+    let total = FitCounts::total(&candidates);
     let _ = writeln!(
         out,
-        "\n{all} fits (per replicate and candidate: one on all training rows, one per fold): \
-         {hits} cached, {} to compute",
-        all - hits
+        "\n{} fits (per replicate and candidate: one on all training rows, one per fold): \
+         {} cached, {} to compute",
+        total.fits, total.cached, total.to_fit
     );
-    print!("{out}");
-    Ok(())
+    let summary = summary::Plan {
+        experiment: plan.spec.spec.experiment.name.clone(),
+        kind: "simulation",
+        rows: None,
+        simulation: Some(PlanSimulation {
+            replicates: setup.replicates,
+            train_size: setup.train_size,
+        }),
+        folds: PlanFolds {
+            per_repeat: a.folds.len() / a.repeats,
+            repeats: a.repeats,
+        },
+        cache: cache.root().display().to_string(),
+        candidates,
+        total,
+    };
+    Ok((summary, out))
 }
 
 /// `heldout folds` for a simulation spec: every replicate's assignment.

@@ -3,6 +3,7 @@
 
 use std::path::Path;
 
+use super::summary::{self, Difference, VerifyEntry};
 use crate::cache::Cache;
 use crate::cli::VerifyArgs;
 use crate::error::{SpecError, VerifyMismatch};
@@ -12,21 +13,35 @@ use crate::receipt::{self, FileDigest, Receipt};
 use crate::results::Results;
 
 pub(crate) fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
+    summary::for_specs("verify", args.json, |entries| verify_specs(args, entries))
+}
+
+/// Verifies the specs in order, noting what each gave in `entries`.
+fn verify_specs(args: &VerifyArgs, entries: &mut Vec<VerifyEntry>) -> anyhow::Result<()> {
     let pool = super::thread_pool(args.jobs)?;
     crate::output::require_folder(&args.cache.cache, "--cache")?;
     let cache = Cache::new(&args.cache.cache);
     super::for_each_spec(&args.specs, |spec_path| {
-        let differences = pool.install(|| verify_one(spec_path, args, &cache))?;
+        let outcome = pool.install(|| verify_one(spec_path, args, &cache));
+        entries.push(VerifyEntry::new(
+            spec_path,
+            &receipt::path_for(spec_path),
+            &outcome,
+        ));
+        let differences = outcome?;
         if differences.is_empty() {
-            if !args.quiet {
+            if !args.quiet && !args.json {
                 println!("verified {}: identical to its receipt", spec_path.display());
             }
             return Ok(());
         }
-        println!("MISMATCH {}", spec_path.display());
-        println!("  first difference: {}", differences[0]);
-        for other in &differences[1..] {
-            println!("  also: {other}");
+        // With --json the verdict is in the summary; stdout holds nothing else.
+        if !args.json {
+            println!("MISMATCH {}", spec_path.display());
+            println!("  first difference: {}", differences[0]);
+            for other in &differences[1..] {
+                println!("  also: {other}");
+            }
         }
         Err(VerifyMismatch {
             specs: vec![spec_path.display().to_string()],
@@ -35,7 +50,11 @@ pub(crate) fn verify(args: &VerifyArgs) -> anyhow::Result<()> {
     })
 }
 
-fn verify_one(spec_path: &Path, args: &VerifyArgs, cache: &Cache) -> anyhow::Result<Vec<String>> {
+fn verify_one(
+    spec_path: &Path,
+    args: &VerifyArgs,
+    cache: &Cache,
+) -> anyhow::Result<Vec<Difference>> {
     let receipt_path = receipt::path_for(spec_path);
     if !receipt_path.is_file() {
         return Err(SpecError::Invalid {
@@ -91,53 +110,95 @@ fn differences(
     results: &Results,
     plan: &ExperimentPlan,
     spec_path: &Path,
-) -> Vec<String> {
+) -> Vec<Difference> {
     let mut found = Vec::new();
     let short = |digest: &str| digest.chars().take(16).collect::<String>();
+    // A digest that moved: the message shows both short, the parts in full.
+    let digest = |what, message: String, before: &str, after: &str| {
+        Difference::new(what, "changed", message).values(before, after)
+    };
     if recorded.tool != now.tool {
-        found.push(format!(
-            "tool version: receipt {}, now {}",
-            recorded.tool, now.tool
+        found.push(digest(
+            "tool",
+            format!("tool version: receipt {}, now {}", recorded.tool, now.tool),
+            &recorded.tool,
+            &now.tool,
         ));
     }
     if recorded.spec != now.spec {
-        found.push(format!(
-            "spec {} changed meaning: blake3 {} in the receipt, {} now",
-            spec_path.display(),
-            short(&recorded.spec),
-            short(&now.spec)
-        ));
+        found.push(
+            digest(
+                "spec",
+                format!(
+                    "spec {} changed meaning: blake3 {} in the receipt, {} now",
+                    spec_path.display(),
+                    short(&recorded.spec),
+                    short(&now.spec)
+                ),
+                &recorded.spec,
+                &now.spec,
+            )
+            .name(spec_path.display().to_string()),
+        );
     }
     if recorded.templates != now.templates {
-        found.push(format!(
-            "report templates changed: blake3 {} in the receipt, {} now",
-            short(&recorded.templates),
-            short(&now.templates)
+        found.push(digest(
+            "templates",
+            format!(
+                "report templates changed: blake3 {} in the receipt, {} now",
+                short(&recorded.templates),
+                short(&now.templates)
+            ),
+            &recorded.templates,
+            &now.templates,
         ));
     }
-    compare_files("data file", &recorded.data, &now.data, &mut found);
+    compare_files(
+        ("data file", "data_file"),
+        &recorded.data,
+        &now.data,
+        &mut found,
+    );
     if recorded.folds != now.folds {
-        found.push(format!(
-            "fold assignment changed: blake3 {} in the receipt, {} now",
-            short(&recorded.folds),
-            short(&now.folds)
+        found.push(digest(
+            "folds",
+            format!(
+                "fold assignment changed: blake3 {} in the receipt, {} now",
+                short(&recorded.folds),
+                short(&now.folds)
+            ),
+            &recorded.folds,
+            &now.folds,
         ));
     }
     for old in &recorded.candidates {
         match now.candidates.iter().find(|c| c.id == old.id) {
-            None => found.push(format!(
-                "candidate {} is in the receipt but not computed now",
-                old.id
-            )),
+            None => found.push(
+                Difference::new(
+                    "candidate",
+                    "missing_now",
+                    format!(
+                        "candidate {} is in the receipt but not computed now",
+                        old.id
+                    ),
+                )
+                .name(&old.id),
+            ),
             Some(new) if new.blake3 != old.blake3 => found.push(
                 number_difference(&old.id, stored, results, plan).unwrap_or_else(|| {
-                    format!(
-                        "candidate {}: numbers differ (blake3 {} in the receipt, {} now; \
-                         the run's results.json was not found to name the number)",
-                        old.id,
-                        short(&old.blake3),
-                        short(&new.blake3)
+                    digest(
+                        "candidate",
+                        format!(
+                            "candidate {}: numbers differ (blake3 {} in the receipt, {} now; \
+                             the run's results.json was not found to name the number)",
+                            old.id,
+                            short(&old.blake3),
+                            short(&new.blake3)
+                        ),
+                        &old.blake3,
+                        &new.blake3,
                     )
+                    .name(&old.id)
                 }),
             ),
             Some(_) => {}
@@ -145,19 +206,41 @@ fn differences(
     }
     for new in &now.candidates {
         if !recorded.candidates.iter().any(|c| c.id == new.id) {
-            found.push(format!(
-                "candidate {} is computed now but not in the receipt",
-                new.id
-            ));
+            found.push(
+                Difference::new(
+                    "candidate",
+                    "new_now",
+                    format!(
+                        "candidate {} is computed now but not in the receipt",
+                        new.id
+                    ),
+                )
+                .name(&new.id),
+            );
         }
     }
     compare_simulation(recorded, now, stored, results, &mut found);
-    compare_files("output", &recorded.outputs, &now.outputs, &mut found);
+    compare_files(
+        ("output", "output"),
+        &recorded.outputs,
+        &now.outputs,
+        &mut found,
+    );
     if recorded.experiment != now.experiment || recorded.schema != now.schema {
-        found.push(format!(
-            "receipt header: experiment {} / {} in the receipt, {} / {} now",
-            recorded.experiment, recorded.schema, now.experiment, now.schema
-        ));
+        found.push(
+            Difference::new(
+                "receipt_header",
+                "changed",
+                format!(
+                    "receipt header: experiment {} / {} in the receipt, {} / {} now",
+                    recorded.experiment, recorded.schema, now.experiment, now.schema
+                ),
+            )
+            .values(
+                format!("{} / {}", recorded.experiment, recorded.schema),
+                format!("{} / {}", now.experiment, now.schema),
+            ),
+        );
     }
     found
 }
@@ -169,22 +252,35 @@ fn compare_simulation(
     now: &Receipt,
     stored: Option<&serde_json::Value>,
     results: &Results,
-    found: &mut Vec<String>,
+    found: &mut Vec<Difference>,
 ) {
     for old in &recorded.simulation {
         match now.simulation.iter().find(|c| c.id == old.id) {
-            None => found.push(format!(
-                "simulation {} is in the receipt but not computed now",
-                old.id
-            )),
+            None => found.push(
+                Difference::new(
+                    "simulation",
+                    "missing_now",
+                    format!(
+                        "simulation {} is in the receipt but not computed now",
+                        old.id
+                    ),
+                )
+                .name(&old.id),
+            ),
             Some(new) if new.blake3 != old.blake3 => found.push(
                 simulation_difference(&old.id, stored, results).unwrap_or_else(|| {
-                    format!(
-                        "simulation {}: numbers differ (blake3 {} in the receipt, {} now)",
-                        old.id,
-                        &old.blake3[..16],
-                        &new.blake3[..16]
+                    Difference::new(
+                        "simulation",
+                        "changed",
+                        format!(
+                            "simulation {}: numbers differ (blake3 {} in the receipt, {} now)",
+                            old.id,
+                            &old.blake3[..16],
+                            &new.blake3[..16]
+                        ),
                     )
+                    .name(&old.id)
+                    .values(old.blake3.as_str(), new.blake3.as_str())
                 }),
             ),
             Some(_) => {}
@@ -192,10 +288,17 @@ fn compare_simulation(
     }
     for new in &now.simulation {
         if !recorded.simulation.iter().any(|c| c.id == new.id) {
-            found.push(format!(
-                "simulation {} is computed now but not in the receipt",
-                new.id
-            ));
+            found.push(
+                Difference::new(
+                    "simulation",
+                    "new_now",
+                    format!(
+                        "simulation {} is computed now but not in the receipt",
+                        new.id
+                    ),
+                )
+                .name(&new.id),
+            );
         }
     }
 }
@@ -205,7 +308,7 @@ fn simulation_difference(
     id: &str,
     stored: Option<&serde_json::Value>,
     results: &Results,
-) -> Option<String> {
+) -> Option<Difference> {
     let stored = stored?;
     let now = results.simulation.as_ref()?;
     if id == "cv-choices" {
@@ -219,11 +322,21 @@ fn simulation_difference(
         {
             let was = before.get(r).and_then(|v| v.as_str()).unwrap_or("nothing");
             if was != after {
-                return Some(format!(
+                let message = format!(
                     "simulation: cross-validation on replicate {} chose {was} in the receipt's \
                      results, {after} now",
                     r + 1
-                ));
+                );
+                return Some(
+                    Difference::new("simulation", "changed", message)
+                        .name(id)
+                        .choice(
+                            "chosen_by_replicate",
+                            format!("replicate {}", r + 1),
+                            was,
+                            after,
+                        ),
+                );
             }
         }
         return None;
@@ -236,36 +349,64 @@ fn simulation_difference(
     for (name, after) in new.named_numbers() {
         let before = old[name].as_f64().unwrap_or(f64::NAN);
         if before.to_bits() != after.to_bits() {
-            return Some(format!(
+            let message = format!(
                 "simulation {id}, {name}: {before:?} in the receipt's results, {after:?} now \
                  ({} ulps apart)",
                 receipt::ulps_apart(before, after)
-            ));
+            );
+            return Some(
+                Difference::new("simulation", "changed", message)
+                    .name(id)
+                    .number(name, None, before, after),
+            );
         }
     }
     None
 }
 
-fn compare_files(what: &str, recorded: &[FileDigest], now: &[FileDigest], found: &mut Vec<String>) {
+/// Files of the receipt (`label` in messages, `what` in the summary) that
+/// changed, went or came.
+fn compare_files(
+    (label, what): (&str, &'static str),
+    recorded: &[FileDigest],
+    now: &[FileDigest],
+    found: &mut Vec<Difference>,
+) {
     for old in recorded {
         match now.iter().find(|f| f.path == old.path) {
-            None => found.push(format!(
-                "{what} {} is in the receipt but not used now",
-                old.path
-            )),
-            Some(new) if new.blake3 != old.blake3 => found.push(format!(
-                "{what} {} changed: blake3 {} in the receipt, {} now",
-                old.path, old.blake3, new.blake3
-            )),
+            None => found.push(
+                Difference::new(
+                    what,
+                    "missing_now",
+                    format!("{label} {} is in the receipt but not used now", old.path),
+                )
+                .name(&old.path),
+            ),
+            Some(new) if new.blake3 != old.blake3 => found.push(
+                Difference::new(
+                    what,
+                    "changed",
+                    format!(
+                        "{label} {} changed: blake3 {} in the receipt, {} now",
+                        old.path, old.blake3, new.blake3
+                    ),
+                )
+                .name(&old.path)
+                .values(old.blake3.as_str(), new.blake3.as_str()),
+            ),
             Some(_) => {}
         }
     }
     for new in now {
         if !recorded.iter().any(|f| f.path == new.path) {
-            found.push(format!(
-                "{what} {} is used now but not in the receipt",
-                new.path
-            ));
+            found.push(
+                Difference::new(
+                    what,
+                    "new_now",
+                    format!("{label} {} is used now but not in the receipt", new.path),
+                )
+                .name(&new.path),
+            );
         }
     }
 }
@@ -276,7 +417,7 @@ fn number_difference(
     stored: Option<&serde_json::Value>,
     results: &Results,
     plan: &ExperimentPlan,
-) -> Option<String> {
+) -> Option<Difference> {
     let old = stored?["candidates"]
         .as_array()?
         .iter()
@@ -288,17 +429,24 @@ fn number_difference(
         ("cv_score", new.cv_score),
         ("cv_se", new.cv_se),
     ];
-    let describe = |what: String, before: f64, after: f64| {
-        format!(
+    let describe = |number: &str, place: Option<String>, before: f64, after: f64| {
+        let what = match &place {
+            Some(place) => format!("score on {place}"),
+            None => number.to_string(),
+        };
+        let message = format!(
             "candidate {id}, {what}: {before:?} in the receipt's results, {after:?} now \
              ({} ulps apart)",
             receipt::ulps_apart(before, after)
-        )
+        );
+        Difference::new("candidate", "changed", message)
+            .name(id)
+            .number(number, place, before, after)
     };
     for (name, after) in scalars {
         let before = old[name].as_f64().unwrap_or(f64::NAN);
         if before.to_bits() != after.to_bits() {
-            return Some(describe(name.to_string(), before, after));
+            return Some(describe(name, None, before, after));
         }
     }
     let old_folds = old["fold_scores"].as_array()?;
@@ -308,13 +456,8 @@ fn number_difference(
             .and_then(|v| v.as_f64())
             .unwrap_or(f64::NAN);
         if before.to_bits() != after.to_bits() {
-            let fold = &plan.assignment.folds[i];
-            let place = if plan.assignment.repeats > 1 {
-                format!("fold {} of repeat {}", fold.label, fold.repeat + 1)
-            } else {
-                format!("fold {}", fold.label)
-            };
-            return Some(describe(format!("score on {place}"), before, *after));
+            let place = plan.assignment.describe_fold(i);
+            return Some(describe("fold_scores", Some(place), before, *after));
         }
     }
     None

@@ -48,14 +48,53 @@ pub(crate) struct InputRow {
     pub(crate) changed: bool,
 }
 
-/// A setting of the run (metric, rule, split) that differs.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+impl Input {
+    /// The input's name in `--json` output (docs/json.md).
+    pub(crate) fn key(self) -> &'static str {
+        match self {
+            Input::Data => "data",
+            Input::Tool => "tool",
+            Input::Spec => "spec",
+            Input::Folds => "folds",
+            Input::Templates => "templates",
+        }
+    }
+}
+
+/// A setting of the run that differs: the metric, the rule, a `[split]`
+/// value or a `[data]` column.
+#[derive(Debug, Clone, PartialEq)]
 pub(crate) struct SetupChange {
-    /// Which setting, e.g. `metric` or `split folds`.
+    /// Which setting, by its path in results.json: `metric`, `split.folds`,
+    /// `data.features`.
     pub(crate) what: String,
-    /// The values as JSON text.
-    pub(crate) before: String,
-    pub(crate) after: String,
+    /// The values as stored (`null` where a result set lacks the setting).
+    pub(crate) before: serde_json::Value,
+    pub(crate) after: serde_json::Value,
+}
+
+/// A candidate (one `[[candidate]]` table, known by the stem of its ids)
+/// that only one of the result sets has.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub(crate) struct CandidateOnly {
+    pub(crate) candidate: String,
+    pub(crate) family: String,
+    pub(crate) features: Vec<String>,
+    /// How many settings its grid has.
+    pub(crate) settings: usize,
+}
+
+/// A candidate both result sets have, whose family, features or grid differ.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub(crate) struct CandidateChange {
+    pub(crate) candidate: String,
+    /// Only when the family differs (a label kept over a new family).
+    pub(crate) family: Option<BeforeAfter<String>>,
+    /// Only when the features differ.
+    pub(crate) features: Option<BeforeAfter<Vec<String>>>,
+    /// Grid points by their label (`degree=14`), in results order.
+    pub(crate) settings_added: Vec<String>,
+    pub(crate) settings_removed: Vec<String>,
 }
 
 /// A number that differs between the two result sets.
@@ -86,8 +125,10 @@ impl Moved {
 pub(crate) struct FoldsMoved {
     pub(crate) moved: usize,
     pub(crate) folds: usize,
-    /// The fold whose score moved most (relative), 0-based, and its values.
+    /// The fold whose score moved most (relative): its 0-based position in
+    /// `fold_scores`, its name as `verify` gives it, and its values.
     pub(crate) largest: usize,
+    pub(crate) largest_fold: String,
     pub(crate) values: Moved,
 }
 
@@ -107,13 +148,26 @@ pub(crate) struct Comparison {
     pub(crate) tables: BeforeAfter<String>,
     pub(crate) inputs: Vec<InputRow>,
     pub(crate) setup: Vec<SetupChange>,
-    /// How many candidate ids the two result sets share.
+    /// Family names only one result set uses.
+    pub(crate) families_added: Vec<String>,
+    pub(crate) families_removed: Vec<String>,
+    pub(crate) candidates_added: Vec<CandidateOnly>,
+    pub(crate) candidates_removed: Vec<CandidateOnly>,
+    pub(crate) candidates_changed: Vec<CandidateChange>,
+    /// How many setting ids the two result sets share.
     pub(crate) settings_in_both: usize,
+    /// Setting ids only one result set has.
     pub(crate) added: Vec<String>,
     pub(crate) removed: Vec<String>,
     /// The numbers that moved, largest relative change first.
     pub(crate) moved: Vec<Moved>,
     pub(crate) folds_moved: Vec<FoldsMoved>,
+    /// Whether fold scores were compared: only when both result sets divide
+    /// the rows the same way (method, folds, repeats), so positions pair up.
+    pub(crate) folds_compared: bool,
+    /// The folds come from a fold column, whose labels results.json does not
+    /// keep, so folds are named by position (`fold #2`).
+    pub(crate) folds_by_position: bool,
     /// List every moved number, not just the first [`SHOWN`].
     pub(crate) list_all: bool,
 }
@@ -168,9 +222,17 @@ struct FoldsView<'a> {
     /// How many fold scores moved, of how many.
     moved: usize,
     folds: usize,
-    /// The fold that moved most, 1-based as people count.
-    fold: usize,
+    /// The fold that moved most, named as `verify` names it.
+    fold: &'a str,
     values: MovedView<'a>,
+}
+
+/// A row of the setup table, its values written out.
+#[derive(Serialize)]
+struct SetupView<'a> {
+    what: &'a str,
+    before: String,
+    after: String,
 }
 
 /// The template context: the comparison with its numbers written out.
@@ -182,7 +244,12 @@ struct View<'a> {
     test_score: Option<TestScoreView<'a>>,
     tables: &'a BeforeAfter<String>,
     inputs: Vec<InputView>,
-    setup: &'a [SetupChange],
+    setup: Vec<SetupView<'a>>,
+    families_added: &'a [String],
+    families_removed: &'a [String],
+    candidates_added: &'a [CandidateOnly],
+    candidates_removed: &'a [CandidateOnly],
+    candidates_changed: &'a [CandidateChange],
     settings_in_both: usize,
     added: &'a [String],
     removed: &'a [String],
@@ -190,6 +257,8 @@ struct View<'a> {
     moved: Vec<MovedView<'a>>,
     not_shown: usize,
     folds_moved: Vec<FoldsView<'a>>,
+    folds_compared: bool,
+    folds_by_position: bool,
 }
 
 impl<'a> View<'a> {
@@ -220,7 +289,20 @@ impl<'a> View<'a> {
             test_score,
             tables: &c.tables,
             inputs: c.inputs.iter().map(input_view).collect(),
-            setup: &c.setup,
+            setup: c
+                .setup
+                .iter()
+                .map(|change| SetupView {
+                    what: &change.what,
+                    before: setting_text(&change.before),
+                    after: setting_text(&change.after),
+                })
+                .collect(),
+            families_added: &c.families_added,
+            families_removed: &c.families_removed,
+            candidates_added: &c.candidates_added,
+            candidates_removed: &c.candidates_removed,
+            candidates_changed: &c.candidates_changed,
             settings_in_both: c.settings_in_both,
             added: &c.added,
             removed: &c.removed,
@@ -233,11 +315,29 @@ impl<'a> View<'a> {
                 .map(|f| FoldsView {
                     moved: f.moved,
                     folds: f.folds,
-                    fold: f.largest + 1,
+                    fold: &f.largest_fold,
                     values: moved_view(&f.values),
                 })
                 .collect(),
+            folds_compared: c.folds_compared,
+            folds_by_position: c.folds_by_position,
         }
+    }
+}
+
+/// A stored setting as a person reads it: text without quotes, lists joined
+/// by commas, `none` for a setting a result set lacks.
+fn setting_text(value: &serde_json::Value) -> String {
+    use serde_json::Value;
+    match value {
+        Value::Null => "none".to_string(),
+        Value::String(text) => text.clone(),
+        Value::Array(items) => items
+            .iter()
+            .map(setting_text)
+            .collect::<Vec<_>>()
+            .join(", "),
+        other => other.to_string(),
     }
 }
 
@@ -418,11 +518,18 @@ mod tests {
                 changed: false,
             }],
             setup: Vec::new(),
+            families_added: Vec::new(),
+            families_removed: Vec::new(),
+            candidates_added: Vec::new(),
+            candidates_removed: Vec::new(),
+            candidates_changed: Vec::new(),
             settings_in_both: 3,
             added: Vec::new(),
             removed: Vec::new(),
             moved: Vec::new(),
             folds_moved: Vec::new(),
+            folds_compared: true,
+            folds_by_position: false,
             list_all: false,
         }
     }
@@ -439,11 +546,66 @@ mod tests {
              ### Inputs\n\n\
              | input | | before | after |\n|---|---|---|---|\n\
              | data t\\|1.csv | same | `0123456789abcdef` | `0123456789abcdef` |\n\n\
+             ### Setup\n\n\
+             The same metric, rule, split and data columns in both.\n\n\
              ### Candidates\n\n\
              The same 3 settings in both.\n\n\
              ### Numbers that moved\n\n\
              None: every number present in both is identical to the bit.\n"
         );
+    }
+
+    #[test]
+    fn setup_and_candidate_changes_read_as_lines_with_names_escaped() {
+        let mut comparison = unchanged();
+        comparison.setup = vec![
+            SetupChange {
+                what: "split.folds".into(),
+                before: serde_json::json!(10),
+                after: serde_json::json!(5),
+            },
+            SetupChange {
+                what: "data.features".into(),
+                before: serde_json::json!(["a_1", "b|2"]),
+                after: serde_json::json!(["a_1"]),
+            },
+            SetupChange {
+                what: "data.key".into(),
+                before: serde_json::Value::Null,
+                after: serde_json::json!("id"),
+            },
+        ];
+        comparison.families_added = vec!["ridge".into()];
+        comparison.candidates_added = vec![CandidateOnly {
+            candidate: "ridge".into(),
+            family: "ridge".into(),
+            features: vec!["a_1".into()],
+            settings: 1,
+        }];
+        comparison.candidates_changed = vec![CandidateChange {
+            candidate: "flex".into(),
+            family: Some(BeforeAfter {
+                before: "polynomial".into(),
+                after: "smoothing-spline".into(),
+            }),
+            features: None,
+            settings_added: vec!["df=4".into()],
+            settings_removed: vec!["degree=4".into(), "degree=5".into()],
+        }];
+        let text = render(&comparison).unwrap();
+        for line in [
+            "| split.folds | 10 | 5 |\n",
+            "| data.features | a\\_1, b\\|2 | a\\_1 |\n",
+            "| data.key | none | id |\n",
+            "- Families added: `ridge`.\n",
+            "- New candidate `ridge` (ridge on a\\_1): 1 setting.\n",
+            "- `flex`: family `polynomial` → `smoothing-spline`.\n",
+            "- `flex` grid: added `df=4`; removed `degree=4`, `degree=5`.\n",
+        ] {
+            assert!(text.contains(line), "missing {line:?} in:\n{text}");
+        }
+        assert!(!text.contains("The same metric"), "{text}");
+        assert!(!text.contains("Families removed"), "{text}");
     }
 
     #[test]

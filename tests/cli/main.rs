@@ -10,6 +10,7 @@ mod cv_reference;
 mod demo;
 mod fuzz;
 mod hostile;
+mod json;
 mod nist;
 mod ordered;
 mod report_command;
