@@ -497,9 +497,9 @@ fn decode_png(path: &Path) -> (u32, u32, Vec<[u8; 3]>) {
 #[test]
 fn a_browser_renders_the_page_cleanly() {
     if !Path::new(CHROMIUM).exists() {
-        eprintln!(
-            "skipped: {CHROMIUM} is absent; install it (apt-get install -y chromium) to render \
-             the report in a real browser"
+        util::skip_reference(
+            "a_browser_renders_the_page_cleanly",
+            &format!("{CHROMIUM} is absent; install it (apt-get install -y chromium)"),
         );
         return;
     }

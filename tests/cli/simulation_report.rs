@@ -232,7 +232,10 @@ fn reports_show_the_figure_in_their_simulation_section() {
 fn simulation_tables_fit_a_1200_pixel_window() {
     use crate::reports::{chromium, CHROMIUM};
     if !Path::new(CHROMIUM).exists() {
-        eprintln!("skipped: {CHROMIUM} is absent; install it (apt-get install -y chromium)");
+        crate::util::skip_reference(
+            "simulation_tables_fit_a_1200_pixel_window",
+            &format!("{CHROMIUM} is absent; install it (apt-get install -y chromium)"),
+        );
         return;
     }
     let dir = tempfile::tempdir().unwrap();
