@@ -131,6 +131,17 @@ pub struct CacheArgs {
     pub cache: PathBuf,
 }
 
+/// Where a spec's data may come from.
+#[derive(Debug, Args)]
+pub struct DataAccessArgs {
+    /// Read a data table that lies outside the spec's repository (the
+    /// nearest folder above the spec holding .git, else the current folder);
+    /// refused by default so a spec from a pull request cannot make CI read
+    /// other files.
+    #[arg(long)]
+    pub allow_outside: bool,
+}
+
 #[derive(Debug, Args)]
 pub struct RunArgs {
     /// Spec files (TOML or YAML) to run, one after another.
@@ -153,6 +164,8 @@ pub struct RunArgs {
     /// Print one JSON object on stdout instead of text (fields: docs/json.md).
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
 }
 
 #[derive(Debug, Args)]
@@ -177,6 +190,8 @@ pub struct VerifyArgs {
     /// Print one JSON object on stdout instead of text (fields: docs/json.md).
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
 }
 
 #[derive(Debug, Args)]
@@ -189,6 +204,8 @@ pub struct PlanArgs {
     /// Print one JSON object on stdout instead of text (fields: docs/json.md).
     #[arg(long)]
     pub json: bool,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
 }
 
 #[derive(Debug, Args)]
@@ -196,6 +213,8 @@ pub struct FoldsArgs {
     /// The spec whose split to print.
     #[arg(value_name = "SPEC")]
     pub spec: PathBuf,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
 }
 
 #[derive(Debug, Args)]
@@ -225,9 +244,16 @@ pub struct ReportArgs {
     /// Folder where `run` wrote outputs; reads and writes DIR/NAME/ (NAME: the experiment name).
     #[arg(long, value_name = "DIR", default_value = "out")]
     pub out: PathBuf,
+    /// Render even when results.json is not the file the spec's receipt
+    /// records (edited by hand, or no receipt); the reports then say
+    /// UNVERIFIED on their first line.
+    #[arg(long)]
+    pub unverified: bool,
     /// Print nothing but errors and notes.
     #[arg(long, short)]
     pub quiet: bool,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
 }
 
 #[derive(Debug, Args)]

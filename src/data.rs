@@ -62,6 +62,25 @@ impl Table {
 /// squares over millions of rows) stay finite in double precision.
 pub(crate) const LARGEST_VALUE: f64 = 1e150;
 
+/// At most this many characters of a cell or header name are shown in a
+/// message.
+const SHOWN_CHARS: usize = 40;
+
+/// `text` as a message shows it: at most [`SHOWN_CHARS`] characters, with
+/// control characters replaced, so a message never carries a long stretch of
+/// a file (or of something that is not a table at all).
+fn shorten(text: &str) -> String {
+    let mut shown: String = text
+        .chars()
+        .take(SHOWN_CHARS)
+        .map(|c| if c.is_control() { '\u{fffd}' } else { c })
+        .collect();
+    if text.chars().count() > SHOWN_CHARS {
+        shown.push('…');
+    }
+    shown
+}
+
 /// How often, in bytes parsed, [`load`] reports its progress.
 const REPORT_EVERY: u64 = 1 << 20;
 
@@ -126,9 +145,21 @@ pub(crate) fn load(
             let hint = crate::spec::closest(name, &allowed)
                 .map(|w| format!(" (did you mean \"{w}\"?)"))
                 .unwrap_or_default();
+            // A one-column header cannot hold a target and a feature: the
+            // file is not comma-separated (or not a table at all), and its
+            // first line is not echoed, since messages show no more of a
+            // file than the offending cell.
+            if header.len() < 2 {
+                return table_error(format!(
+                    "no column named \"{name}\": the header has a single column of {} \
+                     characters; is the file comma-separated?",
+                    header.first().map_or(0, |h| h.chars().count())
+                ));
+            }
+            let shown: Vec<String> = header.iter().map(|h| shorten(h)).collect();
             table_error(format!(
                 "no column named \"{name}\"{hint}; the header has: {}",
-                header.join(", ")
+                shown.join(", ")
             ))
         })
     };
@@ -207,21 +238,25 @@ pub(crate) fn load(
                     "the cell is empty; fill it, or set `missing = \"drop-rows\"` in [data]".into(),
                 ));
             }
-            let value: f64 = trimmed
-                .parse()
-                .map_err(|_| cell_error(name, format!("cannot read \"{raw}\" as a number")))?;
+            let value: f64 = trimmed.parse().map_err(|_| {
+                cell_error(
+                    name,
+                    format!("cannot read \"{}\" as a number", shorten(raw)),
+                )
+            })?;
             if !value.is_finite() {
                 return Err(cell_error(
                     name,
-                    format!("\"{raw}\" is not a finite number"),
+                    format!("\"{}\" is not a finite number", shorten(raw)),
                 ));
             }
             if value.abs() > LARGEST_VALUE {
                 return Err(cell_error(
                     name,
                     format!(
-                        "\"{raw}\" is beyond ±{LARGEST_VALUE:e}: squares and sums of squares \
-                         of it overflow; rescale the column"
+                        "\"{}\" is beyond ±{LARGEST_VALUE:e}: squares and sums of squares \
+                         of it overflow; rescale the column",
+                        shorten(raw)
                     ),
                 ));
             }

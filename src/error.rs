@@ -183,6 +183,12 @@ pub(crate) struct VerifyMismatch {
     pub(crate) specs: Vec<String>,
 }
 
+/// `report` was asked to render results that do not match their receipt
+/// (exit code 1, like a failed verification: the numbers are not vouched for).
+#[derive(Debug, thiserror::Error)]
+#[error("{0}")]
+pub(crate) struct UnverifiedResults(pub String);
+
 /// Some of several specs given to one command failed. Each was reported
 /// as it failed; this closes the command with the worst exit code of them.
 #[derive(Debug, thiserror::Error)]
@@ -203,7 +209,7 @@ pub(crate) struct UsageError(pub String);
 /// Chooses the exit code for an error chain: bad input (2) when any link is one
 /// of the input error kinds above, internal (3) otherwise.
 pub fn exit_code_for(error: &anyhow::Error) -> u8 {
-    if error.is::<VerifyMismatch>() {
+    if error.is::<VerifyMismatch>() || error.is::<UnverifiedResults>() {
         return exit::MISMATCH;
     }
     if let Some(several) = error.downcast_ref::<SpecsFailed>() {

@@ -150,8 +150,7 @@ pub(crate) fn resolve_reporting(
         text,
         missing: data_spec.missing,
     };
-    let shown = PathBuf::from(&data_spec.table);
-    let resolved = resolve_relative(spec.base_dir(), &shown);
+    let resolved = data_path(&spec)?;
     let table = data::load(&resolved, &resolved, &request, on_read)?;
     let target = table.column(&data_spec.target).to_vec();
 
@@ -274,6 +273,58 @@ pub(crate) fn resolve_reporting(
 }
 
 /// `path` resolved against the spec's folder when relative.
+/// The `[data] table` of `spec`, resolved against the spec's folder and
+/// confined to the spec's repository unless `spec.allow_outside`: a spec
+/// that arrives in a pull request must not make CI read the runner's files.
+/// The repository is the nearest folder above the spec that holds `.git`,
+/// or, where there is none, the current working directory. Symbolic links
+/// are followed before the check. A path that does not resolve is left to
+/// the reader, whose error names it.
+pub(crate) fn data_path(spec: &LoadedSpec) -> Result<PathBuf, DataError> {
+    let table = &spec.data().table;
+    let resolved = resolve_relative(spec.base_dir(), Path::new(table));
+    if spec.allow_outside {
+        return Ok(resolved);
+    }
+    let Ok(real) = resolved.canonicalize() else {
+        return Ok(resolved);
+    };
+    let Some(root) = repository_of(&spec.path) else {
+        return Ok(resolved);
+    };
+    if real.starts_with(&root) {
+        return Ok(resolved);
+    }
+    Err(DataError::Table {
+        path: resolved,
+        message: format!(
+            "[data] table = \"{table}\" in {} resolves to {}, outside the repository {}; \
+             heldout reads data only inside the spec's repository (the nearest folder above \
+             the spec holding .git, else the current folder); pass --allow-outside if this \
+             file is meant",
+            spec.path.display(),
+            real.display(),
+            root.display()
+        ),
+    })
+}
+
+/// The repository a spec belongs to, as a canonical path: the nearest
+/// ancestor of the spec holding `.git` (a folder, or a file in a worktree),
+/// else the current working directory.
+fn repository_of(spec_path: &Path) -> Option<PathBuf> {
+    let spec = spec_path.canonicalize().ok()?;
+    let from_git = spec
+        .ancestors()
+        .skip(1)
+        .find(|folder| folder.join(".git").exists())
+        .map(Path::to_path_buf);
+    match from_git {
+        Some(root) => Some(root),
+        None => std::env::current_dir().ok()?.canonicalize().ok(),
+    }
+}
+
 pub(crate) fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
     if path.is_absolute() {
         path.to_path_buf()

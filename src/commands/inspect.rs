@@ -21,7 +21,7 @@ pub(crate) fn plan(args: &PlanArgs) -> anyhow::Result<()> {
 /// What `plan` finds for the spec: the counts, and the text that shows them.
 fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
     let cache = Cache::new(&args.cache.cache);
-    let loaded = crate::spec::load(&args.spec)?;
+    let loaded = super::load_spec(&args.spec, &args.data)?;
     if loaded.is_simulation() {
         return super::simulate::plan(loaded, &cache);
     }
@@ -124,7 +124,7 @@ fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
 }
 
 pub(crate) fn folds(args: &FoldsArgs) -> anyhow::Result<()> {
-    let loaded = crate::spec::load(&args.spec)?;
+    let loaded = super::load_spec(&args.spec, &args.data)?;
     if loaded.is_simulation() {
         return super::simulate::folds(loaded);
     }

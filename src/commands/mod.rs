@@ -18,7 +18,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::Context;
 
-use crate::cli::Command;
+use crate::cli::{Command, DataAccessArgs};
 use crate::error::{exit, exit_code_for, SpecsFailed, UsageError, VerifyMismatch};
 use crate::execute::{self, CachePolicy, CandidateFits, Shard, Summary};
 use crate::plan::{self, ExperimentPlan};
@@ -137,15 +137,27 @@ struct Evaluation {
     summary: Summary,
 }
 
+/// Loads and checks a spec, with where its data may come from as the
+/// command line says.
+fn load_spec(
+    spec_path: &Path,
+    access: &DataAccessArgs,
+) -> Result<spec::LoadedSpec, crate::error::SpecError> {
+    let mut loaded = spec::load(spec_path)?;
+    loaded.allow_outside = access.allow_outside;
+    Ok(loaded)
+}
+
 /// Loads a spec and evaluates it: a table through the plan, a simulation
 /// through its replicates. Returns `Ok(Err(summary))` for a shard.
 fn evaluate_spec(
     spec_path: &Path,
+    access: &DataAccessArgs,
     policy: CachePolicy<'_>,
     shard: Option<Shard>,
     show_progress: bool,
 ) -> anyhow::Result<Result<Evaluation, Summary>> {
-    let loaded = spec::load(spec_path)?;
+    let loaded = load_spec(spec_path, access)?;
     if loaded.is_simulation() {
         return simulate::evaluate(loaded, spec_path, policy, shard, show_progress);
     }
@@ -222,6 +234,7 @@ fn finish(
     let inputs = report::ReportInputs {
         regenerate: &regenerate,
         spec_text: &spec_text,
+        unverified: None,
     };
     let outputs = report::render_outputs(&results, &plan.spec.spec.report.formats, &inputs)
         .context("cannot render the reports")?;

@@ -13,10 +13,10 @@ use std::path::Path;
 use anyhow::Context;
 
 use crate::cli::ReportArgs;
-use crate::error::{DataError, UsageError};
+use crate::error::{DataError, UnverifiedResults, UsageError};
 use crate::results::{self, Results};
 use crate::spec::LoadedSpec;
-use crate::{output, plan, receipt, report, spec};
+use crate::{output, plan, receipt, report};
 
 pub(crate) fn report(args: &ReportArgs) -> anyhow::Result<()> {
     for spec_path in &args.specs {
@@ -31,7 +31,7 @@ fn short(digest: &str) -> &str {
 }
 
 fn report_one(spec_path: &Path, args: &ReportArgs) -> anyhow::Result<()> {
-    let loaded = spec::load(spec_path)?;
+    let loaded = super::load_spec(spec_path, &args.data)?;
     let dir = output::experiment_dir(&args.out, &loaded.spec.experiment.name);
     let path = dir.join("results.json");
     let run_again = {
@@ -54,6 +54,21 @@ fn report_one(spec_path: &Path, args: &ReportArgs) -> anyhow::Result<()> {
             spec_path.display()
         ))
     })?;
+    let unverified = unverified_because(spec_path, &path, text.as_bytes(), &run_again)?;
+    let unverified = match unverified {
+        Some(why) if !args.unverified => {
+            return Err(UnverifiedResults(format!(
+                "{why}; run `{run_again}` to compute them afresh, or pass --unverified to render \
+                 them marked as unverified"
+            ))
+            .into())
+        }
+        Some(why) => {
+            eprintln!("warning: {why}; the reports say UNVERIFIED on their first line");
+            Some(why)
+        }
+        None => None,
+    };
     let mut results = results::from_json(&text).map_err(|error| {
         UsageError(format!(
             "{}: cannot read the stored results ({error}); run `{run_again}` to write them afresh",
@@ -105,6 +120,7 @@ fn report_one(spec_path: &Path, args: &ReportArgs) -> anyhow::Result<()> {
     let inputs = report::ReportInputs {
         regenerate: &regenerate,
         spec_text: &spec_text,
+        unverified: unverified.as_deref(),
     };
     let files =
         report::render_reports(&results, formats, &inputs).context("cannot render the reports")?;
@@ -119,6 +135,47 @@ fn report_one(spec_path: &Path, args: &ReportArgs) -> anyhow::Result<()> {
         );
     }
     Ok(())
+}
+
+/// Why the stored results at `path` cannot be vouched for, `None` when they
+/// are byte for byte the results.json the spec's receipt records. A report
+/// re-rendered from an edited results.json would pass the edit off as
+/// computed.
+fn unverified_because(
+    spec_path: &Path,
+    path: &Path,
+    bytes: &[u8],
+    run_again: &str,
+) -> anyhow::Result<Option<String>> {
+    let receipt_path = receipt::path_for(spec_path);
+    if !receipt_path.is_file() {
+        return Ok(Some(format!(
+            "{}: there is no receipt ({}) to check these results against",
+            path.display(),
+            receipt_path.display()
+        )));
+    }
+    let recorded = receipt::read(&receipt_path)
+        .with_context(|| format!("cannot check {} against its receipt", path.display()))?;
+    let digest = crate::digests::file_digest(bytes);
+    let Some(expected) = recorded.outputs.iter().find(|o| o.path == "results.json") else {
+        return Ok(Some(format!(
+            "{}: the receipt {} records no results.json (was it written by `{run_again}`?)",
+            path.display(),
+            receipt_path.display()
+        )));
+    };
+    if expected.blake3 == digest {
+        return Ok(None);
+    }
+    Ok(Some(format!(
+        "{} is not the results.json its receipt {} records (blake3 {} there, {} here): \
+         its numbers were edited or come from another run",
+        path.display(),
+        receipt_path.display(),
+        short(&expected.blake3),
+        short(&digest)
+    )))
 }
 
 /// What differs between the inputs the stored results record and the spec
@@ -136,7 +193,7 @@ fn stale_inputs(loaded: &LoadedSpec, results: &Results) -> Result<Vec<String>, D
     }
     // A simulation's data are drawn from the spec, whose digest covers them.
     if let Some(data) = &loaded.spec.data {
-        let file = plan::resolve_relative(loaded.base_dir(), Path::new(&data.table));
+        let file = plan::data_path(loaded)?;
         let bytes = std::fs::read(&file).map_err(|error| DataError::Read {
             path: file.clone(),
             error,

@@ -71,8 +71,13 @@ fn run_one(
         read: Some(cache),
         write: Some(cache),
     };
-    let evaluation =
-        super::evaluate_spec(spec_path, policy, shard, super::progress_wanted(args.quiet))?;
+    let evaluation = super::evaluate_spec(
+        spec_path,
+        &args.data,
+        policy,
+        shard,
+        super::progress_wanted(args.quiet),
+    )?;
     let evaluation = match evaluation {
         Ok(evaluation) => evaluation,
         Err(summary) => {

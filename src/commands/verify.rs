@@ -73,18 +73,83 @@ fn verify_one(
         read: args.trust_cache.then_some(cache),
         write: None,
     };
-    let evaluation =
-        super::evaluate_spec(spec_path, policy, None, super::progress_wanted(args.quiet))?
-            .expect("verify never shards");
-    let stored = stored_results(&args.out.join(&recorded.experiment), &recorded);
-    Ok(differences(
+    let evaluation = super::evaluate_spec(
+        spec_path,
+        &args.data,
+        policy,
+        None,
+        super::progress_wanted(args.quiet),
+    )?
+    .expect("verify never shards");
+    let out_dir = args.out.join(&recorded.experiment);
+    let stored = stored_results(&out_dir, &recorded);
+    // A cache told to be trusted that holds an entry written under another
+    // key (or damaged) has been tampered with or has failed: the run
+    // recomputed the entry, but a verification that trusted it must say so.
+    let mut found: Vec<Difference> = evaluation
+        .summary
+        .corrupt
+        .iter()
+        .map(|why| {
+            Difference::new(
+                "cache_entry",
+                "rejected",
+                format!("--trust-cache: a cache entry failed its check: {why}"),
+            )
+        })
+        .collect();
+    found.extend(differences(
         &recorded,
         &evaluation.receipt,
         stored.as_ref(),
         &evaluation.results,
         &evaluation.plan,
         spec_path,
-    ))
+    ));
+    found.extend(files_on_disk(&recorded, &out_dir));
+    Ok(found)
+}
+
+/// The outputs a run left in `dir` whose bytes are not the ones the receipt
+/// records: what people read must be what was computed. Only files present
+/// are checked (a CI checkout usually holds no outputs at all); a missing
+/// file cannot mislead a reader.
+fn files_on_disk(recorded: &Receipt, dir: &Path) -> Vec<Difference> {
+    let mut found = Vec::new();
+    for file in &recorded.outputs {
+        // A receipt names files inside the output folder; any other name
+        // (absolute, or climbing out with `..`) is not read.
+        let inside = Path::new(&file.path)
+            .components()
+            .all(|c| matches!(c, std::path::Component::Normal(_)));
+        if !inside {
+            continue;
+        }
+        let path = dir.join(&file.path);
+        let Ok(bytes) = std::fs::read(&path) else {
+            continue;
+        };
+        let digest = crate::digests::file_digest(&bytes);
+        if digest != file.blake3 {
+            found.push(
+                Difference::new(
+                    "output_on_disk",
+                    "changed",
+                    format!(
+                        "{} on disk is not the file the receipt records (blake3 {} in the \
+                         receipt, {} on disk): it was edited or written by another run; \
+                         `heldout run` writes it afresh",
+                        path.display(),
+                        &file.blake3[..16.min(file.blake3.len())],
+                        &digest[..16]
+                    ),
+                )
+                .name(&file.path)
+                .values(file.blake3.as_str(), digest.as_str()),
+            );
+        }
+    }
+    found
 }
 
 /// The results.json a run left, if it is the one the receipt describes.

@@ -14,6 +14,10 @@ pub(crate) struct ReportInputs<'a> {
     pub(crate) regenerate: &'a str,
     /// The spec as heldout read it (its meaning, written out as TOML).
     pub(crate) spec_text: &'a str,
+    /// Why the numbers cannot be vouched for, when `heldout report
+    /// --unverified` rendered results that do not match their receipt; the
+    /// report then says so on its first line.
+    pub(crate) unverified: Option<&'a str>,
 }
 
 /// A figure as the templates see it.
@@ -148,6 +152,8 @@ pub(crate) fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Fig
         rule_words => super::rule_words(results.rule),
         higher_is_better => results.metric.higher_is_better(),
         regenerate => inputs.regenerate,
+        regenerate_fence => code_fence(inputs.regenerate),
+        unverified => inputs.unverified,
         spec_text => inputs.spec_text,
         spec_fence => code_fence(inputs.spec_text),
         provenance => Value::from_serialize(&provenance),

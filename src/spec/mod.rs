@@ -43,6 +43,10 @@ pub(crate) struct LoadedSpec {
     /// For a simulation spec: the `[data]` it stands in for (the inputs as
     /// features, the simulated target), so later stages read both alike.
     pub(crate) simulated_data: Option<DataSpec>,
+    /// Whether the data table may lie outside the spec's repository
+    /// (`--allow-outside`); false as loaded. See docs/spec.md, "Where data
+    /// may come from".
+    pub(crate) allow_outside: bool,
 }
 
 impl LoadedSpec {
@@ -86,6 +90,7 @@ pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
         spec,
         families,
         simulated_data,
+        allow_outside: false,
     })
 }
 

@@ -7,7 +7,10 @@ use crate::util;
 
 /// Copies the demo spec, its committed receipt and its data into `dir`, with
 /// the repository's relative layout, so tests never write into the tree.
+/// An empty `.git` folder marks `dir` as the repository, as a checkout is:
+/// data may be read from anywhere inside it, whatever the working folder.
 pub fn copy_demo(dir: &Path) {
+    std::fs::create_dir_all(dir.join(".git")).unwrap();
     let root = util::crate_root();
     for file in [
         "specs/heat-demand.toml",

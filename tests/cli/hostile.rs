@@ -147,6 +147,10 @@ fn a_data_path_that_is_not_a_regular_file_is_refused() {
     let spec = SPEC.replace("table = \"data.csv\"", "table = \"/dev/zero\"");
     refused(
         &run_with(&spec, &table(), &[]).1,
+        &["/dev/zero", "outside the repository"],
+    );
+    refused(
+        &run_with(&spec, &table(), &["--allow-outside"]).1,
         &["/dev/zero", "not a regular file"],
     );
     let (dir, _) = run_with(SPEC, &table(), &[]);
@@ -215,6 +219,18 @@ fn swapped_cache_entries_are_recomputed_and_outputs_equal_a_cold_run() {
     let bytes_a = std::fs::read(a).unwrap();
     std::fs::copy(b, a).unwrap();
     std::fs::write(b, bytes_a).unwrap();
+    // A verification told to trust this cache fails, naming the entry.
+    let output = util::run_in(
+        dir.path(),
+        &["verify", "spec.toml", "--trust-cache", "--cache", "cache"],
+    );
+    let stdout = util::stdout_of(&output);
+    assert_eq!(output.status.code(), Some(1), "{stdout}");
+    assert!(
+        stdout.contains("--trust-cache: a cache entry failed its check")
+            && stdout.contains("written under another key"),
+        "{stdout}"
+    );
     let output = util::run_in(
         dir.path(),
         &["run", "spec.toml", "--out", "out", "--cache", "cache"],
@@ -243,4 +259,140 @@ fn walk(folder: &Path) -> Vec<std::path::PathBuf> {
         }
     }
     files
+}
+
+/// Replaces the first occurrence of `from` in the file at `path`.
+fn edit(path: &Path, from: &str, to: &str) {
+    let text = std::fs::read_to_string(path).unwrap();
+    assert!(text.contains(from), "{from:?} not in {}", path.display());
+    std::fs::write(path, text.replacen(from, to, 1)).unwrap();
+}
+
+#[test]
+fn edited_results_or_reports_fail_verify_and_report_refuses_them() {
+    // Catalogue row 1: a number edited in results.json was re-rendered by
+    // `report`, and `verify` said "identical to its receipt".
+    let (dir, output) = run_with(SPEC, &table(), &[]);
+    util::assert_success(&output);
+    let out = dir.path().join("out/hostile");
+    let verify = || util::run_in(dir.path(), &["verify", "spec.toml"]);
+    util::assert_success(&verify());
+
+    // A number in report.md.
+    let report_md = out.join("report.md");
+    let pristine_md = std::fs::read(&report_md).unwrap();
+    edit(&report_md, "polynomial/degree=", "polynomial/degree=9");
+    let output = verify();
+    let stdout = util::stdout_of(&output);
+    assert_eq!(output.status.code(), Some(1), "{stdout}");
+    assert!(
+        stdout.contains("first difference: out/hostile/report.md on disk is not the file"),
+        "{stdout}"
+    );
+    std::fs::write(&report_md, pristine_md).unwrap();
+
+    // `chosen` in results.json.
+    let results = out.join("results.json");
+    let chosen = util::read_json(&results)["chosen"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let other = if chosen.ends_with("=1") {
+        "polynomial/degree=2"
+    } else {
+        "polynomial/degree=1"
+    };
+    edit(
+        &results,
+        &format!("\"chosen\": \"{chosen}\""),
+        &format!("\"chosen\": \"{other}\""),
+    );
+    let output = verify();
+    let stdout = util::stdout_of(&output);
+    assert_eq!(output.status.code(), Some(1), "{stdout}");
+    assert!(
+        stdout.contains("first difference: out/hostile/results.json on disk is not the file"),
+        "{stdout}"
+    );
+    // `report` refuses to re-render it ...
+    let output = util::run_in(dir.path(), &["report", "spec.toml"]);
+    let stderr = util::stderr_of(&output);
+    assert_eq!(output.status.code(), Some(1), "{stderr}");
+    assert!(
+        stderr.contains("out/hostile/results.json is not the results.json its receipt"),
+        "{stderr}"
+    );
+    assert!(stderr.contains("--unverified"), "{stderr}");
+    // ... unless told, and then the reports say so first.
+    let output = util::run_in(dir.path(), &["report", "spec.toml", "--unverified"]);
+    util::assert_success(&output);
+    let markdown = std::fs::read_to_string(&report_md).unwrap();
+    assert!(markdown.starts_with("**UNVERIFIED: "), "{markdown}");
+    assert!(markdown.contains(other));
+    // Without a receipt nothing vouches for the results either.
+    std::fs::remove_file(dir.path().join("spec.receipt.toml")).unwrap();
+    let output = util::run_in(dir.path(), &["report", "spec.toml"]);
+    assert_eq!(output.status.code(), Some(1));
+    assert!(util::stderr_of(&output).contains("there is no receipt"));
+}
+
+#[test]
+fn data_outside_the_repository_is_refused_unless_allowed() {
+    // Catalogue row 7: `/etc/passwd` and `../` paths were read, and the
+    // error message printed the file's first line.
+    let dir = tempfile::tempdir().unwrap();
+    let repo = dir.path().join("repo");
+    std::fs::create_dir_all(repo.join(".git")).unwrap();
+    std::fs::create_dir_all(repo.join("specs")).unwrap();
+    std::fs::write(dir.path().join("outside.csv"), table()).unwrap();
+    std::fs::write(repo.join("inside.csv"), table()).unwrap();
+    let write_spec = |name: &str, table: &str| {
+        let spec = SPEC.replace("table = \"data.csv\"", &format!("table = \"{table}\""));
+        std::fs::write(repo.join("specs").join(name), spec).unwrap();
+    };
+    write_spec("climbs.toml", "../../outside.csv");
+    write_spec("absolute.toml", "/etc/passwd");
+    write_spec("inside.toml", "../inside.csv");
+    let run = |spec: &str, extra: &[&str]| {
+        let mut args = vec!["run", spec, "--quiet", "--cache", "cache", "--out", "out"];
+        args.extend_from_slice(extra);
+        util::run_in(&repo, &args)
+    };
+
+    refused(
+        &run("specs/climbs.toml", &[]),
+        &[
+            "[data] table = \"../../outside.csv\"",
+            "specs/climbs.toml",
+            "outside the repository",
+            "--allow-outside",
+        ],
+    );
+    util::assert_success(&run("specs/climbs.toml", &["--allow-outside"]));
+    util::assert_success(&run("specs/inside.toml", &[]));
+    // `plan`, `folds` and `verify` read the table too, under the same rule.
+    for command in ["plan", "folds", "verify"] {
+        let output = util::run_in(&repo, &[command, "specs/climbs.toml"]);
+        refused(&output, &["outside the repository"]);
+    }
+
+    if Path::new("/etc/passwd").is_file() {
+        let output = run("specs/absolute.toml", &[]);
+        refused(&output, &["/etc/passwd", "outside the repository"]);
+        // Allowed, it is still no table, and its first line is not echoed.
+        let output = run("specs/absolute.toml", &["--allow-outside"]);
+        refused(
+            &output,
+            &["/etc/passwd", "a single column", "comma-separated"],
+        );
+        assert!(!util::stderr_of(&output).contains("root"));
+    }
+
+    // A symbolic link inside the repository is followed before the check.
+    #[cfg(unix)]
+    {
+        std::os::unix::fs::symlink(dir.path().join("outside.csv"), repo.join("link.csv")).unwrap();
+        write_spec("link.toml", "../link.csv");
+        refused(&run("specs/link.toml", &[]), &["outside the repository"]);
+    }
 }
