@@ -23,6 +23,7 @@
 //! concurrent runs sharing a folder never see half an entry, and a run killed
 //! part-way leaves only whole entries behind.
 
+use std::io::Write as _;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
 
@@ -124,7 +125,7 @@ impl Cache {
                 path.display()
             ));
         }
-        let (written_under, payload) = keyed.split_at(32);
+        let written_under = &keyed[..32];
         if written_under != key.0 {
             return Lookup::Corrupt(format!(
                 "{}: entry was written under another key ({}…)",
@@ -133,7 +134,10 @@ impl Cache {
                     [..12]
             ));
         }
-        Lookup::Hit(payload.to_vec())
+        // The payload moved to the front of the buffer read, not copied.
+        let mut bytes = bytes;
+        bytes.drain(..HEADER);
+        Lookup::Hit(bytes)
     }
 
     /// Removes temporary files (`.<key>.<pid>.<n>.tmp`) last written before
@@ -182,19 +186,26 @@ impl Cache {
             error,
         };
         std::fs::create_dir_all(dir).map_err(io)?;
-        let mut keyed = Vec::with_capacity(32 + payload.len());
-        keyed.extend_from_slice(&key.0);
-        keyed.extend_from_slice(payload);
-        let mut bytes = Vec::with_capacity(HEADER + payload.len());
-        bytes.extend_from_slice(blake3::hash(&keyed).as_bytes());
-        bytes.extend_from_slice(&keyed);
+        // digest(key ‖ payload) ‖ key ‖ payload, written in parts: the
+        // payload of a large fit is never copied to frame it.
+        let mut hasher = blake3::Hasher::new();
+        hasher.update(&key.0);
+        hasher.update(payload);
         let temporary = dir.join(format!(
             ".{}.{}.{}.tmp",
             key.hex(),
             std::process::id(),
             TEMPORARY_COUNTER.fetch_add(1, Ordering::Relaxed)
         ));
-        std::fs::write(&temporary, &bytes).map_err(io)?;
+        let write = || -> std::io::Result<()> {
+            let mut file = std::io::BufWriter::new(std::fs::File::create(&temporary)?);
+            file.write_all(hasher.finalize().as_bytes())?;
+            file.write_all(&key.0)?;
+            file.write_all(payload)?;
+            file.into_inner().map_err(|e| e.into_error())?;
+            Ok(())
+        };
+        write().map_err(io)?;
         std::fs::rename(&temporary, &path).map_err(io)?;
         Ok(())
     }

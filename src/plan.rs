@@ -11,7 +11,7 @@ use crate::data::{self, Table, TableRequest};
 use crate::error::DataError;
 use crate::models::{Family, Setting};
 use crate::spec::{FamilySpec, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
-use crate::split::{self, Assignment, FoldScheme};
+use crate::split::{self, Assignment, FoldScheme, Identities};
 
 /// One candidate of the spec, ready to fit.
 #[derive(Clone)]
@@ -160,43 +160,43 @@ pub(crate) fn resolve_reporting(
     };
 
     // Units for splitting: groups when declared, otherwise rows.
-    let (identities, unit_of_row): (Vec<String>, Vec<usize>) =
-        match (&data_spec.group, &data_spec.key) {
-            (Some(group), _) => {
-                let labels = table.text_column(group);
-                let mut identities: Vec<String> = Vec::new();
-                let mut index = std::collections::BTreeMap::new();
-                let unit_of_row: Vec<usize> = labels
-                    .iter()
-                    .map(|label| {
-                        *index.entry(label.clone()).or_insert_with(|| {
-                            identities.push(label.clone());
-                            identities.len() - 1
-                        })
+    let mut group_labels: Vec<String> = Vec::new();
+    let unit_of_row: Vec<usize> = match (&data_spec.group, &data_spec.key) {
+        (Some(group), _) => {
+            let labels = table.text_column(group);
+            let mut index = std::collections::BTreeMap::new();
+            labels
+                .iter()
+                .map(|label| {
+                    *index.entry(label.as_str()).or_insert_with(|| {
+                        group_labels.push(label.clone());
+                        group_labels.len() - 1
                     })
-                    .collect();
-                (identities, unit_of_row)
+                })
+                .collect()
+        }
+        (None, Some(key)) => {
+            let keys = table.text_column(key);
+            // Membership only: no iteration order of the set reaches an output.
+            let mut seen = std::collections::HashSet::with_capacity(keys.len());
+            if let Some(again) = keys.iter().position(|k| !seen.insert(k.as_str())) {
+                let k = &keys[again];
+                let first = keys.iter().position(|other| other == k).unwrap_or(again);
+                return Err(table_error(format!(
+                    "key column \"{key}\" holds \"{k}\" on line {} and again on line {}; \
+                     a key must identify one row (use `group` for repeated ids)",
+                    table.lines[first], table.lines[again]
+                )));
             }
-            (None, Some(key)) => {
-                let keys = table.text_column(key);
-                // Membership only: no iteration order of the set reaches an output.
-                let mut seen = std::collections::HashSet::with_capacity(keys.len());
-                if let Some(again) = keys.iter().position(|k| !seen.insert(k.as_str())) {
-                    let k = &keys[again];
-                    let first = keys.iter().position(|other| other == k).unwrap_or(again);
-                    return Err(table_error(format!(
-                        "key column \"{key}\" holds \"{k}\" on line {} and again on line {}; \
-                         a key must identify one row (use `group` for repeated ids)",
-                        table.lines[first], table.lines[again]
-                    )));
-                }
-                (keys.to_vec(), (0..table.len()).collect())
-            }
-            (None, None) => (
-                table.row_numbers.iter().map(u64::to_string).collect(),
-                (0..table.len()).collect(),
-            ),
-        };
+            (0..table.len()).collect()
+        }
+        (None, None) => (0..table.len()).collect(),
+    };
+    let identities = match (&data_spec.group, &data_spec.key) {
+        (Some(_), _) => Identities::Text(&group_labels),
+        (None, Some(key)) => Identities::Text(table.text_column(key)),
+        (None, None) => Identities::RowNumbers(&table.row_numbers),
+    };
     let scheme = match split_spec.method {
         SplitMethod::Kfold => FoldScheme::Kfold {
             folds: split_spec.folds.unwrap_or(DEFAULT_FOLDS),
@@ -219,7 +219,7 @@ pub(crate) fn resolve_reporting(
         spec.spec.experiment.seed,
         split_spec.holdout,
         &scheme,
-        &identities,
+        identities,
         &unit_of_row,
     )
     .map_err(|e| table_error(e.to_string()))?;

@@ -74,6 +74,10 @@ pub struct DataSummary {
     /// The time column of an ordered split (absent otherwise).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub order: Option<String>,
+    /// The file's last line had no line break, so it may have been cut
+    /// inside its last value (written only when true).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub unterminated: bool,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -323,6 +327,7 @@ pub(crate) fn assemble(
             key: data.key.clone(),
             group: data.group.clone(),
             order: data.order.clone(),
+            unterminated: plan.table.unterminated,
         },
         split: SplitSummary {
             method: spec.split.method,

@@ -198,29 +198,74 @@ pub(crate) fn priority(key: &[u8; 32], identity: &str) -> u64 {
     u64::from_le_bytes(first)
 }
 
-/// Units (indices into `identities`) sorted by (priority, identity).
-fn shuffled(key: &[u8; 32], identities: &[String], units: &[usize]) -> Vec<usize> {
-    let mut ranked: Vec<(u64, &str, usize)> = units
+/// The identity text of every unit, which decides its place in each shuffle
+/// (docs/splits.md).
+#[derive(Debug, Clone, Copy)]
+pub(crate) enum Identities<'a> {
+    /// Given text: a key column's values or group labels.
+    Text(&'a [String]),
+    /// Rows without a key: unit `u` is the row numbered `numbers[u]` (1-based
+    /// among the data rows), whose identity text is that number in decimal.
+    /// Held as numbers, the text is formed only while it is hashed, rather
+    /// than kept as a string per row.
+    RowNumbers(&'a [u64]),
+}
+
+impl Identities<'_> {
+    fn len(&self) -> usize {
+        match self {
+            Identities::Text(texts) => texts.len(),
+            Identities::RowNumbers(numbers) => numbers.len(),
+        }
+    }
+
+    fn priority(&self, key: &[u8; 32], unit: usize) -> u64 {
+        match self {
+            Identities::Text(texts) => priority(key, &texts[unit]),
+            Identities::RowNumbers(numbers) => priority(key, &numbers[unit].to_string()),
+        }
+    }
+
+    /// Orders two units by their identity text.
+    fn compare(&self, a: usize, b: usize) -> std::cmp::Ordering {
+        match self {
+            Identities::Text(texts) => texts[a].cmp(&texts[b]),
+            Identities::RowNumbers(numbers) => numbers[a].to_string().cmp(&numbers[b].to_string()),
+        }
+    }
+}
+
+/// Units (indices into `identities`) sorted by (priority, identity text).
+fn shuffled(key: &[u8; 32], identities: Identities<'_>, units: &[usize]) -> Vec<usize> {
+    let mut ranked: Vec<(u64, usize)> = units
         .par_iter()
-        .map(|&u| (priority(key, &identities[u]), identities[u].as_str(), u))
+        .map(|&u| (identities.priority(key, u), u))
         .collect();
-    ranked.sort_unstable();
-    ranked.into_iter().map(|(_, _, u)| u).collect()
+    ranked.sort_unstable_by(|a, b| {
+        a.0.cmp(&b.0)
+            .then_with(|| identities.compare(a.1, b.1))
+            .then(a.1.cmp(&b.1))
+    });
+    ranked.into_iter().map(|(_, u)| u).collect()
 }
 
 /// Assigns rows. `unit_of_row[r]` is the unit (row or group) of row `r`;
-/// `identities[u]` is the identity text of unit `u`.
+/// `identities` gives the identity text of each unit.
 pub(crate) fn assign(
     seed: u64,
     holdout: f64,
     scheme: &FoldScheme,
-    identities: &[String],
+    identities: Identities<'_>,
     unit_of_row: &[usize],
 ) -> Result<Assignment, SplitError> {
     let rows = unit_of_row.len();
-    let mut rows_of_unit: Vec<Vec<usize>> = vec![Vec::new(); identities.len()];
+    // Per unit, its row count and first row: all the split needs to know of
+    // a unit's rows (a list per unit would cost an allocation per row).
+    let mut rows_in_unit = vec![0usize; identities.len()];
+    let mut first_row_of_unit = vec![usize::MAX; identities.len()];
     for (row, &unit) in unit_of_row.iter().enumerate() {
-        rows_of_unit[unit].push(row);
+        rows_in_unit[unit] += 1;
+        first_row_of_unit[unit] = first_row_of_unit[unit].min(row);
     }
     let all_units: Vec<usize> = (0..identities.len()).collect();
     // Each row's time point, for ordered splits (used by the test set and
@@ -235,28 +280,37 @@ pub(crate) fn assign(
     let wanted = (holdout * rows as f64).round() as usize;
     let mut is_test_unit = vec![false; identities.len()];
     let mut taken = 0;
-    let holdout_order: Vec<Vec<usize>> = match scheme {
+    // Units are taken in batches: one time point's units for an ordered
+    // split, one unit at a time otherwise.
+    let mut take = |units: &[usize]| {
+        if taken >= wanted {
+            return false;
+        }
+        for &unit in units {
+            is_test_unit[unit] = true;
+            taken += rows_in_unit[unit];
+        }
+        true
+    };
+    match scheme {
         FoldScheme::Ordered { .. } => {
             let points = time_rank.iter().max().map_or(0, |&r| r + 1);
             let mut units_at: Vec<Vec<usize>> = vec![Vec::new(); points];
             for (row, &r) in time_rank.iter().enumerate() {
                 units_at[r].push(unit_of_row[row]);
             }
-            units_at.reverse();
-            units_at
+            for units in units_at.iter().rev() {
+                if !take(units) {
+                    break;
+                }
+            }
         }
-        _ => shuffled(&purpose_key(seed, "holdout"), identities, &all_units)
-            .into_iter()
-            .map(|unit| vec![unit])
-            .collect(),
-    };
-    for units in holdout_order {
-        if taken >= wanted {
-            break;
-        }
-        for unit in units {
-            is_test_unit[unit] = true;
-            taken += rows_of_unit[unit].len();
+        _ => {
+            for unit in shuffled(&purpose_key(seed, "holdout"), identities, &all_units) {
+                if !take(&[unit]) {
+                    break;
+                }
+            }
         }
     }
     let test: Vec<usize> = (0..rows)
@@ -271,7 +325,7 @@ pub(crate) fn assign(
     let train_units: Vec<usize> = all_units
         .iter()
         .copied()
-        .filter(|&u| !is_test_unit[u] && !rows_of_unit[u].is_empty())
+        .filter(|&u| !is_test_unit[u] && rows_in_unit[u] > 0)
         .collect();
     let grouped = identities.len() != rows;
     let what = if grouped { "groups" } else { "rows" };
@@ -310,7 +364,7 @@ pub(crate) fn assign(
                 });
             }
             let mut order: Vec<usize> = train_units.clone();
-            order.sort_by_key(|&u| rows_of_unit[u][0]);
+            order.sort_by_key(|&u| first_row_of_unit[u]);
             for (index, unit) in order.into_iter().enumerate() {
                 folds.push(make_fold(0, index, (index + 1).to_string(), &train, |r| {
                     unit_of_row[r] == unit
@@ -479,13 +533,36 @@ mod tests {
     }
 
     #[test]
+    fn row_numbers_split_exactly_as_their_decimal_text() {
+        // A row's identity is its number written in decimal; holding the
+        // numbers instead of strings must not move a single row.
+        let (ids, units) = rows(300);
+        let numbers: Vec<u64> = (1..=300).collect();
+        for scheme in [
+            FoldScheme::Kfold {
+                folds: 7,
+                repeats: 2,
+            },
+            FoldScheme::LeaveOneOut,
+        ] {
+            let text = assign(5, 0.25, &scheme, Identities::Text(&ids), &units).unwrap();
+            let rows = assign(5, 0.25, &scheme, Identities::RowNumbers(&numbers), &units).unwrap();
+            assert_eq!(text.test, rows.test);
+            assert_eq!(text.train, rows.train);
+            let valid =
+                |a: &Assignment| a.folds.iter().map(|f| f.valid.clone()).collect::<Vec<_>>();
+            assert_eq!(valid(&text), valid(&rows));
+        }
+    }
+
+    #[test]
     fn folds_are_named_within_their_repeat() {
         let (ids, units) = rows(40);
         let scheme = FoldScheme::Kfold {
             folds: 4,
             repeats: 3,
         };
-        let a = assign(7, 0.0, &scheme, &ids, &units).unwrap();
+        let a = assign(7, 0.0, &scheme, Identities::Text(&ids), &units).unwrap();
         // Position 5 of fold_scores is the second fold of the second repeat.
         assert_eq!(a.describe_fold(5), "fold 2 of repeat 2");
         assert_eq!(a.describe_fold(11), "fold 4 of repeat 3");
@@ -499,7 +576,7 @@ mod tests {
             folds: 5,
             repeats: 2,
         };
-        let a = assign(42, 0.2, &scheme, &ids, &units).unwrap();
+        let a = assign(42, 0.2, &scheme, Identities::Text(&ids), &units).unwrap();
         assert_eq!(a.test.len(), 21); // round(0.2 × 103)
         assert_eq!(a.train.len(), 82);
         assert_eq!(a.folds.len(), 10);
@@ -534,9 +611,9 @@ mod tests {
             folds: 5,
             repeats: 1,
         };
-        let a = assign(7, 0.2, &scheme, &ids, &units).unwrap();
-        let b = assign(7, 0.2, &scheme, &ids, &units).unwrap();
-        let c = assign(8, 0.2, &scheme, &ids, &units).unwrap();
+        let a = assign(7, 0.2, &scheme, Identities::Text(&ids), &units).unwrap();
+        let b = assign(7, 0.2, &scheme, Identities::Text(&ids), &units).unwrap();
+        let c = assign(8, 0.2, &scheme, Identities::Text(&ids), &units).unwrap();
         assert_eq!(a, b);
         assert_ne!(a.test, c.test);
     }
@@ -549,7 +626,7 @@ mod tests {
             folds: 3,
             repeats: 1,
         };
-        let a = assign(3, 0.0, &scheme, &ids, &units).unwrap();
+        let a = assign(3, 0.0, &scheme, Identities::Text(&ids), &units).unwrap();
         for (f, fold) in a.folds.iter().enumerate() {
             let train = a.fold_train(f);
             for &v in &fold.valid {
@@ -563,7 +640,7 @@ mod tests {
         let labels: Vec<String> = ["10", "2", "1", "2", "10", "1"].map(String::from).to_vec();
         let (ids, units) = rows(6);
         let scheme = FoldScheme::Column { labels };
-        let a = assign(1, 0.0, &scheme, &ids, &units).unwrap();
+        let a = assign(1, 0.0, &scheme, Identities::Text(&ids), &units).unwrap();
         let order: Vec<&str> = a.folds.iter().map(|f| f.label.as_str()).collect();
         assert_eq!(order, ["1", "2", "10"]);
         assert_eq!(a.folds[0].valid, vec![2, 5]);
@@ -576,7 +653,7 @@ mod tests {
             folds: 5,
             repeats: 1,
         };
-        let err = assign(1, 0.0, &scheme, &ids, &units).unwrap_err();
+        let err = assign(1, 0.0, &scheme, Identities::Text(&ids), &units).unwrap_err();
         assert_eq!(
             err,
             SplitError::FewerUnitsThanFolds {
@@ -602,7 +679,7 @@ mod tests {
             folds: 4,
             time: time.clone(),
         };
-        let a = assign(9, 0.2, &scheme, &ids, &units).unwrap();
+        let a = assign(9, 0.2, &scheme, Identities::Text(&ids), &units).unwrap();
         // round(0.2 × 103) = 21 latest days are the test set.
         assert_eq!(a.test.len(), 21);
         assert!(a.test.iter().all(|&r| day(r) > 82));
@@ -628,7 +705,10 @@ mod tests {
             .count();
         assert_eq!(train_only, 17);
         // No randomness: another seed gives the same assignment.
-        assert_eq!(assign(10, 0.2, &scheme, &ids, &units).unwrap(), a);
+        assert_eq!(
+            assign(10, 0.2, &scheme, Identities::Text(&ids), &units).unwrap(),
+            a
+        );
     }
 
     #[test]
@@ -643,7 +723,7 @@ mod tests {
             folds: 3,
             time: time.clone(),
         };
-        let a = assign(1, 0.25, &scheme, &ids, &units).unwrap();
+        let a = assign(1, 0.25, &scheme, Identities::Text(&ids), &units).unwrap();
         // round(0.25 × 16) = 4 rows: the two latest time points, whole.
         let latest: std::collections::BTreeSet<&str> =
             a.test.iter().map(|&r| time[r].as_str()).collect();
@@ -669,7 +749,7 @@ mod tests {
         let time: Vec<String> = ["1", "1", "1", "2", "2", "3"].map(String::from).to_vec();
         let (ids, units) = rows(6);
         let scheme = FoldScheme::Ordered { folds: 3, time };
-        let err = assign(1, 0.0, &scheme, &ids, &units).unwrap_err();
+        let err = assign(1, 0.0, &scheme, Identities::Text(&ids), &units).unwrap_err();
         assert_eq!(
             err,
             SplitError::TooFewTimePoints {

@@ -90,8 +90,10 @@ impl NestedLeastSquares {
 pub(crate) struct RawRefinement<'a> {
     /// Maps basis coefficients γ to raw coefficients β (linear).
     pub(crate) to_raw: &'a dyn Fn(&[f64]) -> Vec<f64>,
-    /// Entry (row, raw column) of the raw design, in double-double.
-    pub(crate) raw_entry: &'a dyn Fn(usize, usize) -> DoubleDouble,
+    /// Writes row `i` of the raw design, in double-double, into the slice
+    /// (one entry per raw coefficient). Rows are formed as they are needed:
+    /// holding the whole raw design would cost 16 bytes per entry.
+    pub(crate) raw_row: &'a dyn Fn(usize, &mut [DoubleDouble]),
     pub(crate) rows: usize,
     pub(crate) y: &'a [f64],
 }
@@ -116,13 +118,15 @@ impl NestedLeastSquares {
             .collect();
         for _ in 0..3 {
             let mut g = vec![DoubleDouble::ZERO; raw_len];
+            let mut row = vec![DoubleDouble::ZERO; raw_len];
             for i in 0..refine.rows {
+                (refine.raw_row)(i, &mut row);
                 let mut residual = DoubleDouble::from_f64(refine.y[i]);
-                for (k, b) in beta.iter().enumerate() {
-                    residual = residual.add((refine.raw_entry)(i, k).mul_f64(*b).neg());
+                for (entry, b) in row.iter().zip(&beta) {
+                    residual = residual.add(entry.mul_f64(*b).neg());
                 }
-                for (k, gk) in g.iter_mut().enumerate() {
-                    *gk = gk.add((refine.raw_entry)(i, k).mul(residual));
+                for (gk, entry) in g.iter_mut().zip(&row) {
+                    *gk = gk.add(entry.mul(residual));
                 }
             }
             // h = Cᵀ g, then R⁻¹ R⁻ᵀ h, then back to raw units.

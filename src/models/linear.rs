@@ -167,21 +167,22 @@ impl Family for Linear {
 
         let coefficients = final_fit.then(|| {
             let to_raw = |g: &[f64]| self.raw_coefficients(g, &scales);
-            let raw: Vec<DoubleDouble> = (0..x_train.nrows())
-                .flat_map(|i| {
-                    let intercept = self.intercept.then_some(DoubleDouble::from_f64(1.0));
-                    intercept.into_iter().chain(
-                        (0..x_train.ncols()).map(move |j| DoubleDouble::from_f64(x_train[(i, j)])),
-                    )
-                })
-                .collect();
-            let raw_entry = |i: usize, k: usize| raw[i * columns + k];
+            // Row i of the raw design: the intercept, then the features.
+            let raw_row = |i: usize, row: &mut [DoubleDouble]| {
+                let offset = usize::from(self.intercept);
+                if self.intercept {
+                    row[0] = DoubleDouble::from_f64(1.0);
+                }
+                for j in 0..x_train.ncols() {
+                    row[offset + j] = DoubleDouble::from_f64(x_train[(i, j)]);
+                }
+            };
             let values = solver.refined_raw(
                 columns,
                 gamma.as_slice(),
                 &RawRefinement {
                     to_raw: &to_raw,
-                    raw_entry: &raw_entry,
+                    raw_row: &raw_row,
                     rows: x_train.nrows(),
                     y: y_train,
                 },

@@ -173,30 +173,32 @@ impl Polynomial {
         x_train: &DMatrix<f64>,
         y_train: &[f64],
     ) -> Vec<(String, f64)> {
-        let offset = usize::from(self.intercept);
-        let width = offset + degree * self.features.len();
-        let mut raw = Vec::with_capacity(x_train.nrows() * width);
-        for i in 0..x_train.nrows() {
+        // Row i of the raw design: the intercept, then each feature's powers
+        // 1..=degree, formed by repeated double-double products.
+        let raw_row = |i: usize, row: &mut [DoubleDouble]| {
+            let mut at = 0;
             if self.intercept {
-                raw.push(DoubleDouble::from_f64(1.0));
+                row[0] = DoubleDouble::from_f64(1.0);
+                at = 1;
             }
             for f in 0..self.features.len() {
                 let x = DoubleDouble::from_f64(x_train[(i, f)]);
                 let mut power = x;
                 for _ in 0..degree {
-                    raw.push(power);
+                    row[at] = power;
+                    at += 1;
                     power = power.mul(x);
                 }
             }
-        }
+        };
         let to_raw = |g: &[f64]| self.raw_coefficients(g, maps, degree);
-        let raw_entry = |i: usize, k: usize| raw[i * width + k];
+        let width = usize::from(self.intercept) + degree * self.features.len();
         let values = solver.refined_raw(
             width,
             gamma,
             &RawRefinement {
                 to_raw: &to_raw,
-                raw_entry: &raw_entry,
+                raw_row: &raw_row,
                 rows: x_train.nrows(),
                 y: y_train,
             },
@@ -280,7 +282,16 @@ impl Family for Polynomial {
         let maps = self.range_maps(x_train);
         let design = self.design(x_train, &maps, max_degree);
         let eval_design = self.design(x_eval, &maps, max_degree);
-        let solver = NestedLeastSquares::new(design.clone(), y_train);
+        // The factorisation consumes its matrix; only a final fit, which
+        // predicts its own training rows, keeps a copy of the design.
+        let (solver, kept_design) = if final_fit {
+            (
+                NestedLeastSquares::new(design.clone(), y_train),
+                Some(design),
+            )
+        } else {
+            (NestedLeastSquares::new(design, y_train), None)
+        };
 
         self.degrees
             .iter()
@@ -293,11 +304,9 @@ impl Family for Polynomial {
                         column: column + 1,
                     })?;
                 Ok(SettingFit {
-                    train_pred: if final_fit {
-                        predict_leading(&design, &gamma)
-                    } else {
-                        Vec::new()
-                    },
+                    train_pred: kept_design
+                        .as_ref()
+                        .map_or_else(Vec::new, |design| predict_leading(design, &gamma)),
                     eval_pred: predict_leading(&eval_design, &gamma),
                     effective_df: m as f64,
                     coefficients: final_fit.then(|| {

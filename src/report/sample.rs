@@ -84,6 +84,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             key: None,
             group: None,
             order: None,
+            unterminated: false,
         },
         split: SplitSummary {
             method: SplitMethod::Kfold,

@@ -74,13 +74,13 @@ impl SimulationPlan {
             .map(|(f, e)| f + e)
             .collect();
         let n = setup.train_size;
-        let identities: Vec<String> = (1..=n).map(|i| i.to_string()).collect();
+        let row_numbers: Vec<u64> = (1..=n as u64).collect();
         let units: Vec<usize> = (0..n).collect();
         let assignment = split::assign(
             setup.split_seed(index),
             0.0,
             &self.scheme,
-            &identities,
+            split::Identities::RowNumbers(&row_numbers),
             &units,
         )
         .map_err(|e| self.invalid("split", e.to_string()))?;

@@ -181,15 +181,28 @@ fn a_duplicate_header_name_is_refused() {
 fn a_table_without_a_final_line_break_warns() {
     // Catalogue row 9: a table cut inside its last value ran silently.
     let data = table().trim_end().to_string();
-    let (_, output) = run_with(SPEC, &data, &[]);
+    let (dir, output) = run_with(SPEC, &data, &[]);
     util::assert_success(&output);
     let stderr = util::stderr_of(&output);
     assert!(
         stderr.contains("warning: data.csv: the last line ends without a line break"),
         "{stderr}"
     );
-    let (_, output) = run_with(SPEC, &table(), &[]);
+    // The report's data section says it too, and results.json records it.
+    let report = std::fs::read_to_string(dir.path().join("out/hostile/report.md")).unwrap();
+    assert!(
+        report.contains("**Warning:** the table's last line ends without a line break"),
+        "{report}"
+    );
+    let results = util::read_json(&dir.path().join("out/hostile/results.json"));
+    assert_eq!(results["data"]["unterminated"], true);
+
+    let (dir, output) = run_with(SPEC, &table(), &[]);
     assert!(!util::stderr_of(&output).contains("line break"));
+    let report = std::fs::read_to_string(dir.path().join("out/hostile/report.md")).unwrap();
+    assert!(!report.contains("line break"));
+    let results = util::read_json(&dir.path().join("out/hostile/results.json"));
+    assert!(results["data"].get("unterminated").is_none());
 }
 
 #[test]
