@@ -371,13 +371,19 @@ mod tests {
         let secret = "root:x:0:0:root:/root:/bin/bash";
         let err = load_text(&format!("{secret}\nnobody:x\n"), &request()).unwrap_err();
         let message = err.to_string();
-        assert!(message.contains("a single column of 31 characters"), "{message}");
+        assert!(
+            message.contains("a single column of 31 characters"),
+            "{message}"
+        );
         assert!(!message.contains("root"), "{message}");
         // A long offending cell is cut to 40 characters.
         let long = "9".repeat(30) + &"z".repeat(100);
         let err = load_text(&format!("x,y\n1,{long}\n"), &request()).unwrap_err();
         let message = err.to_string();
-        assert!(message.contains(&format!("\"{}…\"", &long[..40])), "{message}");
+        assert!(
+            message.contains(&format!("\"{}…\"", &long[..40])),
+            "{message}"
+        );
         assert!(!message.contains(&long[..41]), "{message}");
     }
 

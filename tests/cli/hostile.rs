@@ -409,3 +409,38 @@ fn data_outside_the_repository_is_refused_unless_allowed() {
         refused(&run("specs/link.toml", &[]), &["outside the repository"]);
     }
 }
+
+#[test]
+fn a_spec_name_with_backticks_newlines_and_semicolons_stays_inside_its_fence() {
+    // Catalogue row 12: such a name broke out of the Markdown fence around
+    // the regenerate command, which was not shell-quoted either.
+    let name = "odd``` name\n;touch pwned;`x`.toml";
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join(name), SPEC).unwrap();
+    std::fs::write(dir.path().join("data.csv"), table()).unwrap();
+    let output = util::run_in(
+        dir.path(),
+        &["run", name, "--quiet", "--cache", "cache", "--out", "out"],
+    );
+    util::assert_success(&output);
+    let report = std::fs::read_to_string(dir.path().join("out/hostile/report.md")).unwrap();
+    let quoted = "'odd``` name\n;touch pwned;`x`.toml'";
+    let block = format!("````\nheldout verify {quoted}\nheldout run {quoted}\n````");
+    assert!(report.contains(&block), "{report}");
+    // The fence closes where it should: what follows is the next heading.
+    let after = &report[report.find(&block).unwrap() + block.len()..];
+    assert!(
+        after.trim_start().starts_with("### The spec as read"),
+        "{after}"
+    );
+
+    // The quoted command, given to a POSIX shell, names the file itself.
+    let listed = std::process::Command::new("sh")
+        .arg("-c")
+        .arg(format!("ls {quoted}"))
+        .current_dir(dir.path())
+        .output()
+        .unwrap();
+    assert!(listed.status.success(), "{}", util::stderr_of(&listed));
+    assert!(!dir.path().join("pwned").exists());
+}
