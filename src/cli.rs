@@ -80,6 +80,20 @@ pub enum Command {
         whatever changed; 2 when a file cannot be read."
     )]
     Compare(CompareArgs),
+    /// Apply the kept setting, refitted on every non-test row exactly as in
+    /// the report, to the rows of a new table; write their predictions as CSV.
+    #[command(
+        after_help = "Example:\n  heldout predict specs/heat-demand.toml --table next-week.csv \\\n    \
+        --output next-week-predicted.csv\n\n\
+        The new table needs the kept setting's feature columns (and the spec's key\n\
+        column, when it has one, to name the rows). Fits come from the cache (or\n\
+        are computed into it), so the predictions are those of the report's final\n\
+        fit to the bit. The output starts with comment lines giving the spec's and\n\
+        the receipt's blake3 digests and the kept setting; rows outside the\n\
+        training range of a feature are counted in a warning (extrapolation).\n\
+        Without --output the CSV is printed."
+    )]
+    Predict(PredictArgs),
     /// Write a first spec for a CSV table: its numeric columns as features, a
     /// row key when one column identifies rows, and candidates from rigid to
     /// flexible sized to the row count. Commented TOML, ready to run and edit.
@@ -215,6 +229,26 @@ pub struct FoldsArgs {
     pub spec: PathBuf,
     #[command(flatten)]
     pub data: DataAccessArgs,
+}
+
+#[derive(Debug, Args)]
+pub struct PredictArgs {
+    /// The spec whose kept setting to apply.
+    #[arg(value_name = "SPEC")]
+    pub spec: PathBuf,
+    /// The CSV table (with a header row) of new rows.
+    #[arg(long, value_name = "CSV")]
+    pub table: PathBuf,
+    /// Write the predictions here instead of printing them.
+    #[arg(long, short, value_name = "FILE")]
+    pub output: Option<PathBuf>,
+    #[command(flatten)]
+    pub cache: CacheArgs,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
+    /// Print nothing but errors and warnings.
+    #[arg(long, short)]
+    pub quiet: bool,
 }
 
 #[derive(Debug, Args)]

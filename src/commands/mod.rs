@@ -4,6 +4,7 @@
 mod compare;
 mod completions;
 mod inspect;
+mod predict;
 mod progress;
 mod render;
 mod run;
@@ -35,6 +36,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Folds(args) => inspect::folds(&args),
         Command::Compare(args) => compare::compare(&args),
         Command::New(args) => scaffold::scaffold(&args),
+        Command::Predict(args) => predict::predict(&args),
         Command::Schema => schema::schema(),
         Command::Report(args) => render::report(&args),
         Command::Completions(args) => completions::completions(&args),

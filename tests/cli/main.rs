@@ -13,6 +13,7 @@ mod hostile;
 mod json;
 mod nist;
 mod ordered;
+mod predict;
 mod report_command;
 mod reports;
 mod reproducible;

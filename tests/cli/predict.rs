@@ -1,0 +1,141 @@
+//! `heldout predict`: the kept setting applied to new rows. The check is
+//! against heldout's own report: new rows equal to the locked test rows must
+//! get the final fit's test predictions to the bit (the refit is the same
+//! call on the same rows).
+
+use std::path::Path;
+
+use crate::{demo, util};
+
+/// The demo table's lines (header first).
+fn demo_lines(dir: &Path) -> Vec<String> {
+    std::fs::read_to_string(dir.join("demo-data/heat-demand.csv"))
+        .unwrap()
+        .lines()
+        .map(str::to_string)
+        .collect()
+}
+
+/// 1-based data rows of the locked test set, from `heldout folds`.
+fn test_rows(dir: &Path) -> Vec<usize> {
+    let output = util::run_in(dir, &["folds", "specs/heat-demand.toml"]);
+    util::assert_success(&output);
+    let mut rows: Vec<usize> = util::stdout_of(&output)
+        .lines()
+        .skip(1)
+        .filter(|line| line.ends_with(",1,test"))
+        .map(|line| line.split(',').next().unwrap().parse().unwrap())
+        .collect();
+    rows.sort_unstable();
+    rows
+}
+
+#[test]
+fn predictions_for_the_test_rows_equal_the_reports_final_fit_to_the_bit() {
+    let dir = tempfile::tempdir().unwrap();
+    demo::copy_demo(dir.path());
+    util::assert_success(&util::run_in(
+        dir.path(),
+        &["run", "--quiet", "specs/heat-demand.toml"],
+    ));
+    let results = util::read_json(&dir.path().join("out/heat-demand/results.json"));
+    let expected: Vec<f64> = results["final"]["predictions"]["test"]["predicted"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    let rows = test_rows(dir.path());
+    assert_eq!(
+        rows.len(),
+        expected.len(),
+        "every test row is in results.json"
+    );
+
+    let lines = demo_lines(dir.path());
+    let mut new = format!("{}\n", lines[0]);
+    for &row in &rows {
+        new.push_str(&lines[row]);
+        new.push('\n');
+    }
+    std::fs::write(dir.path().join("new.csv"), new).unwrap();
+    let output = util::run_in(
+        dir.path(),
+        &[
+            "predict",
+            "specs/heat-demand.toml",
+            "--table",
+            "new.csv",
+            "--output",
+            "predicted.csv",
+        ],
+    );
+    util::assert_success(&output);
+    let written = std::fs::read_to_string(dir.path().join("predicted.csv")).unwrap();
+    let comments: Vec<&str> = written.lines().filter(|l| l.starts_with('#')).collect();
+    let body: Vec<&str> = written.lines().filter(|l| !l.starts_with('#')).collect();
+    assert_eq!(body[0], "meter_id,predicted_demand_mwh");
+    for ((line, want), &row) in body[1..].iter().zip(&expected).zip(&rows) {
+        let (key, value) = line.split_once(',').unwrap();
+        assert_eq!(key, lines[row].split(',').nth(1).unwrap());
+        let got: f64 = value.parse().unwrap();
+        assert_eq!(got.to_bits(), want.to_bits(), "{key}: {got} vs {want}");
+    }
+    assert_eq!(body.len(), expected.len() + 1);
+
+    // The header ties the file to the run: the spec's meaning digest as in
+    // results.json, the receipt's file digest and the kept setting.
+    let spec_digest = results["inputs"]["spec"].as_str().unwrap();
+    assert!(
+        comments.iter().any(|c| c.contains(spec_digest)),
+        "{comments:?}"
+    );
+    let receipt = std::fs::read(dir.path().join("specs/heat-demand.receipt.toml")).unwrap();
+    let receipt_digest = blake3::hash(&receipt).to_hex().to_string();
+    assert!(
+        comments.iter().any(|c| c.contains(&receipt_digest)),
+        "{comments:?}"
+    );
+    let kept = results["chosen"].as_str().unwrap();
+    assert!(comments
+        .iter()
+        .any(|c| c.contains(&format!("kept: {kept}"))));
+}
+
+#[test]
+fn new_rows_outside_the_training_range_are_counted_and_missing_columns_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    demo::copy_demo(dir.path());
+    let lines = demo_lines(dir.path());
+    // Columns: day, meter_id, substation, outdoor_c, wind_ms, demand_mwh.
+    let new = format!(
+        "{}\n{}\n900,N1,Lillebakk,99,3,0\n901,N2,Lillebakk,-80,3,0\n",
+        lines[0], lines[1]
+    );
+    std::fs::write(dir.path().join("new.csv"), new).unwrap();
+    let output = util::run_in(
+        dir.path(),
+        &["predict", "specs/heat-demand.toml", "--table", "new.csv"],
+    );
+    util::assert_success(&output);
+    let stderr = util::stderr_of(&output);
+    assert!(
+        stderr.contains("2 of 3 rows lie outside the training range of outdoor_c"),
+        "{stderr}"
+    );
+    let stdout = util::stdout_of(&output);
+    assert_eq!(stdout.lines().filter(|l| !l.starts_with('#')).count(), 4);
+
+    // A table without the kept setting's feature: exit 2 naming the column.
+    std::fs::write(dir.path().join("short.csv"), "meter_id,wind_ms\nA,3\n").unwrap();
+    let output = util::run_in(
+        dir.path(),
+        &["predict", "specs/heat-demand.toml", "--table", "short.csv"],
+    );
+    assert_eq!(output.status.code(), Some(2));
+    let stderr = util::stderr_of(&output);
+    assert!(
+        stderr.contains("short.csv") && stderr.contains("no column named \"outdoor_c\""),
+        "{stderr}"
+    );
+}
