@@ -10,6 +10,7 @@
 mod double_double;
 #[cfg(test)]
 mod effective_df_tests;
+mod kd_tree;
 pub(crate) mod lasso;
 mod least_squares;
 pub(crate) mod linear;
