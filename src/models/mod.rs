@@ -20,6 +20,8 @@ mod penalised_reference;
 pub(crate) mod polynomial;
 pub(crate) mod registry;
 pub(crate) mod ridge;
+#[cfg(test)]
+mod ridge_scaled_reference;
 pub(crate) mod smoothing_spline;
 pub(crate) mod spline;
 mod standardise;
