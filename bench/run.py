@@ -5,7 +5,7 @@ Generates the workload tables with the peer folder's gen_data.py, then runs
 each peer script and heldout (cold: empty cache; warm: the same run again)
 interleaved, round after round, and prints per workload the median wall
 time of each, the ratio peer / heldout cold, warm / cold, and the peak
-resident memory of each process (from getrusage of the child, via wait4).
+resident memory of each process (GNU time's %M, the child's getrusage).
 It prints the load average before and after, since the machine may be
 shared. Optionally (--scaling) it times heldout cold on W1 and W2 at n, 4n
 and 16n rows and fits the exponent b of time ~ n^b by least squares on the
@@ -16,8 +16,12 @@ HELDOUT_PEER_DIR (default ../shared/perf, relative to the repository root).
 Nothing in the tests depends on it. Needs python3 with numpy, scipy,
 scikit-learn and pandas (what the peer scripts import).
 
+With --baseline BIN a second heldout binary (say, the build before a
+change) runs cold right after heldout in every round, and its median time
+and memory are printed beside.
+
 Usage: python3 bench/run.py [--rounds 3] [--workloads w1,w2,w3,w4,w5,w6]
-                            [--peer-dir DIR] [--heldout BIN] [--scaling]
+                            [--peer-dir DIR] [--heldout BIN] [--baseline BIN] [--scaling]
                             [--scaling-only] [--floor] [--jobs N]
 """
 
@@ -35,6 +39,8 @@ from pathlib import Path
 
 REPO = Path(__file__).resolve().parent.parent
 DATA = Path("/tmp/heldout-perf-data")
+# GNU time, for the peak resident memory of each run.
+TIME = "/usr/bin/time"
 # A peer slower than this (first round) is run once only.
 PEER_ONCE_ABOVE_S = 60.0
 
@@ -157,16 +163,26 @@ def spec_text(name, data_dir):
 
 
 def measure(argv, cwd=None):
-    """Wall seconds and peak RSS (MiB) of one child process; fails loudly."""
-    start = time.perf_counter()
-    child = subprocess.Popen(argv, cwd=cwd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    stderr = child.stderr.read()
-    _, status, usage = os.wait4(child.pid, 0)
-    seconds = time.perf_counter() - start
-    child.returncode = os.waitstatus_to_exitcode(status)
-    if child.returncode != 0:
-        sys.exit(f"failed ({child.returncode}): {' '.join(map(str, argv))}\n{stderr.decode()}")
-    return seconds, usage.ru_maxrss / 1024  # Linux: ru_maxrss in KiB
+    """Wall seconds and peak RSS (MiB) of one child process; fails loudly.
+
+    The peak RSS comes from GNU time (`/usr/bin/time -f %M`), not from this
+    process's wait4: a child forked from Python and then exec'd inherits
+    Python's own high-water mark (Linux keeps the larger of the two), which
+    would hide a small child's peak behind the parent's.
+    """
+    with tempfile.NamedTemporaryFile("r", suffix=".rss") as rss:
+        start = time.perf_counter()
+        child = subprocess.run(
+            [TIME, "-f", "%M", "-o", rss.name, *map(str, argv)],
+            cwd=cwd,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.PIPE,
+        )
+        seconds = time.perf_counter() - start
+        if child.returncode != 0:
+            sys.exit(f"failed ({child.returncode}): {' '.join(map(str, argv))}\n{child.stderr.decode()}")
+        kib = int(rss.read().split()[-1])
+    return seconds, kib / 1024
 
 
 def has_family(heldout, family):
@@ -225,7 +241,9 @@ def main():
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--peer-dir", default=os.environ.get("HELDOUT_PEER_DIR", REPO.parent / "shared" / "perf"))
     parser.add_argument("--heldout", help="heldout binary (default: cargo build --release, target/release/heldout)")
+    parser.add_argument("--baseline", help="another heldout binary (say, before a change) run beside it")
     parser.add_argument("--rounds", type=int, default=3)
+    parser.add_argument("--no-peer", default="", help="workloads whose peer is not run (e.g. w4)")
     parser.add_argument("--workloads", default="w1,w2,w3,w4,w5,w6")
     parser.add_argument("--jobs", type=int, help="heldout --jobs (default: one per core)")
     parser.add_argument("--scaling", action="store_true", help="also time W1 and W2 at n, 4n, 16n")
@@ -274,11 +292,14 @@ def compare(args, heldout, peer_dir, work):
         folder.mkdir()
         specs[name] = folder / f"{name}.toml"
         specs[name].write_text(spec_text(name, DATA))
-    times = {n: {"peer": [], "cold": [], "warm": [], "peer_mib": [], "cold_mib": [], "warm_mib": []} for n in names}
+    keys = ["peer", "cold", "warm", "peer_mib", "cold_mib", "warm_mib", "base", "base_mib"]
+    times = {n: {k: [] for k in keys} for n in names}
     for round_ in range(args.rounds):
         for name in names:
             t = times[name]
-            if round_ == 0 or t["peer"][0] <= PEER_ONCE_ABOVE_S:
+            if name in args.no_peer.split(","):
+                pass
+            elif round_ == 0 or t["peer"][0] <= PEER_ONCE_ABOVE_S:
                 seconds, mib = measure([sys.executable, peer_dir / f"peer_{name}.py"], cwd=peer_dir)
                 t["peer"].append(seconds)
                 t["peer_mib"].append(mib)
@@ -287,16 +308,25 @@ def compare(args, heldout, peer_dir, work):
             t["warm"].append(warm)
             t["cold_mib"].append(cold_mib)
             t["warm_mib"].append(warm_mib)
-            print(f"round {round_ + 1} {name}: peer {t['peer'][-1]:.2f} s, heldout cold {cold:.2f} s, "
-                  f"warm {warm:.2f} s", flush=True)
+            peer = f"{t['peer'][-1]:.2f} s" if t["peer"] else "not run"
+            line = f"round {round_ + 1} {name}: peer {peer}, heldout cold {cold:.2f} s, warm {warm:.2f} s"
+            if args.baseline:
+                base, base_mib, _, _ = run_heldout(Path(args.baseline).resolve(), specs[name], work / name, args.jobs)
+                t["base"].append(base)
+                t["base_mib"].append(base_mib)
+                line += f", baseline cold {base:.2f} s"
+            print(line, flush=True)
     print(f"\nmedians over {args.rounds} round(s) (peers over {PEER_ONCE_ABOVE_S:.0f} s: one run)")
     print(f"{'workload':>8} {'peer s':>8} {'cold s':>8} {'warm s':>8} {'peer/cold':>10} {'warm/cold':>10}"
-          f" {'peer MiB':>9} {'cold MiB':>9} {'warm MiB':>9}")
+          f" {'peer MiB':>9} {'cold MiB':>9} {'warm MiB':>9}" + ("  baseline cold s, MiB" if args.baseline else ""))
     for name in names:
-        t = {k: statistics.median(v) for k, v in times[name].items()}
-        print(f"{name:>8} {t['peer']:>8.2f} {t['cold']:>8.2f} {t['warm']:>8.3f} {t['peer'] / t['cold']:>9.1f}x"
-              f" {100 * t['warm'] / t['cold']:>9.1f}% {t['peer_mib']:>9.0f} {t['cold_mib']:>9.0f}"
-              f" {t['warm_mib']:>9.0f}")
+        t = {k: statistics.median(v) if v else math.nan for k, v in times[name].items()}
+        line = (f"{name:>8} {t['peer']:>8.2f} {t['cold']:>8.2f} {t['warm']:>8.3f} {t['peer'] / t['cold']:>9.1f}x"
+                f" {100 * t['warm'] / t['cold']:>9.1f}% {t['peer_mib']:>9.0f} {t['cold_mib']:>9.0f}"
+                f" {t['warm_mib']:>9.0f}")
+        if args.baseline:
+            line += f"  {t['base']:>8.2f} {t['base_mib']:>6.0f}"
+        print(line)
 
 
 if __name__ == "__main__":

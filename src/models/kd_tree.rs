@@ -159,8 +159,8 @@ impl KdTree {
     }
 
     /// The `k` nearest rows of `query` by (squared distance, row), nearest
-    /// first, into `found` (fewer when the tree holds fewer rows). Rows for
-    /// which `skip` is true are passed over.
+    /// first, into `found` (fewer when the tree holds fewer rows); the row
+    /// `skip`, if given, is passed over (leave-one-out).
     pub(crate) fn nearest(
         &self,
         points: &[f64],
