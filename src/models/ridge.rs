@@ -15,6 +15,10 @@
 //!
 //! so the one factorisation serves every penalty, and its cost after the
 //! O(n·p²) pass does not depend on n. Nothing n × p is factorised or stored.
+//! Each fit forms G from its own training rows rather than as the all-rows
+//! G minus the left-out fold's: a fit sees only its training rows (one task,
+//! one cache entry), and standardising on those rows, which the accuracy
+//! needs, changes every entry of G from fold to fold anyway.
 //!
 //! Accuracy. Forming G squares the condition number: solved through G alone,
 //! β(λ) would carry a relative error of about ε·κ(λ), κ(λ) = (d²_max + λ)/
