@@ -31,7 +31,7 @@
 use nalgebra::DMatrix;
 
 use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
-use super::standardise::{centre, predict, Standardiser};
+use super::standardise::{centre, cross_products, predict, Standardiser};
 use super::{Family, FitRequest, Setting, SettingFit};
 use crate::error::FitError;
 
@@ -72,16 +72,20 @@ pub(crate) struct LassoProblem {
 }
 
 impl LassoProblem {
-    pub(crate) fn new(z: &DMatrix<f64>, y_centred: &[f64]) -> Self {
-        let (n, p) = z.shape();
-        let rows = n as f64;
-        let gram = DMatrix::from_fn(p, p, |j, k| {
-            (0..n).map(|i| z[(i, j)] * z[(i, k)]).sum::<f64>() / rows
-        });
-        let correlations = (0..p)
-            .map(|j| (0..n).map(|i| z[(i, j)] * y_centred[i]).sum::<f64>() / rows)
-            .collect();
-        LassoProblem { gram, correlations }
+    /// From the raw training rows, standardised by `standardiser`, and the
+    /// centred target: the cross-products ridge forms too
+    /// (`standardise::cross_products`, one pass over the rows), over n.
+    pub(crate) fn new(
+        standardiser: &Standardiser,
+        x_train: &DMatrix<f64>,
+        y_centred: &[f64],
+    ) -> Self {
+        let rows = x_train.nrows() as f64;
+        let (gram, c) = cross_products(standardiser, x_train, y_centred);
+        LassoProblem {
+            gram: gram / rows,
+            correlations: c.into_iter().map(|c| c / rows).collect(),
+        }
     }
 
     /// The smallest penalty at which every coefficient is zero: max |cⱼ|.
@@ -178,20 +182,20 @@ impl Family for Lasso {
             });
         }
         let standardiser = Standardiser::fit(x_train);
-        let z_train = standardiser.apply(x_train);
         let (y_mean, y_centred) = centre(y_train);
-        let coefficients = LassoProblem::new(&z_train, &y_centred).path(&self.penalties)?;
+        let coefficients =
+            LassoProblem::new(&standardiser, x_train, &y_centred).path(&self.penalties)?;
+        let z_train = final_fit.then(|| standardiser.apply(x_train));
         let z_eval = standardiser.apply(x_eval);
         Ok(coefficients
             .into_iter()
             .map(|beta| {
                 let active = beta.iter().filter(|&&b| b != 0.0).count();
                 SettingFit {
-                    train_pred: if final_fit {
-                        predict(&z_train, y_mean, &beta)
-                    } else {
-                        Vec::new()
-                    },
+                    train_pred: z_train
+                        .as_ref()
+                        .map(|z| predict(z, y_mean, &beta))
+                        .unwrap_or_default(),
                     eval_pred: predict(&z_eval, y_mean, &beta),
                     effective_df: 1.0 + active as f64,
                     coefficients: final_fit
@@ -209,9 +213,8 @@ mod tests {
 
     fn fixture_problem() -> (penalised_reference::Fixture, LassoProblem) {
         let f = penalised_reference::load();
-        let z = Standardiser::fit(&f.x_train).apply(&f.x_train);
         let (_, y_centred) = centre(&f.y_train);
-        let problem = LassoProblem::new(&z, &y_centred);
+        let problem = LassoProblem::new(&Standardiser::fit(&f.x_train), &f.x_train, &y_centred);
         (f, problem)
     }
 

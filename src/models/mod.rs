@@ -10,6 +10,7 @@
 mod double_double;
 #[cfg(test)]
 mod effective_df_tests;
+mod kd_tree;
 pub(crate) mod lasso;
 mod least_squares;
 pub(crate) mod linear;
@@ -19,6 +20,8 @@ mod penalised_reference;
 pub(crate) mod polynomial;
 pub(crate) mod registry;
 pub(crate) mod ridge;
+#[cfg(test)]
+mod ridge_scaled_reference;
 pub(crate) mod smoothing_spline;
 pub(crate) mod spline;
 mod standardise;

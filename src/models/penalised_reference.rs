@@ -214,9 +214,9 @@ fn lasso_matches_scikit_learn() {
         penalties: penalties.clone(),
     };
     let fits = fixture.fit(&lasso, true);
-    let z = Standardiser::fit(&fixture.x_train).apply(&fixture.x_train);
     let (_, y_centred) = centre(&fixture.y_train);
-    let problem = LassoProblem::new(&z, &y_centred);
+    let standardiser = Standardiser::fit(&fixture.x_train);
+    let problem = LassoProblem::new(&standardiser, &fixture.x_train, &y_centred);
     let standardised = problem.path(&penalties).expect("lasso path");
     let worst = compare("lasso", &fixture, &fits, &standardised, LASSO_TOL);
     println!("lasso vs scikit-learn: worst relative error {worst:e}");

@@ -219,6 +219,12 @@ impl FamilyDef {
         }
     }
 
+    /// With algorithm version `version` (bumped whenever a change may alter
+    /// any number the family produces; part of every cache identity).
+    pub(crate) const fn version(self, version: u32) -> Self {
+        FamilyDef { version, ..self }
+    }
+
     /// Taking exactly `count` features.
     pub(crate) const fn takes_features(self, count: usize) -> Self {
         FamilyDef {

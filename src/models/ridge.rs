@@ -1,50 +1,83 @@
 //! `ridge`: least squares with a squared-coefficient penalty, for a whole grid
-//! of penalties from one singular value decomposition per fold.
+//! of penalties from one symmetric eigendecomposition per fold.
 //!
 //! Features are standardised on the training fold (`standardise`), the
 //! intercept is the training mean of the target and is not penalised, and
 //! β(λ) minimises Σ(y − ȳ − Zβ)² + λΣβ² (Hoerl & Kennard 1970, "Ridge
 //! regression: biased estimation for nonorthogonal problems", Technometrics
-//! 12). With the thin SVD Z = U diag(d) Vᵀ,
+//! 12). One pass over the training rows forms G = ZᵀZ and c = Zᵀ(y − ȳ)
+//! (`standardise::cross_products`, on the standardised scale, so columns of
+//! very different units cannot swamp each other); with the p × p symmetric
+//! eigendecomposition G = V diag(d²) Vᵀ (the canonical form of Hoerl &
+//! Kennard; d are the singular values of Z),
 //!
-//!   β(λ) = V diag(d/(d² + λ)) Uᵀ(y − ȳ),  df(λ) = 1 + Σ d²/(d² + λ),
+//!   β(λ) = V diag(1/(d² + λ)) Vᵀc,  df(λ) = 1 + Σ d²/(d² + λ),
 //!
-//! so the one factorisation serves every penalty (Hoerl & Kennard 1970,
-//! "Ridge regression", Technometrics 12; the SVD form is standard algebra).
-//! Singular values at or below max(n, p)·ε·d_max are dropped (the rank rule
-//! of common rank estimators such as numpy's `matrix_rank`): at λ = 0 that
-//! makes the fit the minimum-norm least-squares solution (pseudo-inverse), so
-//! collinear or surplus features give a fit instead of a failure, and df
-//! counts only the directions the data determine. For λ > 0 a dropped
-//! direction would contribute at most d/λ ≈ 10⁻¹⁶·d_max/λ per unit of Uᵀy.
+//! so the one factorisation serves every penalty, and its cost after the
+//! O(n·p²) pass does not depend on n. Nothing n × p is factorised or stored.
+//! Each fit forms G from its own training rows rather than as the all-rows
+//! G minus the left-out fold's: a fit sees only its training rows (one task,
+//! one cache entry), and standardising on those rows, which the accuracy
+//! needs, changes every entry of G from fold to fold anyway.
+//!
+//! Accuracy. Forming G squares the condition number: solved through G alone,
+//! β(λ) would carry a relative error of about ε·κ(λ), κ(λ) = (d²_max + λ)/
+//! (d²_min + λ), where a factorisation of Z itself gets about ε·√κ(λ). When
+//! κ(λ) exceeds [`REFINE_ABOVE`] the solution is therefore refined: the
+//! residual of the normal equations s = Zᵀ(y − ȳ − Zβ) − λβ is computed from
+//! the rows themselves and the correction V diag(1/(d² + λ)) Vᵀs added,
+//! [`REFINEMENT_STEPS`] times (the corrected semi-normal equations: Björck
+//! 1987, "Stability analysis of the method of seminormal equations for
+//! linear least squares problems", Linear Algebra Appl. 88/89), which brings
+//! the error back to that of a factorisation of Z while ε·κ(λ) stays well
+//! below 1. The scikit-learn fixture (`tests/fixtures/ridge_lasso`) and the
+//! badly scaled fixture (`tests/fixtures/ridge_scaled`) check it.
+//!
+//! Rank. Eigenvalues at or below max(n, p)·ε·d²_max are dropped: that is the
+//! rounding level of a computed Gram matrix, so at λ = 0 the fit is the
+//! minimum-norm least-squares solution on the directions the data determine
+//! (the pseudo-inverse), collinear or surplus features give a fit instead of
+//! a failure, and df counts only those directions. (A factorisation of Z
+//! could resolve directions down to ε·d_max; through G the floor is
+//! √(max(n, p)·ε)·d_max, about 10⁻⁷·d_max.) For λ > 0 a dropped direction
+//! would contribute at most d²/λ of its part of c.
 //!
 //! Leave-one-out without refits. Ridge at a fixed scaling is a linear
 //! smoother, but here each fit re-standardises on its own training rows, and
 //! leaving row i out changes every feature's standard deviation by O(1/n):
 //! in the units of the full-data standardisation the left-out fit carries
 //! the penalty λ Σ rⱼ²bⱼ² with rⱼ = sd₋ᵢ,ⱼ / sdⱼ ≠ 1. The plain hat-diagonal
-//! shortcut hᵢᵢ = 1/n + Σ_k U_ik² d_k²/(d_k² + λ) therefore differs from
+//! shortcut hᵢᵢ = 1/n + Σ_k (Vᵀzᵢ)_k²/(d_k² + λ) therefore differs from
 //! refits (by up to 4·10⁻³ relative on the reference fixture) except at λ = 0,
 //! where least squares does not depend on the scaling. Instead, for each row
 //! the left-out normal equations are formed exactly as a downdate of the
-//! full-data factorisation and solved in the basis of V, scaled by
+//! full-data cross-products and solved in the basis of V, scaled by
 //! (d² + λ)^(−1/2) so the p × p system is the identity plus a rank-one term
 //! (the leverage) plus an O(1/n) term (the change of scaling):
-//! cost O(n·p³) per penalty instead of n SVDs (see `RidgePath::left_out`).
-//! When that basis does not span every feature (fewer rows than features,
-//! collinear features) or one row carries all of a feature's spread, the
-//! family asks for refits instead.
+//! cost O(n·p³) per penalty instead of n factorisations (see
+//! `RidgePath::left_out`). When that basis does not span every feature (fewer
+//! rows than features, collinear features) or one row carries all of a
+//! feature's spread, the family asks for refits instead.
 
 use nalgebra::DMatrix;
 
 use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
-use super::standardise::{centre, predict, Standardiser};
+use super::standardise::{centre, cross_products, predict, Standardiser};
 use super::{leave_one_out_rows, Family, FitRequest, LeaveOneOut, Setting, SettingFit};
 use crate::error::FitError;
 
-/// Iteration cap handed to the SVD (nalgebra counts implicit-shift sweeps
-/// over the whole bidiagonal; typical fits need a few per singular value).
-const SVD_MAX_ITERATIONS: usize = 100_000;
+/// Iteration cap handed to the symmetric eigensolver (nalgebra counts
+/// implicit QL sweeps; a p × p matrix typically needs a few per eigenvalue).
+const EIGEN_MAX_ITERATIONS: usize = 100_000;
+
+/// The amplification κ(λ) = (d²_max + λ)/(d²_min + λ) above which the
+/// solution from G is refined with residuals from the rows (module doc):
+/// below it ε·κ(λ) ≤ 2·10⁻¹³ already.
+const REFINE_ABOVE: f64 = 1e3;
+
+/// Refinement steps when refining; each divides the error of the normal
+/// equations by about 1/(ε·κ(λ)).
+const REFINEMENT_STEPS: usize = 2;
 
 /// Ridge regression over a grid of penalties.
 #[derive(Debug, Clone)]
@@ -57,9 +90,12 @@ pub(crate) struct Ridge {
 /// The registry entry of `ridge` (see `registry`).
 pub(crate) const FAMILY: FamilyDef = FamilyDef::new("ridge", &[PENALTY], build)
     .about(
-        "L2-penalised least squares on standardised features, the whole penalty grid from one SVD.",
+        "L2-penalised least squares on standardised features, the whole penalty grid from one \
+         eigendecomposition.",
     )
-    .grid("penalty = [0.01, 0.1, 1, 10, 100]");
+    .grid("penalty = [0.01, 0.1, 1, 10, 100]")
+    // 2: one Gram matrix and its eigendecomposition instead of an SVD of Z.
+    .version(2);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Ridge {
@@ -73,67 +109,74 @@ fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, 
 pub(crate) struct RidgePath {
     standardiser: Standardiser,
     y_mean: f64,
-    /// Kept singular values, largest first.
-    d: Vec<f64>,
-    /// Left singular vectors of the kept values (n × r).
-    u: DMatrix<f64>,
-    /// Right singular vectors of the kept values (p × r).
+    /// Kept eigenvalues of ZᵀZ (squared singular values of Z), largest first.
+    d2: Vec<f64>,
+    /// Their eigenvectors (p × r).
     v: DMatrix<f64>,
-    /// Uᵀ(y − ȳ) for the kept values.
-    u_t_y: Vec<f64>,
+    /// Vᵀc, c = Zᵀ(y − ȳ).
+    v_t_c: Vec<f64>,
+    /// The standardised rows and centred target, kept only when some
+    /// penalty needs refinement (κ(0) above [`REFINE_ABOVE`]).
+    rows: Option<(DMatrix<f64>, Vec<f64>)>,
 }
 
 impl RidgePath {
-    /// Standardises `x_train` and factorises it once.
+    /// Standardises `x_train`, forms its cross-products and factorises them once.
     pub(crate) fn new(x_train: &DMatrix<f64>, y_train: &[f64]) -> Result<Self, FitError> {
         let standardiser = Standardiser::fit(x_train);
-        let z = standardiser.apply(x_train);
         let (y_mean, y_centred) = centre(y_train);
-        let (n, p) = z.shape();
-        let svd = z
-            .try_svd(true, true, f64::EPSILON, SVD_MAX_ITERATIONS)
+        let (n, p) = x_train.shape();
+        let (gram, c) = cross_products(&standardiser, x_train, &y_centred);
+        let eigen = nalgebra::SymmetricEigen::try_new(gram, f64::EPSILON, EIGEN_MAX_ITERATIONS)
             .ok_or(FitError::NotConverged {
                 setting: "ridge".into(),
-                method: "the singular value decomposition",
-                iterations: SVD_MAX_ITERATIONS,
+                method: "the symmetric eigendecomposition",
+                iterations: EIGEN_MAX_ITERATIONS,
                 advice: "check the features for extreme values",
             })?;
-        let (Some(u_all), Some(v_t_all)) = (svd.u, svd.v_t) else {
-            unreachable!("both singular vector sets were requested");
-        };
-        let largest = svd.singular_values.iter().fold(0.0_f64, |m, &d| m.max(d));
+        let values = &eigen.eigenvalues;
+        let mut order: Vec<usize> = (0..p).collect();
+        order.sort_by(|&a, &b| values[b].total_cmp(&values[a]).then(a.cmp(&b)));
+        let largest = order.first().map_or(0.0, |&k| values[k].max(0.0));
         let tolerance = n.max(p) as f64 * f64::EPSILON * largest;
-        let kept: Vec<usize> = (0..svd.singular_values.len())
-            .filter(|&k| largest > 0.0 && svd.singular_values[k] > tolerance)
+        let kept: Vec<usize> = order
+            .into_iter()
+            .filter(|&k| largest > 0.0 && values[k] > tolerance)
             .collect();
-        let d: Vec<f64> = kept.iter().map(|&k| svd.singular_values[k]).collect();
-        let u = DMatrix::from_fn(n, kept.len(), |i, c| u_all[(i, kept[c])]);
-        let v = DMatrix::from_fn(p, kept.len(), |j, c| v_t_all[(kept[c], j)]);
-        let u_t_y = (0..kept.len())
-            .map(|c| (0..n).map(|i| u[(i, c)] * y_centred[i]).sum())
+        let d2: Vec<f64> = kept.iter().map(|&k| values[k]).collect();
+        let v = DMatrix::from_fn(p, kept.len(), |j, c| eigen.eigenvectors[(j, kept[c])]);
+        let v_t_c = (0..kept.len())
+            .map(|r| (0..p).map(|j| v[(j, r)] * c[j]).sum())
             .collect();
-        Ok(RidgePath {
+        let mut path = RidgePath {
             standardiser,
             y_mean,
-            d,
-            u,
+            d2,
             v,
-            u_t_y,
-        })
+            v_t_c,
+            rows: None,
+        };
+        if path.amplification(0.0) > REFINE_ABOVE {
+            path.rows = Some((path.standardiser.apply(x_train), y_centred));
+        }
+        Ok(path)
     }
 
-    /// Shrinkage factors d²/(d² + λ) of the kept directions.
-    fn shrinkage(&self, penalty: f64) -> Vec<f64> {
-        self.d.iter().map(|d| d * d / (d * d + penalty)).collect()
+    /// κ(λ) = (d²_max + λ)/(d²_min + λ) over the kept directions.
+    fn amplification(&self, penalty: f64) -> f64 {
+        match (self.d2.first(), self.d2.last()) {
+            (Some(max), Some(min)) => (max + penalty) / (min + penalty),
+            _ => 1.0,
+        }
     }
 
-    /// Coefficients on the standardised scale at `penalty`.
-    pub(crate) fn coefficients(&self, penalty: f64) -> Vec<f64> {
+    /// V diag(1/(d² + λ)) Vᵀ applied to `vt_b` = Vᵀb, in feature space.
+    fn solve_in_basis(&self, vt_b: &[f64], penalty: f64) -> Vec<f64> {
         let weights: Vec<f64> = self
-            .d
+            .d2
             .iter()
-            .zip(&self.u_t_y)
-            .map(|(d, uy)| d / (d * d + penalty) * uy)
+            .zip(vt_b)
+            .map(|(d2, b)| b / (d2 + penalty))
             .collect();
         (0..self.v.nrows())
             .map(|j| {
@@ -146,9 +189,48 @@ impl RidgePath {
             .collect()
     }
 
+    /// Vᵀb for a vector `b` in feature space.
+    fn project(&self, b: &[f64]) -> Vec<f64> {
+        (0..self.d2.len())
+            .map(|c| b.iter().enumerate().map(|(j, b)| self.v[(j, c)] * b).sum())
+            .collect()
+    }
+
+    /// Coefficients on the standardised scale at `penalty`.
+    pub(crate) fn coefficients(&self, penalty: f64) -> Vec<f64> {
+        let mut beta = self.solve_in_basis(&self.v_t_c, penalty);
+        let Some((z, y_centred)) = &self.rows else {
+            return beta;
+        };
+        if self.amplification(penalty) <= REFINE_ABOVE {
+            return beta;
+        }
+        let (n, p) = z.shape();
+        for _ in 0..REFINEMENT_STEPS {
+            // s = Zᵀ(y − ȳ − Zβ) − λβ, summed in row order.
+            let mut s: Vec<f64> = beta.iter().map(|b| -penalty * b).collect();
+            let mut gradient = vec![0.0; p];
+            for i in 0..n {
+                let fitted: f64 = (0..p).map(|j| z[(i, j)] * beta[j]).sum();
+                let residual = y_centred[i] - fitted;
+                for (j, g) in gradient.iter_mut().enumerate() {
+                    *g += z[(i, j)] * residual;
+                }
+            }
+            for (s, g) in s.iter_mut().zip(&gradient) {
+                *s += g;
+            }
+            let correction = self.solve_in_basis(&self.project(&s), penalty);
+            for (b, d) in beta.iter_mut().zip(&correction) {
+                *b += d;
+            }
+        }
+        beta
+    }
+
     /// 1 (the intercept) + Σ d²/(d² + λ).
     pub(crate) fn effective_df(&self, penalty: f64) -> f64 {
-        1.0 + self.shrinkage(penalty).iter().sum::<f64>()
+        1.0 + self.d2.iter().map(|d2| d2 / (d2 + penalty)).sum::<f64>()
     }
 
     /// Whether [`Self::left_out`] is exact for these rows: V spans every
@@ -157,7 +239,7 @@ impl RidgePath {
         let (n, p) = z.shape();
         let rest = (n - 1) as f64;
         // Σᵢ zᵢⱼ² = n, so zᵢⱼ² = n − 1 means the other rows are all equal.
-        self.d.len() == p && z.iter().all(|&v| v * v < rest * (1.0 - 1e-8))
+        self.d2.len() == p && z.iter().all(|&v| v * v < rest * (1.0 - 1e-8))
     }
 
     /// The prediction at training row `i` of the fit on the other rows
@@ -170,9 +252,9 @@ impl RidgePath {
     /// (eᵢ = yᵢ − ȳ; the standard downdate of a scatter matrix), and squared
     /// scale ratios rⱼ² = C_jj/m = 1 + 1/m − n·zᵢⱼ²/m². The left-out
     /// coefficients b solve (C + λR²) b = q. Writing b = V S η with
-    /// S = diag((d² + λ)^(−1/2)) and wᵢ = S D uᵢ,
+    /// S = diag((d² + λ)^(−1/2)) and wᵢ = S Vᵀzᵢ,
     ///
-    ///   (I − a·wᵢwᵢᵀ + λ S Vᵀ(R² − I)V S) η = S (D Uᵀ(y − ȳ) − a·D uᵢ eᵢ),
+    ///   (I − a·wᵢwᵢᵀ + λ S Vᵀ(R² − I)V S) η = S (Vᵀc − a·Vᵀzᵢ eᵢ),
     ///
     /// and the prediction is ȳ − eᵢ/m + a·zᵢᵀb (the left-out means of y and
     /// Z are ȳ − eᵢ/m and −zᵢ/m).
@@ -182,15 +264,15 @@ impl RidgePath {
         let a = n as f64 / rest;
         let e = y_centred[i];
         let scale: Vec<f64> = self
-            .d
+            .d2
             .iter()
-            .map(|d| 1.0 / (d * d + penalty).sqrt())
+            .map(|d2| 1.0 / (d2 + penalty).sqrt())
             .collect();
-        let w: Vec<f64> = (0..p)
-            .map(|k| scale[k] * self.d[k] * self.u[(i, k)])
-            .collect();
+        let z_i: Vec<f64> = (0..p).map(|j| z[(i, j)]).collect();
+        let v_t_z = self.project(&z_i);
+        let w: Vec<f64> = (0..p).map(|k| scale[k] * v_t_z[k]).collect();
         let ratio_change: Vec<f64> = (0..p)
-            .map(|j| 1.0 / rest - n as f64 * z[(i, j)] * z[(i, j)] / (rest * rest))
+            .map(|j| 1.0 / rest - n as f64 * z_i[j] * z_i[j] / (rest * rest))
             .collect();
         let system = DMatrix::from_fn(p, p, |k, l| {
             let change: f64 = (0..p)
@@ -199,15 +281,14 @@ impl RidgePath {
             let identity = if k == l { 1.0 } else { 0.0 };
             identity - a * w[k] * w[l] + penalty * scale[k] * scale[l] * change
         });
-        let rhs = nalgebra::DVector::from_fn(p, |k, _| {
-            scale[k] * self.d[k] * (self.u_t_y[k] - a * self.u[(i, k)] * e)
-        });
+        let rhs =
+            nalgebra::DVector::from_fn(p, |k, _| scale[k] * (self.v_t_c[k] - a * v_t_z[k] * e));
         let eta = system.cholesky()?.solve(&rhs);
         let gamma: Vec<f64> = (0..p).map(|k| scale[k] * eta[k]).collect();
         let fitted: f64 = (0..p)
             .map(|j| {
                 let b_j: f64 = (0..p).map(|k| self.v[(j, k)] * gamma[k]).sum();
-                z[(i, j)] * b_j
+                z_i[j] * b_j
             })
             .sum();
         Some(self.y_mean - e / rest + a * fitted)
@@ -379,7 +460,7 @@ mod tests {
     #[test]
     fn path_equals_separate_fits() {
         // Invariant (docs/architecture.md, "A whole grid per fit"): the grid
-        // from one SVD equals one fit per setting.
+        // from one eigendecomposition equals one fit per setting.
         penalised_reference::assert_path_equals_separate_fits(&FAMILY, 1e-12);
     }
 

@@ -43,10 +43,16 @@ impl Standardiser {
 
     /// The standardised copy of `x` (rows of any fold, training statistics).
     pub(crate) fn apply(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
-        DMatrix::from_fn(x.nrows(), x.ncols(), |i, j| match self.sds[j] {
-            Some(sd) => (x[(i, j)] - self.means[j]) / sd,
+        DMatrix::from_fn(x.nrows(), x.ncols(), |i, j| self.value(j, x[(i, j)]))
+    }
+
+    /// Feature `j`'s value `v` on the standardised scale (0 for a constant
+    /// feature); [`Self::apply`] is this, entry by entry.
+    pub(crate) fn value(&self, j: usize, v: f64) -> f64 {
+        match self.sds[j] {
+            Some(sd) => (v - self.means[j]) / sd,
             None => 0.0,
-        })
+        }
     }
 
     /// Coefficients in the raw units of the features, `"intercept"` first,
@@ -83,6 +89,37 @@ pub(crate) fn predict(z: &DMatrix<f64>, y_mean: f64, beta: &[f64]) -> Vec<f64> {
         .collect()
 }
 
+/// The cross-products of the standardised training rows, formed in one pass
+/// over `x_train` without storing the standardised copy: G = ZᵀZ (p × p)
+/// and c = Zᵀ(y − ȳ), each entry summed in row order. Standardising first
+/// keeps columns of very different scales from losing each other's digits.
+pub(crate) fn cross_products(
+    standardiser: &Standardiser,
+    x_train: &DMatrix<f64>,
+    y_centred: &[f64],
+) -> (DMatrix<f64>, Vec<f64>) {
+    let (n, p) = x_train.shape();
+    // Upper triangle, row-major: entry (j, k), k ≥ j, at j·p + k. Each row
+    // adds to every entry once, so every sum runs in row order.
+    let mut upper = vec![0.0; p * p];
+    let mut c = vec![0.0; p];
+    let mut z = vec![0.0; p];
+    for i in 0..n {
+        for (j, zj) in z.iter_mut().enumerate() {
+            *zj = standardiser.value(j, x_train[(i, j)]);
+        }
+        for j in 0..p {
+            let zj = z[j];
+            for (g, zk) in upper[j * p + j..(j + 1) * p].iter_mut().zip(&z[j..]) {
+                *g += zj * zk;
+            }
+            c[j] += zj * y_centred[i];
+        }
+    }
+    let gram = DMatrix::from_fn(p, p, |j, k| upper[j.min(k) * p + j.max(k)]);
+    (gram, c)
+}
+
 /// The training mean of the target and the centred target, in row order.
 pub(crate) fn centre(y: &[f64]) -> (f64, Vec<f64>) {
     let mean = y.iter().sum::<f64>() / y.len() as f64;
@@ -108,5 +145,26 @@ mod tests {
         assert!((raw[0].1 - 7.0).abs() < 1e-14, "{raw:?}");
         assert!((raw[1].1 - 1.0).abs() < 1e-15);
         assert_eq!(raw[2], ("b".to_string(), 0.0));
+    }
+
+    #[test]
+    fn cross_products_equal_the_sums_of_the_standardised_copy() {
+        // Definition: G = ZᵀZ and c = Zᵀy with Z = apply(x), summed in row
+        // order, so the one-pass form equals the plain sums to the bit.
+        let x = DMatrix::from_fn(7, 3, |i, j| {
+            ((i * 5 + j * 3) % 7) as f64 * 10f64.powi(j as i32 * 3)
+        });
+        let y: Vec<f64> = (0..7).map(|i| (i as f64).cos()).collect();
+        let s = Standardiser::fit(&x);
+        let z = s.apply(&x);
+        let (gram, c) = cross_products(&s, &x, &y);
+        for j in 0..3 {
+            for k in 0..3 {
+                let direct = (0..7).fold(0.0, |sum, i| sum + z[(i, j)] * z[(i, k)]);
+                assert_eq!(gram[(j, k)], direct, "({j}, {k})");
+            }
+            let direct = (0..7).fold(0.0, |sum, i| sum + z[(i, j)] * y[i]);
+            assert_eq!(c[j], direct);
+        }
     }
 }

@@ -1,0 +1,277 @@
+//! An exact k-nearest-neighbour search by k-d tree (Bentley 1975,
+//! "Multidimensional binary search trees used for associative searching",
+//! Comm. ACM 18), with the search order of Friedman, Bentley & Finkel 1977
+//! ("An algorithm for finding best matches in logarithmic expected time",
+//! ACM Trans. Math. Softw. 3): visit the nearer child first, skip a node
+//! whose bounding box lies farther than the current k-th neighbour.
+//!
+//! Neighbours are ranked by (squared distance, training row), a total
+//! order, so the k nearest are one definite set in one definite order: the
+//! same as a full scan that sorts every row by that order (the tie rule of
+//! `docs/spec.md`, nearest-neighbors: the earlier row wins a tie). The tree
+//! only decides which rows are looked at, never how a distance is computed,
+//! so its shape cannot change a result:
+//!
+//! - every distance is [`squared_distance`], the scan's own arithmetic;
+//! - a node is skipped only when the lower bound of its box is *strictly*
+//!   greater than the current k-th distance, so a row tied with the k-th
+//!   (which may win the tie by its row number) is always looked at;
+//! - the bound cannot exceed the computed distance of any row inside the
+//!   box, in floating point too: each term uses the gap to the box edge,
+//!   which is at most that row's coordinate difference, and rounding of a
+//!   difference, a square and a sum is monotone, so term by term and sum by
+//!   sum (in the same dimension order) the bound stays at or below.
+
+use std::cmp::Ordering;
+use std::collections::BinaryHeap;
+
+/// Rows per leaf: below this a node is scanned, not split.
+const LEAF_SIZE: usize = 12;
+
+/// Σ (a − b)² over the coordinates, summed in dimension order. The scan and
+/// the tree both measure with this one function.
+pub(crate) fn squared_distance(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(a, b)| (a - b) * (a - b)).sum()
+}
+
+/// Order of neighbours: squared distance, then training row.
+pub(crate) fn by_distance_then_row(a: &(f64, usize), b: &(f64, usize)) -> Ordering {
+    a.0.total_cmp(&b.0).then(a.1.cmp(&b.1))
+}
+
+/// A node: the rows `order[start..end]`, their bounding box and, unless a
+/// leaf, its two children.
+struct Node {
+    start: usize,
+    end: usize,
+    /// Per dimension, smallest then largest coordinate of the node's rows
+    /// (`2 · dims` values).
+    bounds: Vec<f64>,
+    children: Option<(usize, usize)>,
+}
+
+/// A k-d tree over points stored row-major (`dims` values per row).
+pub(crate) struct KdTree {
+    dims: usize,
+    /// Row numbers, permuted so each node holds a contiguous range.
+    order: Vec<usize>,
+    nodes: Vec<Node>,
+}
+
+/// A candidate in the search heap; the largest (distance, row) on top.
+#[derive(Clone, Copy)]
+struct Candidate(f64, usize);
+
+impl PartialEq for Candidate {
+    fn eq(&self, other: &Self) -> bool {
+        self.cmp(other) == Ordering::Equal
+    }
+}
+
+impl Eq for Candidate {}
+
+impl PartialOrd for Candidate {
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+
+impl Ord for Candidate {
+    fn cmp(&self, other: &Self) -> Ordering {
+        by_distance_then_row(&(self.0, self.1), &(other.0, other.1))
+    }
+}
+
+impl KdTree {
+    /// Builds the tree over `points` (row-major, `dims` per row), splitting
+    /// each node at the median of its widest dimension.
+    pub(crate) fn build(points: &[f64], dims: usize) -> Self {
+        let rows = points.len() / dims;
+        let mut tree = KdTree {
+            dims,
+            order: (0..rows).collect(),
+            nodes: Vec::with_capacity(2 * rows / LEAF_SIZE + 1),
+        };
+        if rows > 0 {
+            tree.grow(points, 0, rows);
+        }
+        tree
+    }
+
+    /// Adds the node of `order[start..end]` and its subtree; returns its index.
+    fn grow(&mut self, points: &[f64], start: usize, end: usize) -> usize {
+        let dims = self.dims;
+        let mut bounds = Vec::with_capacity(2 * dims);
+        for j in 0..dims {
+            let (lo, hi) = self.order[start..end]
+                .iter()
+                .map(|&row| points[row * dims + j])
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+                    (lo.min(v), hi.max(v))
+                });
+            bounds.push(lo);
+            bounds.push(hi);
+        }
+        let (widest, width) = (0..dims)
+            .map(|j| (j, bounds[2 * j + 1] - bounds[2 * j]))
+            .fold((0, -1.0), |best, d| if d.1 > best.1 { d } else { best });
+        let index = self.nodes.len();
+        self.nodes.push(Node {
+            start,
+            end,
+            bounds,
+            children: None,
+        });
+        // A leaf when small, or when every row sits at one point.
+        if end - start <= LEAF_SIZE || width <= 0.0 {
+            return index;
+        }
+        let middle = start + (end - start) / 2;
+        self.order[start..end].select_nth_unstable_by(middle - start, |&a, &b| {
+            points[a * dims + widest].total_cmp(&points[b * dims + widest])
+        });
+        let left = self.grow(points, start, middle);
+        let right = self.grow(points, middle, end);
+        self.nodes[index].children = Some((left, right));
+        index
+    }
+
+    /// Lower bound of the squared distance from `query` to any point of
+    /// node `index`'s box (see the module documentation on why it never
+    /// exceeds a computed distance).
+    fn box_bound(&self, index: usize, query: &[f64]) -> f64 {
+        let bounds = &self.nodes[index].bounds;
+        query
+            .iter()
+            .enumerate()
+            .map(|(j, &q)| {
+                let (lo, hi) = (bounds[2 * j], bounds[2 * j + 1]);
+                let gap = if q < lo {
+                    lo - q
+                } else if q > hi {
+                    q - hi
+                } else {
+                    0.0
+                };
+                gap * gap
+            })
+            .sum()
+    }
+
+    /// The `k` nearest rows of `query` by (squared distance, row), nearest
+    /// first, into `found` (fewer when the tree holds fewer rows); the row
+    /// `skip`, if given, is passed over (leave-one-out).
+    pub(crate) fn nearest(
+        &self,
+        points: &[f64],
+        query: &[f64],
+        k: usize,
+        skip: Option<usize>,
+        found: &mut Vec<(f64, usize)>,
+    ) {
+        found.clear();
+        if self.nodes.is_empty() || k == 0 {
+            return;
+        }
+        let mut heap: BinaryHeap<Candidate> = BinaryHeap::with_capacity(k + 1);
+        self.visit(0, points, query, k, skip, &mut heap);
+        found.extend(heap.into_sorted_vec().into_iter().map(|c| (c.0, c.1)));
+    }
+
+    /// Depth-first search of node `index`, nearer child first.
+    fn visit(
+        &self,
+        index: usize,
+        points: &[f64],
+        query: &[f64],
+        k: usize,
+        skip: Option<usize>,
+        heap: &mut BinaryHeap<Candidate>,
+    ) {
+        let node = &self.nodes[index];
+        match node.children {
+            None => {
+                for &row in &self.order[node.start..node.end] {
+                    if Some(row) == skip {
+                        continue;
+                    }
+                    let p = &points[row * self.dims..(row + 1) * self.dims];
+                    let candidate = Candidate(squared_distance(p, query), row);
+                    if heap.len() < k {
+                        heap.push(candidate);
+                    } else if heap.peek().is_some_and(|worst| candidate < *worst) {
+                        heap.pop();
+                        heap.push(candidate);
+                    }
+                }
+            }
+            Some((left, right)) => {
+                let (near, far) = {
+                    let (bl, br) = (self.box_bound(left, query), self.box_bound(right, query));
+                    if br < bl {
+                        ((right, br), (left, bl))
+                    } else {
+                        ((left, bl), (right, br))
+                    }
+                };
+                for (child, bound) in [near, far] {
+                    let pruned =
+                        heap.len() == k && heap.peek().is_some_and(|worst| bound > worst.0);
+                    if !pruned {
+                        self.visit(child, points, query, k, skip, heap);
+                    }
+                }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The brute-force reference: every row ranked by (distance, row).
+    fn scan(points: &[f64], dims: usize, query: &[f64], k: usize) -> Vec<(f64, usize)> {
+        let mut all: Vec<(f64, usize)> = points
+            .chunks_exact(dims)
+            .enumerate()
+            .map(|(row, p)| (squared_distance(p, query), row))
+            .collect();
+        all.sort_by(by_distance_then_row);
+        all.truncate(k);
+        all
+    }
+
+    #[test]
+    fn tree_equals_scan_on_a_lattice_full_of_ties() {
+        // Invariant (module doc): the tree returns exactly the scan's
+        // neighbours. Integer lattice points with many duplicates make equal
+        // distances, and ties at the k-th place, the rule rather than the
+        // exception.
+        for dims in [2, 3, 5] {
+            let rows = 400;
+            let points: Vec<f64> = (0..rows * dims)
+                .map(|i| ((i * 7919 + i / dims * 31) % 5) as f64)
+                .collect();
+            let tree = KdTree::build(&points, dims);
+            let mut found = Vec::new();
+            for q in (0..rows).step_by(7) {
+                let query = &points[q * dims..(q + 1) * dims];
+                for k in [1, 2, 5, 17, 60, rows] {
+                    tree.nearest(&points, query, k, None, &mut found);
+                    assert_eq!(found, scan(&points, dims, query, k), "dims {dims} k {k}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn skipped_row_is_left_out() {
+        // The skipped row never appears; the rest are the scan's order.
+        let points = [0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 2.0, 2.0];
+        let tree = KdTree::build(&points, 2);
+        let mut found = Vec::new();
+        tree.nearest(&points, &[0.0, 0.0], 3, Some(0), &mut found);
+        assert_eq!(found, vec![(0.0, 2), (1.0, 1), (8.0, 3)]);
+    }
+}
