@@ -82,6 +82,13 @@ pub(crate) enum Lookup {
     Corrupt(String),
 }
 
+/// One stored entry: its key and its size on disk.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Entry {
+    pub(crate) key: CacheKey,
+    pub(crate) bytes: u64,
+}
+
 /// A cache folder.
 #[derive(Debug, Clone)]
 pub(crate) struct Cache {
@@ -170,6 +177,46 @@ impl Cache {
             }
         }
         removed
+    }
+
+    /// Every entry file in the folder (`<2 hex>/<64 hex>.fit`), in key order;
+    /// files of any other name are not entries and are never listed.
+    pub(crate) fn entries(&self) -> Vec<Entry> {
+        let mut entries = Vec::new();
+        let Ok(folders) = std::fs::read_dir(&self.root) else {
+            return entries;
+        };
+        for folder in folders.flatten() {
+            let Ok(files) = std::fs::read_dir(folder.path()) else {
+                continue;
+            };
+            for file in files.flatten() {
+                let name = file.file_name();
+                let Some(hex) = name.to_str().and_then(|n| n.strip_suffix(".fit")) else {
+                    continue;
+                };
+                let Ok(hash) = blake3::Hash::from_hex(hex) else {
+                    continue;
+                };
+                let Ok(metadata) = file.metadata() else {
+                    continue;
+                };
+                if metadata.is_file() && self.path_of(&CacheKey(*hash.as_bytes())) == file.path() {
+                    entries.push(Entry {
+                        key: CacheKey(*hash.as_bytes()),
+                        bytes: metadata.len(),
+                    });
+                }
+            }
+        }
+        entries.sort_by_key(|entry| entry.key.0);
+        entries
+    }
+
+    /// Removes the entry stored under `key`; false when it was not there
+    /// (another process removed it first) or cannot be removed.
+    pub(crate) fn remove(&self, key: &CacheKey) -> bool {
+        std::fs::remove_file(self.path_of(key)).is_ok()
     }
 
     /// Where an entry lives, for messages about its content.

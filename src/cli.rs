@@ -115,6 +115,16 @@ pub enum Command {
         keys) stay with heldout itself."
     )]
     Schema,
+    /// Say how many fits the cache holds and how much room they take, or
+    /// remove every fit that none of the given specs needs.
+    #[command(after_help = "Examples:\n  heldout cache\n  \
+        heldout cache --keep-only specs/*.toml --dry-run\n  \
+        heldout cache --keep-only specs/*.toml\n\n\
+        --keep-only works out every fit each spec needs (as `heldout plan` does,\n\
+        without fitting) and removes the other entries; pass every spec whose\n\
+        receipt CI verifies, or their fits are recomputed on the next run.\n\
+        Temporary files a stopped run left are removed too.")]
+    Cache(CacheCommandArgs),
     /// Print a completion script for bash, zsh or fish, so the shell completes
     /// heldout's commands, options and file names.
     #[command(
@@ -249,6 +259,20 @@ pub struct PredictArgs {
     /// Print nothing but errors and warnings.
     #[arg(long, short)]
     pub quiet: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct CacheCommandArgs {
+    #[command(flatten)]
+    pub cache: CacheArgs,
+    /// Keep only the fits these specs need; remove every other entry.
+    #[arg(long, value_name = "SPEC", num_args = 1..)]
+    pub keep_only: Vec<PathBuf>,
+    /// With --keep-only: say what would be removed, remove nothing.
+    #[arg(long, requires = "keep_only")]
+    pub dry_run: bool,
+    #[command(flatten)]
+    pub data: DataAccessArgs,
 }
 
 #[derive(Debug, Args)]

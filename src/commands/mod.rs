@@ -1,6 +1,7 @@
 //! What each command does, from parsed arguments to files and printed text.
 //! Shared here: the evaluation pipeline that `run` and `verify` both use.
 
+mod cache;
 mod compare;
 mod completions;
 mod inspect;
@@ -37,6 +38,7 @@ pub fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Compare(args) => compare::compare(&args),
         Command::New(args) => scaffold::scaffold(&args),
         Command::Predict(args) => predict::predict(&args),
+        Command::Cache(args) => cache::cache(&args),
         Command::Schema => schema::schema(),
         Command::Report(args) => render::report(&args),
         Command::Completions(args) => completions::completions(&args),

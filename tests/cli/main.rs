@@ -4,6 +4,7 @@
 //! directory (see `util`).
 
 mod bad_input;
+mod cache_command;
 mod ci_doc;
 mod completions;
 mod cv_reference;
