@@ -108,6 +108,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
         chosen,
         choice,
         test_score: Some(1.0),
+        classification: None,
         simulation: None,
     }
 }
