@@ -118,7 +118,7 @@ pub(crate) fn metric_label(metric: Metric) -> &'static str {
         Metric::Mae => "mean absolute error (mae)",
         Metric::R2 => "coefficient of determination (r2)",
         Metric::ErrorRate => "error rate (error-rate)",
-        Metric::LogLoss => "log-loss (log-loss)",
+        Metric::LogLoss => "logarithmic loss (log-loss)",
         Metric::Brier => "Brier score (brier)",
         Metric::Auc => "area under the ROC curve (auc)",
     }

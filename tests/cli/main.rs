@@ -5,6 +5,7 @@
 
 mod bad_input;
 mod ci_doc;
+mod classification;
 mod completions;
 mod cv_reference;
 mod demo;
