@@ -295,3 +295,32 @@ fn breast_cancer_folds_equal_scikit_learn_cross_validation() {
         }
     }
 }
+
+#[test]
+fn descaling_report_and_class_figures_are_pinned() {
+    let root = util::crate_root();
+    let dir = tempfile::tempdir().unwrap();
+    for (folder, file) in [
+        ("specs", "substation-descaling.toml"),
+        ("demo-data", "substation-descaling.csv"),
+    ] {
+        std::fs::create_dir_all(dir.path().join(folder)).unwrap();
+        std::fs::copy(
+            root.join(folder).join(file),
+            dir.path().join(folder).join(file),
+        )
+        .unwrap();
+    }
+    let output = util::run_in(
+        dir.path(),
+        &["run", "--quiet", "specs/substation-descaling.toml"],
+    );
+    util::assert_success(&output);
+    let out = dir.path().join("out/substation-descaling");
+    let read = |path: &Path| std::fs::read_to_string(path).unwrap();
+    insta::assert_snapshot!("descaling_report_md", read(&out.join("report.md")));
+    for file in ["roc.svg", "calibration.svg"] {
+        let name = format!("descaling_figure_{}", file.trim_end_matches(".svg"));
+        insta::assert_snapshot!(name, read(&out.join("figures").join(file)));
+    }
+}
