@@ -7,6 +7,7 @@
 //! the uncertainty somewhat; the report says so.
 
 use crate::error::FitError;
+use crate::metrics::Scorer;
 use crate::spec::{Metric, Rule};
 
 /// Scores of one candidate setting.
@@ -44,7 +45,7 @@ impl SettingScore {
 /// `fold_predictions` (per fold, per setting: predictions at the fold's
 /// validation rows) and `fold_targets` (per fold: the observed values there).
 pub(crate) fn fold_scores(
-    metric: Metric,
+    scorer: Scorer,
     fold_predictions: &[Vec<Vec<f64>>],
     fold_targets: &[Vec<f64>],
     setting: usize,
@@ -52,7 +53,7 @@ pub(crate) fn fold_scores(
     fold_predictions
         .iter()
         .zip(fold_targets)
-        .map(|(grid, observed)| metric.score(observed, &grid[setting]))
+        .map(|(grid, observed)| scorer.score(observed, &grid[setting]))
         .collect()
 }
 

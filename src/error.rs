@@ -52,6 +52,14 @@ pub(crate) enum DataError {
     },
     #[error("{path}: {message}")]
     Table { path: PathBuf, message: String },
+    /// A spec key whose value the data contradicts (`[data] positive` not
+    /// among the labels, a regression metric for an inferred class target).
+    #[error("{path}: {key}: {message}")]
+    SpecKey {
+        path: PathBuf,
+        key: String,
+        message: String,
+    },
     #[error("{path}: line {line}, column \"{column}\": {message}")]
     Cell {
         path: PathBuf,
@@ -151,6 +159,18 @@ pub enum FitError {
         feature: String,
         distinct: usize,
     },
+    #[error(
+        "{setting}: the classes are separated (perfectly or nearly) by the features, so the \
+         maximum-likelihood fit has no finite solution (fitted probabilities reach 0 or 1); give \
+         a `penalty` grid, or use fewer features or a lower degree"
+    )]
+    Separation { setting: String },
+    #[error(
+        "{setting}: the covariance of class number {class} (in sorted label order) is singular \
+         on the training rows (too few rows of that class for the features, or a feature \
+         constant within it); use shape = \"linear\", or fewer features"
+    )]
+    SingularCovariance { setting: String, class: usize },
     #[error("{setting}: the smoothing spline could not be fitted: {detail}")]
     SmootherBreakdown { setting: String, detail: String },
 }

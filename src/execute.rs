@@ -239,14 +239,21 @@ fn run_task(
     }
     let data = task_data(plan, task);
     let candidate = &plan.candidates[task.candidate];
+    let classes = plan.task.class_count();
     let fitted = if task.rows == TaskRows::LeaveOneOut {
-        leave_one_out(candidate.family.as_ref(), &data.x_train, &data.y_train)
+        leave_one_out(
+            candidate.family.as_ref(),
+            &data.x_train,
+            &data.y_train,
+            classes,
+        )
     } else {
-        candidate.family.fit_path(
+        candidate.family.fit_classes(
             &data.x_train,
             &data.y_train,
             &data.x_eval,
             task.rows == TaskRows::Full && plan.full_fit.final_fit,
+            classes,
         )
     };
     let mut fits = fitted.map_err(|cause| FitFailure {
@@ -263,8 +270,9 @@ fn run_task(
     } else if plan.full_fit.training_as_evaluation {
         // The rows after the test rows are the training rows.
         let tests = plan.assignment.test.len();
+        let width = plan.task.prediction_width();
         for fit in &mut fits {
-            fit.train_pred = fit.eval_pred.split_off(tests);
+            fit.train_pred = fit.eval_pred.split_off(tests * width);
         }
     }
     if let (Some(cache), Some(key)) = (policy.write, key) {
@@ -293,9 +301,11 @@ fn fits_match_task(plan: &ExperimentPlan, task: Task, fits: &[SettingFit]) -> bo
         }
         TaskRows::Full => (a.test.len(), None),
     };
+    let width = plan.task.prediction_width();
     fits.len() == plan.candidates[task.candidate].settings.len()
         && fits.iter().all(|fit| {
-            fit.eval_pred.len() == eval && train.is_none_or(|rows| fit.train_pred.len() == rows)
+            fit.eval_pred.len() == eval * width
+                && train.is_none_or(|rows| fit.train_pred.len() == rows * width)
         })
 }
 
@@ -303,35 +313,49 @@ fn fits_match_task(plan: &ExperimentPlan, task: Task, fits: &[SettingFit]) -> bo
 /// `SettingFit`s whose `eval_pred` holds them in row order: the family's
 /// shortcut when it has one (hat diagonal, neighbour exclusion), otherwise
 /// one refit per left-out row (in parallel, gathered in order). Shared by
-/// table specs and simulation replicates.
+/// table specs and simulation replicates. A class target (`classes` > 0) is
+/// always refitted, and each row's prediction is its `classes + 1` numbers.
 pub(crate) fn leave_one_out(
     family: &dyn Family,
     x_train: &DMatrix<f64>,
     y_train: &[f64],
+    classes: usize,
 ) -> Result<Vec<SettingFit>, FitError> {
-    let predictions = match family.leave_one_out(x_train, y_train) {
+    let width = if classes > 0 { classes + 1 } else { 1 };
+    let shortcut = if classes > 0 {
+        None
+    } else {
+        family.leave_one_out(x_train, y_train)
+    };
+    let predictions = match shortcut {
         Some(shortcut) => shortcut?,
         None => {
             let n = y_train.len();
-            let per_row: Vec<Vec<f64>> = (0..n)
+            let per_row: Vec<Vec<Vec<f64>>> = (0..n)
                 .into_par_iter()
                 .map(|i| {
                     let keep: Vec<usize> = (0..n).filter(|&r| r != i).collect();
                     let x_rest = x_train.select_rows(&keep);
                     let y_rest: Vec<f64> = keep.iter().map(|&r| y_train[r]).collect();
-                    let fits = family.fit_path(
+                    let fits = family.fit_classes(
                         &x_rest,
                         &y_rest,
                         &x_train.rows(i, 1).into_owned(),
                         false,
+                        classes,
                     )?;
-                    Ok(fits.into_iter().map(|f| f.eval_pred[0]).collect())
+                    Ok(fits.into_iter().map(|f| f.eval_pred).collect())
                 })
-                .collect::<Vec<Result<Vec<f64>, FitError>>>()
+                .collect::<Vec<Result<Vec<Vec<f64>>, FitError>>>()
                 .into_iter()
                 .collect::<Result<_, _>>()?;
             (0..family.settings().len())
-                .map(|s| per_row.iter().map(|row| row[s]).collect())
+                .map(|s| {
+                    per_row
+                        .iter()
+                        .flat_map(|row| row[s][..width].iter().copied())
+                        .collect()
+                })
                 .collect()
         }
     };
@@ -419,11 +443,12 @@ pub(crate) fn run(
                 .push(outcome.fits.into_iter().map(|fit| fit.eval_pred).collect()),
             TaskRows::LeaveOneOut => {
                 // Fold i of a single-row split validates on non-test row i.
+                let width = plan.task.prediction_width();
                 for row in 0..plan.assignment.folds.len() {
                     let grid = outcome
                         .fits
                         .iter()
-                        .map(|fit| vec![fit.eval_pred[row]])
+                        .map(|fit| fit.eval_pred[row * width..(row + 1) * width].to_vec())
                         .collect();
                     target.fold_predictions.push(grid);
                 }

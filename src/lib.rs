@@ -9,6 +9,7 @@
 
 pub(crate) mod assess;
 pub(crate) mod cache;
+pub(crate) mod classes;
 pub mod cli;
 pub mod commands;
 pub(crate) mod data;

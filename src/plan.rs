@@ -7,10 +7,12 @@ use std::sync::Arc;
 
 use nalgebra::DMatrix;
 
+use crate::classes::{self, TaskInfo};
 use crate::data::{self, Table, TableRequest};
 use crate::error::DataError;
+use crate::metrics::Scorer;
 use crate::models::{Family, Setting};
-use crate::spec::{FamilySpec, LoadedSpec, SplitMethod, DEFAULT_FOLDS};
+use crate::spec::{FamilySpec, LoadedSpec, Metric, SplitMethod, Task, DEFAULT_FOLDS};
 use crate::split::{self, Assignment, FoldScheme, Identities};
 
 /// One candidate of the spec, ready to fit.
@@ -55,7 +57,12 @@ impl CandidatePlan {
 pub(crate) struct ExperimentPlan {
     pub(crate) spec: LoadedSpec,
     pub(crate) table: Table,
+    /// The target: numbers, or each row's class index for a class target.
     pub(crate) target: Vec<f64>,
+    /// Regression or classification, how that was decided, and the classes.
+    pub(crate) task: TaskInfo,
+    /// The metric the spec names, or the task's default.
+    pub(crate) metric: Metric,
     pub(crate) assignment: Assignment,
     pub(crate) candidates: Vec<CandidatePlan>,
     /// Digest of every numeric column read (for cache keys).
@@ -102,6 +109,28 @@ impl ExperimentPlan {
     pub(crate) fn target_of(&self, rows: &[usize]) -> Vec<f64> {
         rows.iter().map(|&r| self.target[r]).collect()
     }
+
+    /// How this plan's predictions are scored.
+    pub(crate) fn scorer(&self) -> Scorer {
+        Scorer {
+            metric: self.metric,
+            classes: self
+                .task
+                .classes
+                .as_ref()
+                .map(|c| (c.labels.len(), c.positive)),
+        }
+    }
+}
+
+/// The metric used when `[choose] metric` is absent: mean squared error for
+/// a numeric target, log-loss (a proper scoring rule that rewards honest
+/// probabilities, not only the right side of a threshold) for classes.
+pub(crate) fn default_metric(task: Task) -> Metric {
+    match task {
+        Task::Regression => Metric::Mse,
+        Task::Classification => Metric::LogLoss,
+    }
 }
 
 /// Loads the data and resolves the spec into a plan.
@@ -117,8 +146,14 @@ pub(crate) fn resolve_reporting(
 ) -> Result<ExperimentPlan, DataError> {
     let data_spec = spec.data().clone();
     let split_spec = spec.spec.split.clone();
+    let declared = data_spec.task;
+    let labels_as_text = declared == Some(Task::Classification);
 
-    let mut numeric = vec![data_spec.target.clone()];
+    let mut numeric = if labels_as_text {
+        Vec::new()
+    } else {
+        vec![data_spec.target.clone()]
+    };
     for candidate in &spec.families {
         for f in &candidate.features {
             if !numeric.contains(f) {
@@ -131,7 +166,11 @@ pub(crate) fn resolve_reporting(
             numeric.push(f.clone());
         }
     }
-    let mut text = Vec::new();
+    let mut text = if labels_as_text {
+        vec![data_spec.target.clone()]
+    } else {
+        Vec::new()
+    };
     for name in [
         &data_spec.key,
         &data_spec.group,
@@ -151,13 +190,53 @@ pub(crate) fn resolve_reporting(
         missing: data_spec.missing,
     };
     let resolved = data_path(&spec)?;
-    let table = data::load(&resolved, &resolved, &request, on_read)?;
-    let target = table.column(&data_spec.target).to_vec();
-
+    let target_name = &data_spec.target;
+    let table = match data::load(&resolved, &resolved, &request, on_read) {
+        // Text labels in a target of undeclared task: read it again as text.
+        Err(DataError::Cell {
+            column, message, ..
+        }) if declared.is_none()
+            && &column == target_name
+            && message.starts_with("cannot read") =>
+        {
+            let mut as_text = request.clone();
+            as_text.numeric.retain(|name| name != target_name);
+            as_text.text.push(target_name.clone());
+            data::load(&resolved, &resolved, &as_text, &|_, _| {})?
+        }
+        other => other?,
+    };
+    let spec_error = |key: &str, message: String| DataError::SpecKey {
+        path: spec.path.clone(),
+        key: key.to_string(),
+        message,
+    };
     let table_error = |message: String| DataError::Table {
         path: table.path.clone(),
         message,
     };
+    // A named metric declares the kind of target it scores.
+    let named = spec.spec.choose.metric;
+    let (task, target) = read_target(
+        &table,
+        target_name,
+        declared,
+        named,
+        data_spec.positive.as_deref(),
+    )
+    .map_err(|(key, message)| match key {
+        Some(key) => spec_error(key, message),
+        None => table_error(format!("target \"{target_name}\": {message}")),
+    })?;
+    if task.inferred.is_some() {
+        crate::spec::check_task(&spec.spec, &spec.families, task.task)
+            .map_err(|(key, message)| spec_error(&key, message))?;
+    }
+    let metric = spec
+        .spec
+        .choose
+        .metric
+        .unwrap_or_else(|| default_metric(task.task));
 
     // Units for splitting: groups when declared, otherwise rows.
     let mut group_labels: Vec<String> = Vec::new();
@@ -215,16 +294,21 @@ pub(crate) fn resolve_reporting(
                 .to_vec(),
         },
     };
-    let assignment = split::assign(
+    // A class target is stratified by class when rows are split one by one
+    // (with groups, whole groups move and their classes are mixed).
+    let strata: Option<Vec<usize>> = (task.classes.is_some() && data_spec.group.is_none())
+        .then(|| target.iter().map(|&c| c as usize).collect());
+    let assignment = split::assign_stratified(
         spec.spec.experiment.seed,
         split_spec.holdout,
         &scheme,
         identities,
         &unit_of_row,
+        strata.as_deref(),
     )
     .map_err(|e| table_error(e.to_string()))?;
 
-    if spec.spec.choose.metric == crate::spec::Metric::R2 {
+    if metric == Metric::R2 {
         if let Some(fold) = assignment.folds.iter().find(|f| f.valid.len() < 2) {
             return Err(table_error(format!(
                 "fold {} validates on {} row(s); R² needs at least 2 per fold \
@@ -255,16 +339,28 @@ pub(crate) fn resolve_reporting(
         }
     }
 
-    let column_digests = table
+    let mut column_digests: std::collections::BTreeMap<String, [u8; 32]> = table
         .numeric
         .iter()
         .map(|(name, values)| (name.clone(), crate::digests::digest_values(values)))
         .collect();
+    if let Some(classes) = &task.classes {
+        // Class indices, marked as classes and with the class count, so a fit
+        // of a 0/1 column as classes never shares a cache entry with its fit
+        // as numbers.
+        let mut hasher = blake3::Hasher::new();
+        hasher.update(b"classes");
+        hasher.update(&(classes.labels.len() as u64).to_le_bytes());
+        hasher.update(&crate::digests::digest_values(&target));
+        column_digests.insert(target_name.clone(), *hasher.finalize().as_bytes());
+    }
     Ok(ExperimentPlan {
         column_digests,
         spec,
         table,
         target,
+        task,
+        metric,
         assignment,
         candidates,
         full_fit: FullFit::FINAL,
@@ -272,7 +368,62 @@ pub(crate) fn resolve_reporting(
     })
 }
 
-/// `path` resolved against the spec's folder when relative.
+/// The task and the target column as the plan uses it (numbers, or class
+/// indices), from the table and `[data] task` and `positive`. Errors carry
+/// the spec key they concern, if any.
+fn read_target(
+    table: &Table,
+    name: &str,
+    declared: Option<Task>,
+    metric: Option<Metric>,
+    positive: Option<&str>,
+) -> Result<(TaskInfo, Vec<f64>), classes::TargetProblem> {
+    let (labels, inferred) = if table.text.contains_key(name) {
+        let labels = table.text_column(name).to_vec();
+        let inferred = declared.is_none().then(|| {
+            let at = labels.iter().position(|l| l.parse::<f64>().is_err());
+            match at {
+                Some(i) => format!(
+                    "the target holds text labels (\"{}\" on line {} is not a number)",
+                    labels[i], table.lines[i]
+                ),
+                None => "the target holds text labels".to_string(),
+            }
+        });
+        (labels, inferred)
+    } else {
+        let values = table.column(name).to_vec();
+        if declared.is_some() {
+            return Ok((TaskInfo::regression(None), values));
+        }
+        match (classes::infer_from_numbers(&values), metric) {
+            ((Task::Classification, why), Some(metric)) if !metric.for_classes() => {
+                let mut task = TaskInfo::regression(Some(format!(
+                    "[choose] metric \"{}\" scores numbers (without it, {why})",
+                    metric.name()
+                )));
+                task.noteworthy = true;
+                return Ok((task, values));
+            }
+            ((Task::Regression, why), _) => return Ok((TaskInfo::regression(Some(why)), values)),
+            ((Task::Classification, why), _) => (
+                values.iter().map(|&v| classes::number_label(v)).collect(),
+                Some(why),
+            ),
+        }
+    };
+    let (classes, encoded) = classes::encode(&labels, positive)?;
+    Ok((
+        TaskInfo {
+            task: Task::Classification,
+            noteworthy: inferred.is_some(),
+            inferred,
+            classes: Some(classes),
+        },
+        encoded,
+    ))
+}
+
 /// The `[data] table` of `spec`, resolved against the spec's folder and
 /// confined to the spec's repository unless `spec.allow_outside`: a spec
 /// that arrives in a pull request must not make CI read the runner's files.
@@ -325,6 +476,7 @@ fn repository_of(spec_path: &Path) -> Option<PathBuf> {
     }
 }
 
+/// `path` resolved against the spec's folder when relative.
 pub(crate) fn resolve_relative(base: &Path, path: &Path) -> PathBuf {
     if path.is_absolute() {
         path.to_path_buf()

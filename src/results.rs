@@ -13,6 +13,11 @@ use crate::execute::CandidateFits;
 use crate::plan::ExperimentPlan;
 use crate::spec::{Metric, Rule, SplitMethod};
 
+mod classification;
+pub use classification::{
+    AbsentClasses, CalibrationBin, Classification, TestEvidence, CALIBRATION_BINS,
+};
+
 pub const SCHEMA: &str = "heldout-results/1";
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -33,6 +38,10 @@ pub struct Results {
     pub test_score: Option<f64>,
     #[serde(rename = "final")]
     pub final_fit: FinalFit,
+    /// Class targets only: classes, folds lacking a class, and the kept
+    /// setting's confusion matrix, ROC curve and calibration on the test set.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub classification: Option<Classification>,
     /// Simulation specs only: `simulation` (the bias–variance decomposition
     /// of every setting) and `simulation_summary` (setup, oracle and
     /// cross-validation's choices), flattened into the top level.
@@ -226,7 +235,8 @@ pub(crate) fn assemble(
 ) -> Result<Results, crate::error::FitError> {
     let spec = &plan.spec.spec;
     let data = plan.spec.data();
-    let metric = spec.choose.metric;
+    let metric = plan.metric;
+    let scorer = plan.scorer();
     let assignment = &plan.assignment;
     let train_target = plan.target_of(&assignment.train);
     let test_target = plan.target_of(&assignment.test);
@@ -245,8 +255,8 @@ pub(crate) fn assemble(
             let score = SettingScore::new(
                 candidate.id(setting),
                 full.effective_df,
-                metric.score(&train_target, &full.train_pred),
-                assess::fold_scores(metric, &fit.fold_predictions, &fold_targets, s),
+                scorer.score(&train_target, &full.train_pred),
+                assess::fold_scores(scorer, &fit.fold_predictions, &fold_targets, s),
             );
             let mut setting_map = serde_json::Map::new();
             if let Some((name, value)) = setting.param {
@@ -287,14 +297,48 @@ pub(crate) fn assemble(
         [one] => Some(one.as_str()),
         _ => None,
     };
+    // A class target's predictions, one number per row: the positive
+    // class's probability (two classes) or the predicted class.
+    let per_row = |predicted: &[f64]| -> Vec<f64> {
+        match &plan.task.classes {
+            None => predicted.to_vec(),
+            Some(classes) => {
+                let layout = crate::metrics::ClassPrediction {
+                    classes: classes.labels.len(),
+                };
+                (0..predicted.len() / layout.width())
+                    .map(|i| match classes.labels.len() {
+                        2 => layout.probabilities(predicted, i)[classes.positive],
+                        _ => layout.class(predicted, i) as f64,
+                    })
+                    .collect()
+            }
+        }
+    };
     let predictions = Predictions {
         feature: feature.map(str::to_string),
-        train: prediction_set(plan, feature, &assignment.train, &chosen_fit.train_pred),
-        test: (!assignment.test.is_empty())
-            .then(|| prediction_set(plan, feature, &assignment.test, &chosen_fit.eval_pred)),
+        train: prediction_set(
+            plan,
+            feature,
+            &assignment.train,
+            &per_row(&chosen_fit.train_pred),
+        ),
+        test: (!assignment.test.is_empty()).then(|| {
+            prediction_set(
+                plan,
+                feature,
+                &assignment.test,
+                &per_row(&chosen_fit.eval_pred),
+            )
+        }),
     };
+    let classification = plan
+        .task
+        .classes
+        .as_ref()
+        .map(|classes| classification::summarise(plan, classes, &chosen_fit.eval_pred));
     let test_score =
-        (!assignment.test.is_empty()).then(|| metric.score(&test_target, &chosen_fit.eval_pred));
+        (!assignment.test.is_empty()).then(|| scorer.score(&test_target, &chosen_fit.eval_pred));
 
     let fold_sizes = assignment.folds.iter().map(|f| f.valid.len());
     let fold_rows = [
@@ -353,6 +397,7 @@ pub(crate) fn assemble(
             coefficients: chosen_fit.coefficients.clone(),
             predictions,
         },
+        classification,
         candidates,
         simulation: None,
     })
@@ -362,6 +407,7 @@ fn setting_value_json(value: crate::models::SettingValue) -> serde_json::Value {
     match value {
         crate::models::SettingValue::Count(n) => serde_json::Value::from(n),
         crate::models::SettingValue::Real(v) => serde_json::Value::from(v),
+        crate::models::SettingValue::Word(w) => serde_json::Value::from(w),
     }
 }
 

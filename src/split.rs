@@ -258,6 +258,24 @@ pub(crate) fn assign(
     identities: Identities<'_>,
     unit_of_row: &[usize],
 ) -> Result<Assignment, SplitError> {
+    assign_stratified(seed, holdout, scheme, identities, unit_of_row, None)
+}
+
+/// [`assign`], stratified when `strata` gives each unit's stratum (its class,
+/// 0-based): the test set takes from each stratum its share of the test rows
+/// (largest remainders), and k-fold deals each stratum's units round-robin in
+/// turn, so every fold holds each stratum's units within one of the exact
+/// proportion (docs/splits.md, "Stratified splits"). Ordered splits ignore
+/// strata.
+pub(crate) fn assign_stratified(
+    seed: u64,
+    holdout: f64,
+    scheme: &FoldScheme,
+    identities: Identities<'_>,
+    unit_of_row: &[usize],
+    strata: Option<&[usize]>,
+) -> Result<Assignment, SplitError> {
+    let strata = strata.filter(|_| !matches!(scheme, FoldScheme::Ordered { .. }));
     let rows = unit_of_row.len();
     // Per unit, its row count and first row: all the split needs to know of
     // a unit's rows (a list per unit would cost an allocation per row).
@@ -306,7 +324,12 @@ pub(crate) fn assign(
             }
         }
         _ => {
-            for unit in shuffled(&purpose_key(seed, "holdout"), identities, &all_units) {
+            let order = shuffled(&purpose_key(seed, "holdout"), identities, &all_units);
+            let order = match strata {
+                Some(strata) => stratified_holdout(&order, strata, &rows_in_unit, holdout),
+                None => order,
+            };
+            for unit in order {
                 if !take(&[unit]) {
                     break;
                 }
@@ -343,10 +366,13 @@ pub(crate) fn assign(
             for repeat in 0..*repeats {
                 let key = purpose_key(seed, &format!("kfold/repeat={}", repeat + 1));
                 let mut fold_of_unit = vec![usize::MAX; identities.len()];
-                for (position, unit) in shuffled(&key, identities, &train_units)
-                    .into_iter()
-                    .enumerate()
-                {
+                let mut order = shuffled(&key, identities, &train_units);
+                if let Some(strata) = strata {
+                    // Each stratum's units in their shuffled order, strata in
+                    // class order; the deal continues from one to the next.
+                    order.sort_by_key(|&unit| strata[unit]);
+                }
+                for (position, unit) in order.into_iter().enumerate() {
                     fold_of_unit[unit] = position % k;
                 }
                 folds.extend(deal(repeat, *k, &train, |r| fold_of_unit[unit_of_row[r]]));
@@ -400,6 +426,46 @@ pub(crate) fn assign(
         repeats,
         single_row_folds,
     })
+}
+
+/// The units of a stratified test set, in `order` (the holdout's shuffled
+/// order): stratum c contributes its first t_c units, where the t_c share
+/// out round(holdout × rows) in proportion to the strata's sizes by largest
+/// remainders (ties to the earlier stratum). Units are single rows here.
+fn stratified_holdout(
+    order: &[usize],
+    strata: &[usize],
+    rows_in_unit: &[usize],
+    holdout: f64,
+) -> Vec<usize> {
+    let units: Vec<usize> = order
+        .iter()
+        .copied()
+        .filter(|&u| rows_in_unit[u] > 0)
+        .collect();
+    let n = units.len();
+    let wanted = (holdout * n as f64).round() as usize;
+    let count = strata.iter().copied().max().map_or(0, |m| m + 1);
+    let mut sizes = vec![0usize; count];
+    for &u in &units {
+        sizes[strata[u]] += 1;
+    }
+    let mut take: Vec<usize> = sizes.iter().map(|&size| wanted * size / n).collect();
+    let mut by_remainder: Vec<usize> = (0..count).collect();
+    by_remainder.sort_by_key(|&c| (std::cmp::Reverse(wanted * sizes[c] % n), c));
+    let short = wanted - take.iter().sum::<usize>();
+    for &c in by_remainder.iter().take(short) {
+        take[c] += 1;
+    }
+    let mut taken = vec![0usize; count];
+    units
+        .into_iter()
+        .filter(|&u| {
+            let c = strata[u];
+            taken[c] += 1;
+            taken[c] <= take[c]
+        })
+        .collect()
 }
 
 /// The rank of every row's time point among the distinct values of `time`:
@@ -512,7 +578,7 @@ fn make_fold(
 
 /// Distinct fold labels in order: numerically when every label is a number,
 /// as text otherwise.
-fn ordered_labels<'a>(labels: impl Iterator<Item = &'a str>) -> Vec<String> {
+pub(crate) fn ordered_labels<'a>(labels: impl Iterator<Item = &'a str>) -> Vec<String> {
     let distinct: BTreeMap<&str, ()> = labels.map(|l| (l, ())).collect();
     let mut labels: Vec<&str> = distinct.into_keys().collect();
     let numbers: Option<Vec<f64>> = labels.iter().map(|l| l.parse::<f64>().ok()).collect();
@@ -758,6 +824,118 @@ mod tests {
                 folds: 3,
                 empty: 2
             }
+        );
+    }
+}
+
+#[cfg(test)]
+mod stratified_tests {
+    use super::*;
+
+    /// `n` rows (identities "1".."n") with classes drawn by a fixed rule
+    /// that leaves the classes unbalanced.
+    fn rows_with_classes(n: usize, classes: usize, salt: usize) -> (Vec<String>, Vec<usize>) {
+        let ids = (1..=n).map(|i| i.to_string()).collect();
+        let class = (0..n)
+            .map(|i| ((i * 7919 + salt * 31) % 97) % (classes + 1) % classes)
+            .collect();
+        (ids, class)
+    }
+
+    fn count(rows: &[usize], class: &[usize], c: usize) -> usize {
+        rows.iter().filter(|&&r| class[r] == c).count()
+    }
+
+    #[test]
+    fn every_fold_holds_each_class_within_one_of_its_exact_share() {
+        // Property over many seeds, sizes and class counts: in every repeat,
+        // fold f validates on n_c / k rows of class c, give or take less than
+        // one; the test set takes round(holdout · n) rows, each class's share
+        // within one.
+        for seed in 0..200u64 {
+            let n = 40 + (seed as usize * 13) % 160;
+            let classes = 2 + (seed as usize) % 4;
+            let k = 2 + (seed as usize) % 9;
+            let (ids, class) = rows_with_classes(n, classes, seed as usize);
+            let units: Vec<usize> = (0..n).collect();
+            let scheme = FoldScheme::Kfold {
+                folds: k,
+                repeats: 2,
+            };
+            let holdout = 0.2;
+            let a = assign_stratified(
+                seed,
+                holdout,
+                &scheme,
+                Identities::Text(&ids),
+                &units,
+                Some(&class),
+            )
+            .unwrap();
+            assert_eq!(a.test.len(), (holdout * n as f64).round() as usize);
+            for c in 0..classes {
+                let exact = holdout * count(&(0..n).collect::<Vec<_>>(), &class, c) as f64;
+                let got = count(&a.test, &class, c) as f64;
+                assert!(
+                    (got - exact).abs() < 1.0,
+                    "seed {seed}: test set, class {c}"
+                );
+                let in_train = count(&a.train, &class, c) as f64;
+                for fold in &a.folds {
+                    let got = count(&fold.valid, &class, c) as f64;
+                    assert!(
+                        (got - in_train / k as f64).abs() < 1.0,
+                        "seed {seed}, repeat {}, fold {}: class {c} has {got} of {in_train}",
+                        fold.repeat,
+                        fold.label
+                    );
+                }
+            }
+            // Still a partition of the non-test rows in every repeat.
+            for repeat in 0..2 {
+                let mut all: Vec<usize> = a
+                    .folds
+                    .iter()
+                    .filter(|f| f.repeat == repeat)
+                    .flat_map(|f| f.valid.clone())
+                    .collect();
+                all.sort_unstable();
+                assert_eq!(all, a.train, "seed {seed}, repeat {repeat}");
+            }
+        }
+    }
+
+    #[test]
+    fn stratified_splits_are_deterministic_and_unstratified_ones_unchanged() {
+        let (ids, class) = rows_with_classes(90, 3, 1);
+        let units: Vec<usize> = (0..90).collect();
+        let scheme = FoldScheme::Kfold {
+            folds: 5,
+            repeats: 1,
+        };
+        let a = assign_stratified(
+            4,
+            0.2,
+            &scheme,
+            Identities::Text(&ids),
+            &units,
+            Some(&class),
+        )
+        .unwrap();
+        let b = assign_stratified(
+            4,
+            0.2,
+            &scheme,
+            Identities::Text(&ids),
+            &units,
+            Some(&class),
+        )
+        .unwrap();
+        assert_eq!(a, b);
+        // Without strata the assignment is the plain one.
+        assert_eq!(
+            assign_stratified(4, 0.2, &scheme, Identities::Text(&ids), &units, None).unwrap(),
+            assign(4, 0.2, &scheme, Identities::Text(&ids), &units).unwrap()
         );
     }
 }

@@ -25,7 +25,7 @@ pub(crate) fn cache(args: &CacheCommandArgs) -> anyhow::Result<()> {
     }
 
     let mut needed = BTreeSet::new();
-    for spec in &args.keep_only {
+    for spec in &super::without_their_receipts(&args.keep_only) {
         let keys = needed_by(spec, args)?;
         println!("{}: needs {} fits", spec.display(), keys.len());
         needed.extend(keys);

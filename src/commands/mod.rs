@@ -55,6 +55,8 @@ fn for_each_spec(
     specs: &[PathBuf],
     mut one: impl FnMut(&Path) -> anyhow::Result<()>,
 ) -> anyhow::Result<()> {
+    let specs = without_their_receipts(specs);
+    let specs = specs.as_slice();
     if let [only] = specs {
         return one(only);
     }
@@ -75,6 +77,22 @@ fn for_each_spec(
         None => Ok(()),
         Some(failed) => Err(failed.into()),
     }
+}
+
+/// `paths` without the receipts of specs among them: a glob such as
+/// `specs/*.toml` matches `x.receipt.toml` beside `x.toml`, and a receipt is
+/// never a spec. A receipt given without its spec stays, so that its error
+/// says what it is.
+pub(super) fn without_their_receipts(paths: &[PathBuf]) -> Vec<PathBuf> {
+    paths
+        .iter()
+        .filter(|path| {
+            !paths
+                .iter()
+                .any(|spec| receipt::path_for(spec) == **path && spec != *path)
+        })
+        .cloned()
+        .collect()
 }
 
 /// The error's text, led by the spec's path unless it already names it

@@ -48,6 +48,14 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     )?
     .map_err(|_| anyhow::anyhow!("predict never shards"))?;
     let plan = &evaluation.plan;
+    if plan.task.task == crate::spec::Task::Classification {
+        return Err(UsageError(format!(
+            "{}: the target holds classes; `heldout predict` writes numeric predictions only \
+             so far (class probabilities are not written yet)",
+            args.spec.display()
+        ))
+        .into());
+    }
     let chosen = &evaluation.results.chosen;
     let (candidate, setting) = locate(plan, chosen)
         .ok_or_else(|| anyhow::anyhow!("the kept setting {chosen} is not among the candidates"))?;

@@ -112,6 +112,13 @@ fn run_one(
         if dropped > 0 {
             eprintln!("note: dropped {dropped} rows with empty cells (missing = \"drop-rows\")");
         }
+        let task = &evaluation.plan.task;
+        if let Some(why) = task.inferred.as_ref().filter(|_| task.noteworthy) {
+            eprintln!(
+                "note: task inferred as {}: {why}; set `task` in [data] to decide it",
+                evaluation.plan.task.task.name()
+            );
+        }
         eprintln!(
             "fits: {} computed, {} reused from the cache",
             evaluation.summary.computed, evaluation.summary.reused

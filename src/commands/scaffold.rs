@@ -146,7 +146,8 @@ fn profile(table: &Path) -> Result<Vec<ColumnProfile>, DataError> {
     Ok(profiles)
 }
 
-/// The target's index: a column of the header holding numbers.
+/// The target's index: a column of numbers, or of class labels (text that
+/// repeats).
 fn find_target(profiles: &[ColumnProfile], target: &str, table: &Path) -> anyhow::Result<usize> {
     let names: Vec<&str> = profiles.iter().map(|p| p.name.as_str()).collect();
     let Some(index) = names.iter().position(|n| *n == target) else {
@@ -162,12 +163,13 @@ fn find_target(profiles: &[ColumnProfile], target: &str, table: &Path) -> anyhow
         }
         .into());
     };
-    if !profiles[index].numeric {
+    let column = &profiles[index];
+    if !column.numeric && column.distinct == column.values.len() {
         return Err(DataError::Table {
             path: table.to_path_buf(),
             message: format!(
-                "the target \"{target}\" holds text that is not a number; heldout predicts \
-                 numeric targets"
+                "the target \"{target}\" holds a different text on every row: it names rows \
+                 rather than classes, so there is nothing to learn to predict"
             ),
         }
         .into());
@@ -278,6 +280,18 @@ fn propose(
     table: String,
 ) -> anyhow::Result<Scaffold> {
     let target_profile = &profiles[target];
+    // Text labels, or whole numbers with few distinct values: a class target
+    // (the inference of docs/spec.md, "Task and classes").
+    let classification = !target_profile.numeric
+        || crate::classes::whole_number_levels(
+            &target_profile
+                .values
+                .iter()
+                .copied()
+                .filter(|v| v.is_finite())
+                .collect::<Vec<_>>(),
+        )
+        .is_some_and(|levels| levels <= crate::classes::INFER_MAX_CLASSES);
     let key = profiles
         .iter()
         .enumerate()
@@ -377,6 +391,7 @@ fn propose(
         spline_dfs,
         neighbours_k,
         ridge: features.len() >= 2,
+        classification,
     })
 }
 

@@ -7,6 +7,9 @@
 //! tests, then its `mod` line and one entry in `FAMILIES` below. Nothing
 //! else names a family (see `docs/architecture.md`, "The family registry").
 
+#[cfg(test)]
+mod classification_reference;
+pub(crate) mod discriminant;
 mod double_double;
 #[cfg(test)]
 mod effective_df_tests;
@@ -14,7 +17,9 @@ mod kd_tree;
 pub(crate) mod lasso;
 mod least_squares;
 pub(crate) mod linear;
+pub(crate) mod logistic;
 pub(crate) mod nearest_neighbors;
+mod neighbour_vote;
 #[cfg(test)]
 mod penalised_reference;
 pub(crate) mod polynomial;
@@ -48,6 +53,8 @@ pub(crate) static FAMILIES: &[&FamilyDef] = &[
     &thin_plate::FAMILY,
     &ridge::FAMILY,
     &lasso::FAMILY,
+    &logistic::FAMILY,
+    &discriminant::FAMILY,
 ];
 
 /// The value of a family's tuning parameter.
@@ -56,6 +63,8 @@ pub enum SettingValue {
     Count(usize),
     /// A real value (penalty, degrees of freedom), shown in shortest round-trip form.
     Real(f64),
+    /// A named variant (`shape=linear`).
+    Word(&'static str),
 }
 
 impl fmt::Display for SettingValue {
@@ -63,6 +72,7 @@ impl fmt::Display for SettingValue {
         match self {
             SettingValue::Count(n) => write!(f, "{n}"),
             SettingValue::Real(v) => write!(f, "{v}"),
+            SettingValue::Word(w) => write!(f, "{w}"),
         }
     }
 }
@@ -87,6 +97,12 @@ impl Setting {
     pub(crate) fn real(name: &'static str, value: f64) -> Self {
         Setting {
             param: Some((name, SettingValue::Real(value))),
+        }
+    }
+
+    pub(crate) fn word(name: &'static str, value: &'static str) -> Self {
+        Setting {
+            param: Some((name, SettingValue::Word(value))),
         }
     }
 }
@@ -122,12 +138,20 @@ pub struct SettingFit {
 /// (`final_fit`); cross-validation folds use only the evaluation predictions,
 /// so families may leave `train_pred` empty and `coefficients` unset when
 /// `final_fit` is false.
+///
+/// With a class target (`classes` > 0) `y_train` holds class indices
+/// 0..classes (a training fold may lack some of them) and every predicted row
+/// is `classes + 1` numbers: the probability of each class, then the
+/// predicted class (`metrics::ClassPrediction`). A class absent from the
+/// training rows gets probability 0.
 #[derive(Debug, Clone, Copy)]
 pub struct FitRequest<'a> {
     pub x_train: &'a DMatrix<f64>,
     pub y_train: &'a [f64],
     pub x_eval: &'a DMatrix<f64>,
     pub final_fit: bool,
+    /// The number of classes of a class target; 0 for a numeric target.
+    pub classes: usize,
 }
 
 impl<'a> FitRequest<'a> {
@@ -166,11 +190,24 @@ pub trait Family: Send + Sync + std::fmt::Debug {
         x_eval: &DMatrix<f64>,
         final_fit: bool,
     ) -> Result<Vec<SettingFit>, FitError> {
+        self.fit_classes(x_train, y_train, x_eval, final_fit, 0)
+    }
+
+    /// [`Family::fit_grid`] for a target of `classes` classes (0: numbers).
+    fn fit_classes(
+        &self,
+        x_train: &DMatrix<f64>,
+        y_train: &[f64],
+        x_eval: &DMatrix<f64>,
+        final_fit: bool,
+        classes: usize,
+    ) -> Result<Vec<SettingFit>, FitError> {
         self.fit_grid(&FitRequest {
             x_train,
             y_train,
             x_eval,
             final_fit,
+            classes,
         })
     }
 

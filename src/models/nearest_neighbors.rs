@@ -21,8 +21,11 @@
 use nalgebra::DMatrix;
 
 use super::kd_tree::{by_distance_then_row, squared_distance, KdTree};
-use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings};
-use super::{mean_and_sd, require_spread, Family, FitRequest, LeaveOneOut, Setting, SettingFit};
+use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets};
+use super::{
+    mean_and_sd, neighbour_vote, require_spread, Family, FitRequest, LeaveOneOut, Setting,
+    SettingFit,
+};
 use crate::error::FitError;
 
 /// The most features for which the search goes through a k-d tree; above
@@ -53,8 +56,12 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
     )],
     build,
 )
-.about("The mean target of the k nearest training rows (features standardised).")
-.grid("k = [1, 3, 5, 10, 20, 40]");
+.about(
+    "The mean target of the k nearest training rows (features standardised); with a class \
+     target, their majority vote.",
+)
+.grid("k = [1, 3, 5, 10, 20, 40]")
+.predicts(Targets::Both);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(NearestNeighbors {
@@ -167,6 +174,32 @@ impl Standardised {
         }
     }
 
+    /// The `k_max` nearest training rows of `query` (without row `skip`), in
+    /// `scratch`, ordered by (distance, row).
+    fn ordered_neighbours(
+        &self,
+        query: &[f64],
+        k_max: usize,
+        skip: Option<usize>,
+        scratch: &mut Vec<(f64, usize)>,
+    ) {
+        if let Some(tree) = &self.tree {
+            // Already the k_max nearest, nearest first.
+            tree.nearest(&self.points, query, k_max, skip, scratch);
+            return;
+        }
+        let wanted = k_max + usize::from(skip.is_some());
+        self.gather_candidates(query, wanted, scratch);
+        if let Some(skip) = skip {
+            scratch.retain(|&(_, row)| row != skip);
+        }
+        if k_max < scratch.len() {
+            scratch.select_nth_unstable_by(k_max - 1, by_distance_then_row);
+            scratch.truncate(k_max);
+        }
+        scratch.sort_unstable_by(by_distance_then_row);
+    }
+
     /// Prefix sums of the targets of the `k_max` nearest training rows of `query`.
     fn neighbour_prefix_sums(
         &self,
@@ -189,21 +222,7 @@ impl Standardised {
         skip: Option<usize>,
         scratch: &mut Vec<(f64, usize)>,
     ) -> Vec<f64> {
-        if let Some(tree) = &self.tree {
-            // Already the k_max nearest, nearest first.
-            tree.nearest(&self.points, query, k_max, skip, scratch);
-        } else {
-            let wanted = k_max + usize::from(skip.is_some());
-            self.gather_candidates(query, wanted, scratch);
-            if let Some(skip) = skip {
-                scratch.retain(|&(_, row)| row != skip);
-            }
-            if k_max < scratch.len() {
-                scratch.select_nth_unstable_by(k_max - 1, by_distance_then_row);
-                scratch.truncate(k_max);
-            }
-            scratch.sort_unstable_by(by_distance_then_row);
-        }
+        self.ordered_neighbours(query, k_max, skip, scratch);
         let mut sums = Vec::with_capacity(k_max + 1);
         sums.push(0.0);
         let mut total = 0.0;
@@ -277,6 +296,40 @@ impl Family for NearestNeighbors {
         let n = x_train.nrows();
         let k_max = self.k_max();
         let space = self.space(x_train, k_max)?;
+        if request.classes > 0 {
+            // A class target: the k nearest rows vote (neighbour_vote.rs).
+            let mut scratch = Vec::with_capacity(n);
+            let mut vote_all = |queries: &[f64]| -> Vec<Vec<f64>> {
+                let mut out = vec![Vec::new(); self.ks.len()];
+                for q in queries.chunks_exact(space.dims) {
+                    space.ordered_neighbours(q, k_max, None, &mut scratch);
+                    let classes: Vec<usize> = scratch
+                        .iter()
+                        .map(|&(_, row)| y_train[row] as usize)
+                        .collect();
+                    neighbour_vote::vote(&classes, &self.ks, request.classes, &mut out);
+                }
+                out
+            };
+            let mut train = if final_fit {
+                vote_all(&space.points)
+            } else {
+                vec![Vec::new(); self.ks.len()]
+            };
+            let eval = vote_all(&space.transform(x_eval));
+            return Ok(self
+                .ks
+                .iter()
+                .zip(eval)
+                .enumerate()
+                .map(|(s, (&k, eval_pred))| SettingFit {
+                    train_pred: std::mem::take(&mut train[s]),
+                    eval_pred,
+                    effective_df: n as f64 / k as f64,
+                    coefficients: None,
+                })
+                .collect());
+        }
         let mut scratch = Vec::with_capacity(n);
         let mut predict_all = |queries: &[f64]| -> Vec<Vec<f64>> {
             queries

@@ -53,6 +53,32 @@ pub(crate) struct FamilyDef {
     /// Checks the settings (already holding their defaults) and binds them to
     /// the candidate's features. The one place a family's values are judged.
     pub(crate) build: BuildFn,
+    /// The kinds of target the family predicts.
+    pub(crate) targets: Targets,
+}
+
+/// The kinds of target a family predicts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Targets {
+    /// Numbers only (regression).
+    Numbers,
+    /// Class labels only (classification).
+    Classes,
+    /// Either: the fit follows the target's task.
+    Both,
+}
+
+impl Targets {
+    /// Whether a family with these targets fits a `task` target.
+    pub(crate) fn fits(self, task: crate::spec::Task) -> bool {
+        use crate::spec::Task;
+        matches!(
+            (self, task),
+            (Targets::Both, _)
+                | (Targets::Numbers, Task::Regression)
+                | (Targets::Classes, Task::Classification)
+        )
+    }
 }
 
 /// How a family checks its settings and binds them to its features.
@@ -82,6 +108,8 @@ pub(crate) enum KeyKind {
     Counts,
     /// A list of numbers.
     Reals,
+    /// A list of words (names of variants, such as `shape`).
+    Words,
 }
 
 /// A scalar key's default (grids have none: a spec must list them). Plain
@@ -109,6 +137,7 @@ pub(crate) enum KeyValue {
     Count(usize),
     Counts(Vec<usize>),
     Reals(Vec<f64>),
+    Words(Vec<String>),
 }
 
 /// What is wrong with one key of a candidate: the key (relative to the
@@ -203,7 +232,13 @@ impl FamilyDef {
             version: 1,
             default_grid: "",
             build,
+            targets: Targets::Numbers,
         }
+    }
+
+    /// Predicting these kinds of target (default: numbers only).
+    pub(crate) const fn predicts(self, targets: Targets) -> Self {
+        FamilyDef { targets, ..self }
     }
 
     /// With its one line of help.
@@ -307,12 +342,21 @@ impl FamilyDef {
                 KeyValue::Count(count) => vec![*count as u64],
                 KeyValue::Counts(counts) => counts.iter().map(|&c| c as u64).collect(),
                 KeyValue::Reals(reals) => reals.iter().map(|r| r.to_bits()).collect(),
+                KeyValue::Words(words) => {
+                    // Each word as its length and bytes, then its count below.
+                    bytes.push(b'W');
+                    for word in words {
+                        text(&mut bytes, word);
+                    }
+                    vec![words.len() as u64]
+                }
             };
             bytes.push(match value {
                 KeyValue::Flag(_) => b'f',
                 KeyValue::Count(_) => b'c',
                 KeyValue::Counts(_) => b'C',
                 KeyValue::Reals(_) => b'R',
+                KeyValue::Words(_) => b'w',
             });
             bytes.extend_from_slice(&(numbers.len() as u64).to_le_bytes());
             for number in numbers {
@@ -379,6 +423,45 @@ impl Settings {
         };
         check_whole_grid(&values, min, max, key)?;
         Ok(values)
+    }
+
+    /// A required list of words, each one of `allowed`, without repeats.
+    pub(crate) fn word_grid(
+        &self,
+        key: &str,
+        allowed: &'static [&'static str],
+    ) -> Result<Vec<&'static str>, SettingProblem> {
+        let values = match self.get(key) {
+            Some(KeyValue::Words(values)) => values,
+            _ => return Err(self.needs(key)),
+        };
+        if values.is_empty() {
+            return Err(SettingProblem::new(key, "give at least one value".into()));
+        }
+        let mut out: Vec<&'static str> = Vec::with_capacity(values.len());
+        for value in values {
+            let Some(&word) = allowed.iter().find(|a| **a == value.as_str()) else {
+                return Err(SettingProblem::new(
+                    key,
+                    format!(
+                        "\"{value}\" is not one of {}",
+                        allowed
+                            .iter()
+                            .map(|a| format!("\"{a}\""))
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                ));
+            };
+            if out.contains(&word) {
+                return Err(SettingProblem::new(
+                    key,
+                    format!("\"{value}\" is listed twice"),
+                ));
+            }
+            out.push(word);
+        }
+        Ok(out)
     }
 
     /// A required grid of finite numbers ≥ `lowest`, without repeats.

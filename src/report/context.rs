@@ -162,7 +162,13 @@ pub(crate) fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Fig
         candidates => Value::from_serialize(&candidates),
         simulation_rows,
         choice_rows,
-        cautions => super::CAUTIONS.to_vec(),
+        cautions => {
+            let mut cautions = super::CAUTIONS.to_vec();
+            if results.classification.is_some() {
+                cautions.extend(super::CLASS_CAUTIONS);
+            }
+            cautions
+        },
     }
 }
 

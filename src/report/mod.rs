@@ -99,6 +99,17 @@ pub(crate) const CAUTIONS: [&str; 3] = [
      local rules and licensed practice.",
 ];
 
+/// The cautions a classifier's report adds to [`CAUTIONS`]
+/// (docs/reports.md, "Classification").
+pub(crate) const CLASS_CAUTIONS: [&str; 2] = [
+    "The predicted class here is the most probable one. Where to put a probability threshold \
+     for acting on a prediction is a policy decision that weighs the costs of false alarms \
+     against missed cases; it is not settled by this evidence.",
+    "Probabilities reflect the class balance of these rows. If the classes will be more or less \
+     common where the model is used, its probabilities, error rate and calibration there will \
+     differ from the ones reported here.",
+];
+
 /// Human words for a metric.
 pub(crate) fn metric_label(metric: Metric) -> &'static str {
     match metric {
@@ -106,6 +117,10 @@ pub(crate) fn metric_label(metric: Metric) -> &'static str {
         Metric::Rmse => "root mean squared error (rmse)",
         Metric::Mae => "mean absolute error (mae)",
         Metric::R2 => "coefficient of determination (r2)",
+        Metric::ErrorRate => "error rate (error-rate)",
+        Metric::LogLoss => "logarithmic loss (log-loss)",
+        Metric::Brier => "Brier score (brier)",
+        Metric::Auc => "area under the ROC curve (auc)",
     }
 }
 

@@ -109,6 +109,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
         chosen,
         choice,
         test_score: Some(1.0),
+        classification: None,
         simulation: None,
     }
 }

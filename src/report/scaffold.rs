@@ -60,6 +60,8 @@ pub(crate) struct Scaffold {
     pub(crate) neighbours_k: Vec<usize>,
     /// Ridge on every feature is proposed.
     pub(crate) ridge: bool,
+    /// The target holds class labels: class families and metric instead.
+    pub(crate) classification: bool,
 }
 
 /// The scaffold as commented TOML.
@@ -99,6 +101,7 @@ struct View<'a> {
     spline_dfs: Vec<String>,
     neighbours_k: &'a [usize],
     ridge: bool,
+    classification: bool,
 }
 
 impl<'a> View<'a> {
@@ -121,6 +124,7 @@ impl<'a> View<'a> {
             spline_dfs: s.spline_dfs.iter().map(f64::to_string).collect(),
             neighbours_k: &s.neighbours_k,
             ridge: s.ridge,
+            classification: s.classification,
         }
     }
 }
@@ -148,6 +152,7 @@ mod tests {
             spline_dfs: Vec::new(),
             neighbours_k: Vec::new(),
             ridge: false,
+            classification: false,
         }
     }
 

@@ -152,6 +152,8 @@ impl SimulationPlan {
             assignment,
             candidates: self.candidates.clone(),
             column_digests,
+            task: crate::classes::TaskInfo::regression(None),
+            metric: self.spec.spec.choose.metric.unwrap_or(Metric::Mse),
             full_fit: FullFit {
                 final_fit: replicate.index == 0,
                 training_as_evaluation: true,
@@ -198,7 +200,7 @@ pub(crate) fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
     };
     // The folds have the same sizes in every replicate; check them once.
     let first = plan.replicate(0)?;
-    if plan.spec.spec.choose.metric == Metric::R2 {
+    if plan.spec.spec.choose.metric == Some(Metric::R2) {
         if let Some(fold) = first.assignment.folds.iter().find(|f| f.valid.len() < 2) {
             return Err(plan.invalid(
                 "choose.metric",
@@ -241,7 +243,7 @@ pub(crate) fn run_replicate(
     let experiment = plan.replicate_plan(&replicate);
     let (fits, part) = execute::run_all(&experiment, policy, &|_| {})?;
     summary.absorb(part);
-    let metric = plan.spec.spec.choose.metric;
+    let metric = experiment.metric;
     let mut outcome = ReplicateOutcome {
         test_pred: Vec::new(),
         train_mse: Vec::new(),
@@ -265,7 +267,12 @@ pub(crate) fn run_replicate(
                 candidate.id(setting),
                 fit.effective_df,
                 metric.score(&replicate.y, &fit.train_pred),
-                assess::fold_scores(metric, &fitted.fold_predictions, &fold_targets, s),
+                assess::fold_scores(
+                    experiment.scorer(),
+                    &fitted.fold_predictions,
+                    &fold_targets,
+                    s,
+                ),
             );
             outcome.test_pred.push(fit.eval_pred.clone());
             outcome

@@ -20,7 +20,7 @@ use serde_json::{json, Map, Value};
 
 use super::checks::validate_feature_list;
 use super::parse::closest;
-use super::SpecFile;
+use super::{SpecFile, Task};
 use crate::error::SpecError;
 use crate::models::registry::{self, FamilyDef, KeyKind, KeyValue, SettingProblem, Settings};
 use crate::models::Family;
@@ -165,6 +165,7 @@ impl<'de> Deserialize<'de> for CandidateSpec {
                                 KeyKind::Count => KeyValue::Count(map.next_value()?),
                                 KeyKind::Counts => KeyValue::Counts(map.next_value()?),
                                 KeyKind::Reals => KeyValue::Reals(map.next_value()?),
+                                KeyKind::Words => KeyValue::Words(map.next_value()?),
                             };
                             settings.push((name, value));
                         }
@@ -192,6 +193,7 @@ impl Serialize for KeyValue {
             KeyValue::Count(count) => count.serialize(serializer),
             KeyValue::Counts(counts) => counts.serialize(serializer),
             KeyValue::Reals(reals) => reals.serialize(serializer),
+            KeyValue::Words(words) => words.serialize(serializer),
         }
     }
 }
@@ -256,6 +258,7 @@ impl schemars::JsonSchema for CandidateSpec {
                             json!({"type": "array", "items": {"type": "integer", "minimum": 0}})
                         }
                         KeyKind::Reals => json!({"type": "array", "items": {"type": "number"}}),
+                        KeyKind::Words => json!({"type": "array", "items": {"type": "string"}}),
                     };
                     schema["description"] = key.about.into();
                     if let Some(default) = &key.default {
@@ -263,8 +266,14 @@ impl schemars::JsonSchema for CandidateSpec {
                     }
                     properties.insert(key.name.into(), schema);
                 }
+                let tasks: Vec<&str> = [Task::Regression, Task::Classification]
+                    .into_iter()
+                    .filter(|&task| def.targets.fits(task))
+                    .map(Task::name)
+                    .collect();
                 let mut alternative = json!({
                     "title": def.name,
+                    "x-tasks": tasks,
                     "type": "object",
                     "properties": properties,
                     "required": ["family"],

@@ -3,7 +3,7 @@
 
 use std::collections::BTreeSet;
 
-use super::{limits, DataSpec, SplitMethod, SplitSpec};
+use super::{limits, DataSpec, FamilySpec, SpecFile, SplitMethod, SplitSpec, Task};
 use crate::error::SpecError;
 
 pub(super) fn validate_data(
@@ -142,6 +142,69 @@ pub(super) fn validate_split(
                     "only used with method = \"column\"".into(),
                 ));
             }
+        }
+    }
+    Ok(())
+}
+
+/// What a task demands of the rest of the spec: a metric of its kind (when
+/// one is named) and families that predict its kind of target, and
+/// `positive` only for classification. Used when `[data] task` is declared
+/// (before any data is read) and again once the data has decided an inferred
+/// task. Returns the offending key and the message.
+pub(crate) fn check_task(
+    spec: &SpecFile,
+    families: &[FamilySpec],
+    task: Task,
+) -> Result<(), (String, String)> {
+    let (kind, others, fix) = match task {
+        Task::Classification => (
+            "a class target",
+            "error-rate, log-loss, brier or auc",
+            "set `task = \"regression\"` in [data] if the labels are numbers to predict",
+        ),
+        Task::Regression => (
+            "a numeric target",
+            "mse, rmse, mae or r2",
+            "set `task = \"classification\"` in [data] if the target holds class labels",
+        ),
+    };
+    if let Some(metric) = spec.choose.metric {
+        if metric.for_classes() != (task == Task::Classification) {
+            return Err((
+                "choose.metric".into(),
+                format!(
+                    "\"{}\" does not score {kind} ({} task); use {others}, or {fix}",
+                    metric.name(),
+                    task.name()
+                ),
+            ));
+        }
+    }
+    for (index, family) in families.iter().enumerate() {
+        if !family.def.targets.fits(task) {
+            let takes: Vec<&str> = crate::models::FAMILIES
+                .iter()
+                .filter(|def| def.targets.fits(task))
+                .map(|def| def.name)
+                .collect();
+            return Err((
+                format!("candidate[{}] ({}).family", index + 1, family.def.name),
+                format!(
+                    "family \"{}\" does not predict {kind} ({} task); families that do: {}; or {fix}",
+                    family.def.name,
+                    task.name(),
+                    takes.join(", ")
+                ),
+            ));
+        }
+    }
+    if let (Task::Regression, Some(data)) = (task, &spec.data) {
+        if data.positive.is_some() {
+            return Err((
+                "data.positive".into(),
+                "names the positive class of a class target; a regression target has none".into(),
+            ));
         }
     }
     Ok(())

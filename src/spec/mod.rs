@@ -27,11 +27,12 @@ mod types;
 
 pub use candidate::bind_candidate;
 pub(crate) use candidate::{CandidateSpec, FamilySpec};
+pub(crate) use checks::check_task;
 pub(crate) use parse::{closest, parse};
 pub use simulation::InputSpec;
 pub(crate) use simulation::{NoiseSpec, SimulateSpec};
 pub(crate) use types::*;
-pub use types::{Metric, Rule, SplitMethod};
+pub use types::{Metric, Rule, SplitMethod, Task};
 
 /// A spec read from disk, with the path it came from.
 #[derive(Debug, Clone)]
@@ -84,6 +85,8 @@ pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
         group: None,
         order: None,
         missing: MissingPolicy::Error,
+        task: Some(Task::Regression),
+        positive: None,
     });
     Ok(LoadedSpec {
         path: path.to_path_buf(),
@@ -200,5 +203,14 @@ pub(crate) fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, 
             "declare at least one [[candidate]]".into(),
         ));
     }
-    candidate::validate_candidates(spec, &default_features, &invalid)
+    let families = candidate::validate_candidates(spec, &default_features, &invalid)?;
+    let declared = match (&spec.data, &spec.simulate) {
+        (Some(data), _) => data.task,
+        // Simulation specs simulate a numeric target.
+        (None, _) => Some(Task::Regression),
+    };
+    if let Some(task) = declared {
+        check_task(spec, &families, task).map_err(|(key, message)| invalid(&key, message))?;
+    }
+    Ok(families)
 }

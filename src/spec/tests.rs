@@ -28,7 +28,12 @@ fn minimal_spec_takes_defaults() {
     assert_eq!(spec.split.holdout, 0.2);
     assert_eq!(spec.split.method, SplitMethod::Kfold);
     assert_eq!(spec.choose.rule, Rule::OneSe);
-    assert_eq!(spec.choose.metric, Metric::Mse);
+    // No metric named: the plan takes the task's default (mse for numbers).
+    assert_eq!(spec.choose.metric, None);
+    assert_eq!(
+        crate::plan::default_metric(crate::spec::Task::Regression),
+        Metric::Mse
+    );
 }
 
 #[test]

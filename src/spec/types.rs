@@ -56,6 +56,31 @@ pub(crate) struct DataSpec {
     pub(crate) order: Option<String>,
     #[serde(default)]
     pub(crate) missing: MissingPolicy,
+    /// `classification` or `regression`; inferred from the target when absent.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) task: Option<Task>,
+    /// The positive class of a binary target (default: the second label in
+    /// sorted order).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) positive: Option<String>,
+}
+
+/// What the target is: a number to predict or a class label.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum Task {
+    Regression,
+    Classification,
+}
+
+impl Task {
+    /// The task's name as written in specs.
+    pub(crate) fn name(self) -> &'static str {
+        match self {
+            Task::Regression => "regression",
+            Task::Classification => "classification",
+        }
+    }
 }
 
 #[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
@@ -121,13 +146,15 @@ pub enum SplitMethod {
 #[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub(crate) struct ChooseSpec {
-    #[serde(default)]
-    pub(crate) metric: Metric,
+    /// Default: `mse` for regression, `log-loss` for classification.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) metric: Option<Metric>,
     #[serde(default)]
     pub(crate) rule: Rule,
 }
 
-/// Scoring metric for regression targets.
+/// Scoring metric: `mse`, `rmse`, `mae`, `r2` for regression targets;
+/// `error-rate`, `log-loss`, `brier`, `auc` for class targets.
 #[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub enum Metric {
@@ -136,6 +163,10 @@ pub enum Metric {
     Rmse,
     Mae,
     R2,
+    ErrorRate,
+    LogLoss,
+    Brier,
+    Auc,
 }
 
 /// How the winner is chosen from the cross-validated scores.

@@ -6,6 +6,7 @@
 mod bad_input;
 mod cache_command;
 mod ci_doc;
+mod classification;
 mod completions;
 mod cv_reference;
 mod demo;

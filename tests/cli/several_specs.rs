@@ -192,3 +192,25 @@ fn stderr_that_is_not_a_terminal_gets_no_progress_drawing() {
     assert_eq!(code, Some(0));
     assert_eq!(stderr, "");
 }
+
+#[test]
+fn a_glob_that_also_matches_the_receipts_checks_each_spec_once() {
+    // `heldout verify specs/*.toml` matches `x.receipt.toml` beside `x.toml`;
+    // the receipt of a spec given alongside is not taken for a spec.
+    let dir = tempfile::tempdir().unwrap();
+    crate::demo::copy_demo(dir.path());
+    let output = crate::util::run_in(
+        dir.path(),
+        &[
+            "verify",
+            "specs/heat-demand.receipt.toml",
+            "specs/heat-demand.toml",
+        ],
+    );
+    crate::util::assert_success(&output);
+    let stdout = crate::util::stdout_of(&output);
+    assert_eq!(stdout.matches("verified ").count(), 1, "{stdout}");
+    // Alone, a receipt is named for what it is.
+    let output = crate::util::run_in(dir.path(), &["verify", "specs/heat-demand.receipt.toml"]);
+    assert_eq!(output.status.code(), Some(2));
+}

@@ -82,22 +82,18 @@ fn every_demo_spec_as_read_runs_to_identical_results() {
     }
 }
 
-#[test]
-fn every_family_spec_as_read_runs_to_identical_results() {
-    // Every registered family, with its default grid, from the schema's
-    // examples; features as many as the schema says the family takes.
-    let schema = util::run_in(&util::crate_root(), &["schema"]);
-    util::assert_success(&schema);
-    let schema: serde_json::Value = serde_json::from_str(&util::stdout_of(&schema)).unwrap();
-    let families = schema["$defs"]["CandidateSpec"]["oneOf"]
-        .as_array()
-        .unwrap();
-    assert!(families.len() >= 8, "{families:?}");
-    let mut spec = String::from(
-        "[experiment]\nname = \"every-family\"\nseed = 11\n\n[data]\ntable = \"data.csv\"\n\
-         target = \"y\"\nfeatures = [\"x\", \"z\"]\n\n[split]\nholdout = 0.2\nfolds = 5\n",
-    );
+/// One spec holding every registered family that predicts `task` with its
+/// default grid, from the schema's examples; features as many as the schema
+/// says the family takes. Returns the spec and how many families it holds.
+fn every_family_spec(families: &[serde_json::Value], task: &str, head: &str) -> (String, usize) {
+    let mut spec = String::from(head);
+    let mut count = 0;
     for family in families {
+        let tasks = family["x-tasks"].as_array().unwrap();
+        if !tasks.iter().any(|t| t == task) {
+            continue;
+        }
+        count += 1;
         let example = &family["examples"][0];
         let takes = family["properties"]["features"]["maxItems"].as_u64();
         spec.push_str("\n[[candidate]]\n");
@@ -108,7 +104,47 @@ fn every_family_spec_as_read_runs_to_identical_results() {
             spec.push_str("features = [\"x\"]\n");
         }
     }
-    // An invented smooth surface with a deterministic wobble as noise.
+    (spec, count)
+}
+
+/// Runs `spec` on `table` twice through its spec as read; returns the
+/// families reported.
+fn round_trip(spec: &str, table: &str) -> std::collections::BTreeSet<String> {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("spec.toml"), spec).unwrap();
+    std::fs::write(dir.path().join("data.csv"), table).unwrap();
+    let (first, second, canonical) = run_twice(dir.path(), "spec.toml", "every-family");
+    assert_eq!(
+        first, second,
+        "results differ after the round trip of:\n{canonical}"
+    );
+    let results: serde_json::Value = serde_json::from_str(&first).unwrap();
+    results["candidates"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["family"].as_str().unwrap().to_string())
+        .collect()
+}
+
+#[test]
+fn every_family_spec_as_read_runs_to_identical_results() {
+    let schema = util::run_in(&util::crate_root(), &["schema"]);
+    util::assert_success(&schema);
+    let schema: serde_json::Value = serde_json::from_str(&util::stdout_of(&schema)).unwrap();
+    let families = schema["$defs"]["CandidateSpec"]["oneOf"]
+        .as_array()
+        .unwrap();
+    assert!(families.len() >= 10, "{families:?}");
+    let head = |task: &str| {
+        format!(
+            "[experiment]\nname = \"every-family\"\nseed = 11\n\n[data]\ntable = \"data.csv\"\n\
+             target = \"y\"\nfeatures = [\"x\", \"z\"]\ntask = \"{task}\"\n\n[split]\n\
+             holdout = 0.2\nfolds = 5\n"
+        )
+    };
+    // Numbers: an invented smooth surface with a deterministic wobble as noise.
+    let (spec, count) = every_family_spec(families, "regression", &head("regression"));
     let mut table = String::from("x,z,y\n");
     for i in 0..120 {
         let x = f64::from(i) / 12.0;
@@ -117,20 +153,21 @@ fn every_family_spec_as_read_runs_to_identical_results() {
         let y = (x * 0.8).sin() * 3.0 + 0.5 * z + 0.4 * wobble;
         table.push_str(&format!("{x},{z},{y}\n"));
     }
-    let dir = tempfile::tempdir().unwrap();
-    std::fs::write(dir.path().join("spec.toml"), &spec).unwrap();
-    std::fs::write(dir.path().join("data.csv"), table).unwrap();
-    let (first, second, canonical) = run_twice(dir.path(), "spec.toml", "every-family");
-    assert_eq!(
-        first, second,
-        "results differ after the round trip of:\n{canonical}"
-    );
-    let results: serde_json::Value = serde_json::from_str(&first).unwrap();
-    let reported: std::collections::BTreeSet<&str> = results["candidates"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| c["family"].as_str().unwrap())
-        .collect();
-    assert_eq!(reported.len(), families.len(), "{reported:?}");
+    let reported = round_trip(&spec, &table);
+    assert_eq!(reported.len(), count, "{reported:?}");
+    // Classes: three labels along a smooth score, with a deterministic
+    // wobble so no class is separated from the others.
+    let (spec, count) = every_family_spec(families, "classification", &head("classification"));
+    assert!(count >= 2, "{spec}");
+    let mut table = String::from("x,z,y\n");
+    for i in 0..150 {
+        let x = f64::from(i) / 15.0;
+        let z = f64::from((i * 37) % 150) / 30.0;
+        let wobble = f64::from((i * 7919) % 97) / 97.0 * 12.0 - 6.0;
+        let score = x + 0.3 * z + wobble;
+        let label = ["low", "mid", "high"][usize::from(score > 3.5) + usize::from(score > 7.0)];
+        table.push_str(&format!("{x},{z},{label}\n"));
+    }
+    let reported = round_trip(&spec, &table);
+    assert_eq!(reported.len(), count, "{reported:?}");
 }

@@ -7,11 +7,13 @@
 //! stores them as `figures/<file>`; the HTML report inlines the same bytes.
 
 pub(crate) mod axis;
+pub(crate) mod calibration;
 pub(crate) mod decomposition;
 mod fit;
 mod flexibility;
 mod folds;
 pub(crate) mod palette;
+pub(crate) mod roc;
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -57,7 +59,14 @@ pub(crate) struct FigureError {
 /// Every figure of a report, in reading order.
 pub(crate) fn render_all(results: &Results) -> Result<Vec<Figure>, FigureError> {
     let mut figures = vec![flexibility::render(results)?, folds::render(results)?];
-    figures.push(fit::render(results)?);
+    if results.classification.is_some() {
+        // A class target: the kept setting's ROC curve and calibration on
+        // the locked test set instead of the fit beside the data.
+        figures.extend(roc::render(results)?);
+        figures.extend(calibration::render(results)?);
+    } else {
+        figures.push(fit::render(results)?);
+    }
     // Simulation specs add squared bias, variance and noise against
     // flexibility, shown in the reports' simulation section.
     figures.extend(decomposition::render(results)?);

@@ -1,0 +1,546 @@
+//! `logistic`: logistic regression for a class target, binary or
+//! multinomial, by maximum likelihood (optionally with an L2 penalty),
+//! fitted by Newton's method (iteratively reweighted least squares) with
+//! step halving (McCullagh & Nelder 1989, *Generalized Linear Models*, 2nd
+//! ed., §2.5 and §6.5).
+//!
+//! Features are standardised on the training rows (mean 0, population
+//! standard deviation 1); with a `degree` grid each standardised feature
+//! enters with its powers 1..degree (no interactions). The first class
+//! present in the training rows is the reference: the model holds one
+//! intercept and one coefficient per design column for every other class,
+//! P(class k | x) ∝ exp(η_k), η_reference = 0. Classes absent from the
+//! training rows get probability 0 (docs/spec.md, "logistic").
+//!
+//! The objective is −log-likelihood + (penalty / 2) · Σ_j β_jᵀ M β_j over the
+//! non-intercept coefficients β_j (one entry per non-reference class): for two
+//! classes M = 1 (a penalty on the log-odds slopes); for K ≥ 3,
+//! M = I − 11ᵀ/K, which equals the squared norm of the symmetric (sum-to-zero)
+//! class coefficients. Newton steps solve with the Cholesky factor of the
+//! Hessian, sums in row order; a step that does not lower the objective is
+//! halved up to 50 times. At most 100 iterations.
+//!
+//! Without a penalty the maximum-likelihood estimate does not exist when the
+//! classes are (quasi-)separated by the features: the fit then fails, naming
+//! the setting, and suggests a penalty grid. It is declared when a training
+//! row's linear predictor exceeds [`SEPARATION_ETA`] in size.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets, PENALTY};
+use super::{mean_and_sd, require_spread, Family, FitRequest, Setting, SettingFit};
+use crate::error::FitError;
+use crate::metrics::ClassPrediction;
+
+/// Newton iterations before a fit is declared not to converge.
+const MAX_ITERATIONS: usize = 100;
+/// Halvings of one Newton step before it is declared not to descend.
+const MAX_HALVINGS: usize = 50;
+/// A linear predictor this large (a fitted probability within e⁻³⁰ ≈ 10⁻¹³
+/// of 0 or 1) on a training row marks separation in an unpenalised fit.
+pub(crate) const SEPARATION_ETA: f64 = 30.0;
+
+/// Logistic regression over a grid of degrees or penalties.
+#[derive(Debug, Clone)]
+pub(crate) struct Logistic {
+    pub(crate) features: Vec<String>,
+    /// The grid's points, each a (degree, penalty) pair.
+    pub(crate) grid: Vec<(usize, f64)>,
+    /// Which key labels the settings.
+    pub(crate) label: Label,
+}
+
+/// The key that varies along the grid, shown in ids.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Label {
+    None,
+    Degree,
+    Penalty,
+}
+
+/// The registry entry of `logistic` (see `registry`).
+pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
+    "logistic",
+    &[
+        PENALTY,
+        KeyDef::new(
+            "degree",
+            KeyKind::Counts,
+            "The degrees to compare (1 to 30).",
+        ),
+    ],
+    build,
+)
+.about(
+    "Logistic regression (binary or multinomial) by Newton's method; optional L2 `penalty` on \
+     standardised features or `degree` grid of powers of each feature.",
+)
+.grid("degree = [1, 2, 3]")
+.predicts(Targets::Classes);
+
+fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    let given = |key: &str| settings.values().iter().any(|(k, _)| *k == key);
+    let degrees = if given("degree") {
+        Some(settings.whole_grid("degree", 1, 30)?)
+    } else {
+        None
+    };
+    let penalties = match settings.reals("penalty") {
+        Some(_) => Some(settings.real_grid("penalty", 0.0)?),
+        None => None,
+    };
+    let (grid, label) = match (degrees, penalties) {
+        (None, None) => (vec![(1, 0.0)], Label::None),
+        (Some(degrees), None) => (degrees.iter().map(|&d| (d, 0.0)).collect(), Label::Degree),
+        (None, Some(penalties)) => (penalties.iter().map(|&p| (1, p)).collect(), Label::Penalty),
+        (Some(degrees), Some(penalties)) => {
+            match (degrees.as_slice(), penalties.as_slice()) {
+                (&[degree], _) => (
+                    penalties.iter().map(|&p| (degree, p)).collect(),
+                    Label::Penalty,
+                ),
+                (_, &[penalty]) => (
+                    degrees.iter().map(|&d| (d, penalty)).collect(),
+                    Label::Degree,
+                ),
+                _ => return Err(SettingProblem::new(
+                    "penalty",
+                    "give a grid of `degree` or of `penalty`, not both; the other may hold one \
+                     value"
+                        .into(),
+                )),
+            }
+        }
+    };
+    Ok(Box::new(Logistic {
+        features,
+        grid,
+        label,
+    }))
+}
+
+impl Logistic {
+    fn setting_label(&self, (degree, penalty): (usize, f64)) -> Setting {
+        match self.label {
+            Label::None => Setting::none(),
+            Label::Degree => Setting::count("degree", degree),
+            Label::Penalty => Setting::real("penalty", penalty),
+        }
+    }
+}
+
+/// The standardised design of one degree: an intercept column, then each
+/// feature's powers 1..degree, feature-major.
+struct Design {
+    means: Vec<f64>,
+    sds: Vec<f64>,
+    degree: usize,
+}
+
+impl Design {
+    fn fit(x: &DMatrix<f64>, degree: usize) -> Self {
+        let (means, sds) = x
+            .column_iter()
+            .map(|c| mean_and_sd(c.iter().copied()))
+            .unzip();
+        Design { means, sds, degree }
+    }
+
+    fn columns(&self) -> usize {
+        1 + self.means.len() * self.degree
+    }
+
+    /// Row-major design of `x`.
+    fn rows(&self, x: &DMatrix<f64>) -> Vec<f64> {
+        let p = self.columns();
+        let mut out = Vec::with_capacity(x.nrows() * p);
+        for i in 0..x.nrows() {
+            out.push(1.0);
+            for j in 0..self.means.len() {
+                let z = (x[(i, j)] - self.means[j]) / self.sds[j];
+                let mut power = 1.0;
+                for _ in 0..self.degree {
+                    power *= z;
+                    out.push(power);
+                }
+            }
+        }
+        out
+    }
+}
+
+/// A fitted model on the standardised design: `beta[k]` holds the
+/// coefficients of the k-th non-reference present class.
+struct Fitted {
+    beta: Vec<Vec<f64>>,
+    effective_df: f64,
+}
+
+/// What one Newton solve needs: the design (row-major, `p` columns), the
+/// training rows' class among the present ones (0 = reference), the number
+/// of present classes and the penalty.
+struct Problem<'a> {
+    design: &'a [f64],
+    p: usize,
+    class: &'a [usize],
+    present: usize,
+    penalty: f64,
+}
+
+impl Problem<'_> {
+    fn rows(&self) -> usize {
+        self.class.len()
+    }
+
+    /// Linear predictors of row i for the non-reference classes.
+    fn eta(&self, beta: &[Vec<f64>], i: usize, out: &mut [f64]) {
+        let row = &self.design[i * self.p..(i + 1) * self.p];
+        for (k, b) in beta.iter().enumerate() {
+            out[k] = row.iter().zip(b).map(|(x, c)| x * c).sum();
+        }
+    }
+
+    /// Penalty weight between non-reference classes a and b.
+    fn penalty_weight(&self, a: usize, b: usize) -> f64 {
+        let k = self.present as f64;
+        let identity = if a == b { 1.0 } else { 0.0 };
+        if self.present == 2 {
+            identity
+        } else {
+            identity - 1.0 / k
+        }
+    }
+
+    /// −log-likelihood + penalty term.
+    fn objective(&self, beta: &[Vec<f64>]) -> f64 {
+        let m = self.present - 1;
+        let mut eta = vec![0.0; m];
+        let mut total = 0.0;
+        for i in 0..self.rows() {
+            self.eta(beta, i, &mut eta);
+            let (log_norm, _) = softmax_with_reference(&eta);
+            let own = match self.class[i] {
+                0 => 0.0,
+                c => eta[c - 1],
+            };
+            total += log_norm - own;
+        }
+        total + self.penalty / 2.0 * self.penalty_form(beta)
+    }
+
+    /// Σ_j β_jᵀ M β_j over non-intercept columns.
+    fn penalty_form(&self, beta: &[Vec<f64>]) -> f64 {
+        let m = self.present - 1;
+        let mut total = 0.0;
+        for j in 1..self.p {
+            for (a, beta_a) in beta.iter().enumerate().take(m) {
+                for (b, beta_b) in beta.iter().enumerate().take(m) {
+                    total += beta_a[j] * self.penalty_weight(a, b) * beta_b[j];
+                }
+            }
+        }
+        total
+    }
+
+    /// Gradient of the objective and the Hessian of its likelihood part and
+    /// of the whole, indexed (class, column) → class · p + column.
+    fn derivatives(&self, beta: &[Vec<f64>]) -> (DVector<f64>, DMatrix<f64>, DMatrix<f64>) {
+        let m = self.present - 1;
+        let size = m * self.p;
+        let mut gradient = DVector::zeros(size);
+        let mut hessian = DMatrix::zeros(size, size);
+        let mut eta = vec![0.0; m];
+        for i in 0..self.rows() {
+            self.eta(beta, i, &mut eta);
+            let (_, prob) = softmax_with_reference(&eta);
+            let row = &self.design[i * self.p..(i + 1) * self.p];
+            for a in 0..m {
+                let observed = if self.class[i] == a + 1 { 1.0 } else { 0.0 };
+                let residual = prob[a] - observed;
+                for (j, &x) in row.iter().enumerate() {
+                    gradient[a * self.p + j] += residual * x;
+                }
+                for b in 0..m {
+                    let w = if a == b {
+                        prob[a] * (1.0 - prob[a])
+                    } else {
+                        -prob[a] * prob[b]
+                    };
+                    for (j, &xj) in row.iter().enumerate() {
+                        let wx = w * xj;
+                        for (l, &xl) in row.iter().enumerate() {
+                            hessian[(a * self.p + j, b * self.p + l)] += wx * xl;
+                        }
+                    }
+                }
+            }
+        }
+        let likelihood = hessian.clone();
+        if self.penalty > 0.0 {
+            for a in 0..m {
+                for b in 0..m {
+                    let w = self.penalty * self.penalty_weight(a, b);
+                    for j in 1..self.p {
+                        gradient[a * self.p + j] += w * beta[b][j];
+                        hessian[(a * self.p + j, b * self.p + j)] += w;
+                    }
+                }
+            }
+        }
+        (gradient, likelihood, hessian)
+    }
+
+    /// Newton's method with step halving from zero coefficients.
+    fn solve(&self, setting: &str) -> Result<Fitted, FitError> {
+        let m = self.present - 1;
+        let mut beta = vec![vec![0.0; self.p]; m];
+        let mut value = self.objective(&beta);
+        for _ in 0..MAX_ITERATIONS {
+            let (gradient, likelihood, hessian) = self.derivatives(&beta);
+            let Some(cholesky) = hessian.clone().cholesky() else {
+                return Err(self.breakdown(setting, &beta));
+            };
+            let step = cholesky.solve(&gradient);
+            let largest_step = step.iter().fold(0.0f64, |a, s| a.max(s.abs()));
+            let mut scale = 1.0;
+            let mut accepted = None;
+            for _ in 0..=MAX_HALVINGS {
+                let trial: Vec<Vec<f64>> = (0..m)
+                    .map(|a| {
+                        (0..self.p)
+                            .map(|j| beta[a][j] - scale * step[a * self.p + j])
+                            .collect()
+                    })
+                    .collect();
+                let trial_value = self.objective(&trial);
+                if trial_value <= value {
+                    accepted = Some((trial, trial_value));
+                    break;
+                }
+                scale /= 2.0;
+            }
+            let converged = largest_step * scale <= 1e-10 * (1.0 + max_abs(&beta));
+            match accepted {
+                Some((trial, trial_value)) => {
+                    beta = trial;
+                    value = trial_value;
+                }
+                // No halving lowers the objective: at the optimum to rounding.
+                None => return self.finish(setting, beta, &likelihood, &hessian),
+            }
+            if converged {
+                let (_, likelihood, hessian) = self.derivatives(&beta);
+                return self.finish(setting, beta, &likelihood, &hessian);
+            }
+        }
+        if self.penalty == 0.0 && self.separated(&beta) {
+            return Err(separation(setting));
+        }
+        Err(FitError::NotConverged {
+            setting: setting.to_string(),
+            method: "Newton's method for logistic regression",
+            iterations: MAX_ITERATIONS,
+            advice: "add a `penalty` grid, or drop collinear features",
+        })
+    }
+
+    fn finish(
+        &self,
+        setting: &str,
+        beta: Vec<Vec<f64>>,
+        likelihood: &DMatrix<f64>,
+        hessian: &DMatrix<f64>,
+    ) -> Result<Fitted, FitError> {
+        if self.penalty == 0.0 && self.separated(&beta) {
+            return Err(separation(setting));
+        }
+        // Effective df: trace of (likelihood + penalty Hessian)⁻¹ · likelihood
+        // Hessian; the number of coefficients without a penalty.
+        let effective_df = if self.penalty == 0.0 {
+            ((self.present - 1) * self.p) as f64
+        } else {
+            match hessian.clone().cholesky() {
+                Some(c) => c.solve(likelihood).trace(),
+                None => f64::NAN,
+            }
+        };
+        Ok(Fitted { beta, effective_df })
+    }
+
+    fn separated(&self, beta: &[Vec<f64>]) -> bool {
+        let mut eta = vec![0.0; self.present - 1];
+        (0..self.rows()).any(|i| {
+            self.eta(beta, i, &mut eta);
+            eta.iter().any(|e| e.abs() > SEPARATION_ETA)
+        })
+    }
+
+    fn breakdown(&self, setting: &str, beta: &[Vec<f64>]) -> FitError {
+        if self.penalty == 0.0 && self.separated(beta) {
+            separation(setting)
+        } else {
+            FitError::RankDeficient {
+                setting: setting.to_string(),
+                column: 0,
+            }
+        }
+    }
+}
+
+fn separation(setting: &str) -> FitError {
+    FitError::Separation {
+        setting: setting.to_string(),
+    }
+}
+
+fn max_abs(beta: &[Vec<f64>]) -> f64 {
+    beta.iter().flatten().fold(0.0f64, |a, b| a.max(b.abs()))
+}
+
+/// log(1 + Σ exp(η_k)) and the probabilities of the non-reference classes,
+/// computed stably by shifting by the largest predictor.
+fn softmax_with_reference(eta: &[f64]) -> (f64, Vec<f64>) {
+    let top = eta.iter().fold(0.0f64, |a, &e| a.max(e));
+    let reference = libm::exp(-top);
+    let exps: Vec<f64> = eta.iter().map(|&e| libm::exp(e - top)).collect();
+    let sum = reference + exps.iter().sum::<f64>();
+    let log_norm = top + libm::log(sum);
+    (log_norm, exps.into_iter().map(|e| e / sum).collect())
+}
+
+impl Family for Logistic {
+    fn settings(&self) -> Vec<Setting> {
+        self.grid.iter().map(|&g| self.setting_label(g)).collect()
+    }
+
+    fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
+        let (x_train, y_train, x_eval, final_fit) = request.parts();
+        let classes = request.classes.max(2);
+        let layout = ClassPrediction { classes };
+        // The classes present in the training rows, in class order.
+        let mut present: Vec<usize> = y_train.iter().map(|&y| y as usize).collect();
+        present.sort_unstable();
+        present.dedup();
+        let local: Vec<usize> = y_train
+            .iter()
+            .map(|&y| present.partition_point(|&c| c < y as usize))
+            .collect();
+        require_spread(
+            &self.features,
+            x_train,
+            "it cannot be standardised for the logistic fit",
+        )?;
+        let mut fits = Vec::with_capacity(self.grid.len());
+        for &(degree, penalty) in &self.grid {
+            let setting = self.setting_label((degree, penalty)).to_string();
+            let shown = if setting.is_empty() {
+                "logistic".to_string()
+            } else {
+                setting
+            };
+            let design = Design::fit(x_train, degree);
+            let p = design.columns();
+            let train_rows = design.rows(x_train);
+            let fitted = if present.len() < 2 {
+                // One class only: it has probability 1, nothing to estimate.
+                Fitted {
+                    beta: Vec::new(),
+                    effective_df: 0.0,
+                }
+            } else {
+                if x_train.nrows() < p * (present.len() - 1) && penalty == 0.0 {
+                    return Err(FitError::TooFewRows {
+                        setting: shown,
+                        needed: p * (present.len() - 1),
+                        available: x_train.nrows(),
+                    });
+                }
+                Problem {
+                    design: &train_rows,
+                    p,
+                    class: &local,
+                    present: present.len(),
+                    penalty,
+                }
+                .solve(&shown)?
+            };
+            let predict = |rows: &[f64], count: usize| -> Vec<f64> {
+                let mut out = Vec::with_capacity(count * layout.width());
+                let mut probabilities = vec![0.0; classes];
+                let mut eta = vec![0.0; present.len().saturating_sub(1)];
+                for i in 0..count {
+                    let row = &rows[i * p..(i + 1) * p];
+                    for (k, b) in fitted.beta.iter().enumerate() {
+                        eta[k] = row.iter().zip(b).map(|(x, c)| x * c).sum();
+                    }
+                    let (_, others) = softmax_with_reference(&eta);
+                    probabilities.iter_mut().for_each(|v| *v = 0.0);
+                    let rest: f64 = others.iter().sum();
+                    probabilities[present[0]] = 1.0 - rest;
+                    for (k, &prob) in others.iter().enumerate() {
+                        probabilities[present[k + 1]] = prob;
+                    }
+                    layout.push_argmax(&mut out, &probabilities);
+                }
+                out
+            };
+            let eval_pred = predict(&design.rows(x_eval), x_eval.nrows());
+            let train_pred = if final_fit {
+                predict(&train_rows, x_train.nrows())
+            } else {
+                Vec::new()
+            };
+            let coefficients =
+                final_fit.then(|| self.named_coefficients(&design, &fitted, &present));
+            fits.push(SettingFit {
+                train_pred,
+                eval_pred,
+                effective_df: fitted.effective_df,
+                coefficients,
+            });
+        }
+        Ok(fits)
+    }
+}
+
+impl Logistic {
+    /// The coefficients of each non-reference class (named `class c: …`, c
+    /// the 1-based class number): in raw units of the features at degree 1
+    /// (slope = β / sd, intercept = β₀ − Σ slope · mean), on the standardised
+    /// powers otherwise.
+    fn named_coefficients(
+        &self,
+        design: &Design,
+        fitted: &Fitted,
+        present: &[usize],
+    ) -> Vec<(String, f64)> {
+        let mut out = Vec::new();
+        for (k, beta) in fitted.beta.iter().enumerate() {
+            let class = present[k + 1] + 1;
+            if design.degree == 1 {
+                let slopes: Vec<f64> = (0..self.features.len())
+                    .map(|j| beta[1 + j] / design.sds[j])
+                    .collect();
+                let shift: f64 = slopes.iter().zip(&design.means).map(|(s, m)| s * m).sum();
+                out.push((format!("class {class}: intercept"), beta[0] - shift));
+                for (name, slope) in self.features.iter().zip(slopes) {
+                    out.push((format!("class {class}: {name}"), slope));
+                }
+            } else {
+                out.push((format!("class {class}: intercept"), beta[0]));
+                for (j, name) in self.features.iter().enumerate() {
+                    for d in 1..=design.degree {
+                        out.push((
+                            format!("class {class}: z({name})^{d}"),
+                            beta[1 + j * design.degree + d - 1],
+                        ));
+                    }
+                }
+            }
+        }
+        out
+    }
+}
+
+#[cfg(test)]
+mod tests;
