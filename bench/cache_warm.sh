@@ -55,8 +55,8 @@ cold=()
 warm=()
 for i in $(seq "$runs"); do
   rm -rf "$work/cache" "$work/out"
-  t0=$(seconds); "$bin" run "$work/big.toml" --cache "$work/cache" --out "$work/out" --quiet; t1=$(seconds)
-  "$bin" run "$work/big.toml" --cache "$work/cache" --out "$work/out" --quiet; t2=$(seconds)
+  t0=$(seconds); "$bin" run "$work/big.toml" --cache "$work/cache" --out "$work/out" --quiet --allow-outside; t1=$(seconds)
+  "$bin" run "$work/big.toml" --cache "$work/cache" --out "$work/out" --quiet --allow-outside; t2=$(seconds)
   cold+=("$(echo "$t1 - $t0" | bc -l)")
   warm+=("$(echo "$t2 - $t1" | bc -l)")
 done
