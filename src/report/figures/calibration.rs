@@ -10,10 +10,11 @@ use plotters::style::text_anchor::{HPos, VPos};
 use super::axis::Axis;
 use super::palette::{INK, MUTED};
 use super::{
-    draw_numeric_mesh, draw_svg, family_styles, label, legend, polyline, style_of, text, Figure,
-    FigureError, Marker, Section, Swatch, TEXT_SMALL,
+    draw_svg, family_styles, label, legend_and_mesh, polyline, style_of, text, Figure, FigureError,
+    Marker, Section, Swatch, TEXT_SMALL,
 };
 use crate::results::Results;
+use plotters::coord::CoordTranslate;
 
 pub(crate) const FILE: &str = "calibration.svg";
 const SIZE: (u32, u32) = (620, 560);
@@ -49,17 +50,15 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
         ),
     ];
     let svg = draw_svg("calibration", SIZE, |root| {
-        let legend_bottom = legend(root, &entries, (80, 22), SIZE.0 as i32 - 24)?;
-        let (_, body) = root.split_vertically(legend_bottom + 20);
-        let mut chart = ChartBuilder::on(&body)
-            .margin_right(28)
-            .margin_top(6)
-            .x_label_area_size(54)
-            .y_label_area_size(74)
-            .build_cartesian_2d(axis.clone(), axis.clone())?;
         let x_words = format!("predicted {what}");
-        draw_numeric_mesh(&mut chart, (&axis, &axis), 6, (&x_words, "observed share"))?;
-        let at = |p: &(f64, f64)| chart.backend_coord(p);
+        let coords = legend_and_mesh(
+            root,
+            &entries,
+            (&axis, &axis),
+            6,
+            (&x_words, "observed share"),
+        )?;
+        let at = |p: &(f64, f64)| coords.translate(p);
         polyline(
             root,
             &[at(&(0.0, 0.0)), at(&(1.0, 1.0))],

@@ -10,11 +10,12 @@ use plotters::prelude::*;
 use super::axis::Axis;
 use super::palette::{CONTEXT, INK, MUTED};
 use super::{
-    draw_numeric_mesh, draw_svg, family_styles, legend, polyline, style_of, Figure, FigureError,
-    Marker, Section, Swatch,
+    draw_svg, family_styles, legend_and_mesh, polyline, style_of, Figure, FigureError, Marker,
+    Section, Swatch,
 };
 use crate::report::format_number;
 use crate::results::{PredictionSet, Results};
+use plotters::coord::CoordTranslate;
 
 pub(crate) const FILE: &str = "kept-fit.svg";
 const SIZE: (u32, u32) = (880, 520);
@@ -150,16 +151,8 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
         ),
     };
     let svg = draw_svg("kept fit", SIZE, |root| {
-        let legend_bottom = legend(root, &entries, (80, 22), SIZE.0 as i32 - 24)?;
-        let (_, body) = root.split_vertically(legend_bottom + 20);
-        let mut chart = ChartBuilder::on(&body)
-            .margin_right(28)
-            .margin_top(6)
-            .x_label_area_size(54)
-            .y_label_area_size(74)
-            .build_cartesian_2d(x_axis.clone(), y_axis.clone())?;
-        draw_numeric_mesh(&mut chart, (&x_axis, &y_axis), 10, (&x_words, &y_words))?;
-        let at = |p: &(f64, f64)| chart.backend_coord(p);
+        let coords = legend_and_mesh(root, &entries, (&x_axis, &y_axis), 10, (&x_words, &y_words))?;
+        let at = |p: &(f64, f64)| coords.translate(p);
 
         if one_feature.is_none() {
             let range = x_axis.range();

@@ -15,13 +15,14 @@ use plotters::prelude::*;
 use super::axis::{Axis, LOG_SPAN_DECADES};
 use super::palette::{INK, MUTED};
 use super::{
-    beyond, clip_rows, df_axis_words, draw_edge_labels, draw_numeric_mesh, draw_svg, family_styles,
-    legend, metric_axis_words, polyline, stem, EdgeLabel, Figure, FigureError, Marker, Section,
-    Swatch, EDGE_ROOM,
+    beyond, clip_rows, df_axis_words, draw_edge_labels, draw_svg, family_styles, legend_and_mesh,
+    metric_axis_words, polyline, stem, EdgeLabel, Figure, FigureError, Marker, Section, Swatch,
+    EDGE_ROOM,
 };
 use crate::report::format_number;
 use crate::results::{CandidateResult, Results};
 use crate::spec::Rule;
+use plotters::coord::CoordTranslate;
 
 pub(crate) const FILE: &str = "error-by-flexibility.svg";
 const SIZE: (u32, u32) = (880, 580);
@@ -106,16 +107,8 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
     let x_words = df_axis_words(&x_axis);
     let y_words = metric_axis_words(results);
     let svg = draw_svg("error by flexibility", SIZE, |root| {
-        let legend_bottom = legend(root, &entries, (80, 22), SIZE.0 as i32 - 24)?;
-        let (_, body) = root.split_vertically(legend_bottom + 20);
-        let mut chart = ChartBuilder::on(&body)
-            .margin_right(28)
-            .margin_top(6)
-            .x_label_area_size(54)
-            .y_label_area_size(74)
-            .build_cartesian_2d(x_axis.clone(), y_axis.clone())?;
-        draw_numeric_mesh(&mut chart, (&x_axis, &y_axis), 10, (x_words, &y_words))?;
-        let at = |df: f64, score: f64| chart.backend_coord(&(df, score));
+        let coords = legend_and_mesh(root, &entries, (&x_axis, &y_axis), 10, (x_words, &y_words))?;
+        let at = |df: f64, score: f64| coords.translate(&(df, score));
 
         if let Some(threshold) = results.choice.threshold {
             let range = x_axis.range();

@@ -685,6 +685,30 @@ pub(crate) fn df_axis_words(x_axis: &axis::Axis) -> &'static str {
 /// Draws the mesh of a chart whose two axes are numbers: house style, 12
 /// x ticks and `y_ticks` y ticks labelled by the axes' own formatting, and
 /// the words of each axis.
+/// Draws `entries` as the legend along the top of `root` and, below it, the
+/// numeric mesh of `axes` (`y_ticks` labels on the value axis, `words` as
+/// the axis titles). Returns the mapping from data to pixels that a figure
+/// then draws its marks with, on `root`.
+pub(crate) fn legend_and_mesh(
+    root: &Root<'_>,
+    entries: &[(Swatch, String)],
+    (x_axis, y_axis): (&axis::Axis, &axis::Axis),
+    y_ticks: usize,
+    words: (&str, &str),
+) -> Result<Cartesian2d<axis::Axis, axis::Axis>, DrawingAreaErrorKind<std::io::Error>> {
+    let width = root.dim_in_pixel().0 as i32;
+    let legend_bottom = legend(root, entries, (80, 22), width - 24)?;
+    let (_, body) = root.split_vertically(legend_bottom + 20);
+    let mut chart = ChartBuilder::on(&body)
+        .margin_right(28)
+        .margin_top(6)
+        .x_label_area_size(54)
+        .y_label_area_size(74)
+        .build_cartesian_2d(x_axis.clone(), y_axis.clone())?;
+    draw_numeric_mesh(&mut chart, (x_axis, y_axis), y_ticks, words)?;
+    Ok(chart.as_coord_spec().clone())
+}
+
 pub(crate) fn draw_numeric_mesh(
     chart: &mut ChartContext<'_, SVGBackend<'_>, Cartesian2d<axis::Axis, axis::Axis>>,
     (x_axis, y_axis): (&axis::Axis, &axis::Axis),

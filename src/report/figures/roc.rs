@@ -8,11 +8,12 @@ use plotters::prelude::*;
 use super::axis::Axis;
 use super::palette::MUTED;
 use super::{
-    draw_numeric_mesh, draw_svg, family_styles, legend, polyline, style_of, Figure, FigureError,
-    Section, Swatch,
+    draw_svg, family_styles, legend_and_mesh, polyline, style_of, Figure, FigureError, Section,
+    Swatch,
 };
 use crate::report::format_number;
 use crate::results::Results;
+use plotters::coord::CoordTranslate;
 
 pub(crate) const FILE: &str = "roc.svg";
 const SIZE: (u32, u32) = (620, 560);
@@ -50,21 +51,14 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
         ),
     ];
     let svg = draw_svg("ROC curve", SIZE, |root| {
-        let legend_bottom = legend(root, &entries, (80, 22), SIZE.0 as i32 - 24)?;
-        let (_, body) = root.split_vertically(legend_bottom + 20);
-        let mut chart = ChartBuilder::on(&body)
-            .margin_right(28)
-            .margin_top(6)
-            .x_label_area_size(54)
-            .y_label_area_size(74)
-            .build_cartesian_2d(axis.clone(), axis.clone())?;
-        draw_numeric_mesh(
-            &mut chart,
+        let coords = legend_and_mesh(
+            root,
+            &entries,
             (&axis, &axis),
             6,
             ("false-positive rate", "true-positive rate"),
         )?;
-        let at = |p: &(f64, f64)| chart.backend_coord(p);
+        let at = |p: &(f64, f64)| coords.translate(p);
         polyline(
             root,
             &[at(&(0.0, 0.0)), at(&(1.0, 1.0))],
