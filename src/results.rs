@@ -98,8 +98,16 @@ pub struct SplitSummary {
     /// Folds per repeat.
     pub folds: usize,
     pub repeats: usize,
+    /// Repeats the spec asked for that dealt the same folds as an earlier
+    /// one and were counted once (written only when there were any).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub identical_repeats: usize,
     /// Smallest and largest number of validation rows in a fold.
     pub fold_rows: [usize; 2],
+}
+
+fn is_zero(count: &usize) -> bool {
+    *count == 0
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -379,6 +387,7 @@ pub(crate) fn assemble(
             holdout: spec.split.holdout,
             folds: assignment.folds.len() / assignment.repeats,
             repeats: assignment.repeats,
+            identical_repeats: assignment.identical_repeats,
             fold_rows,
         },
         chosen: scores[chosen].id.clone(),

@@ -60,8 +60,11 @@ pub(crate) struct Assignment {
     pub(crate) train: Vec<usize>,
     /// Folds in order: repeat-major, then fold index.
     pub(crate) folds: Vec<Fold>,
-    /// Number of repeats.
+    /// Number of repeats: distinct partitions of the non-test rows.
     pub(crate) repeats: usize,
+    /// Repeats asked for that dealt the same folds as an earlier repeat and
+    /// were therefore left out (their scores would be copies).
+    pub(crate) identical_repeats: usize,
     /// Leave-one-out on single rows: fold i validates on `train[i]` alone.
     pub(crate) single_row_folds: bool,
 }
@@ -354,6 +357,7 @@ pub(crate) fn assign_stratified(
     let what = if grouped { "groups" } else { "rows" };
 
     let mut folds = Vec::new();
+    let mut identical_repeats = 0;
     let repeats = match scheme {
         FoldScheme::Kfold { folds: k, repeats } => {
             if train_units.len() < *k {
@@ -363,6 +367,11 @@ pub(crate) fn assign_stratified(
                     what,
                 });
             }
+            // Each partition once: a repeat that deals the units into the same
+            // folds as an earlier one (as when every group is a fold of its
+            // own) adds copies of the same scores, which would shrink the
+            // standard error without adding evidence (docs/splits.md).
+            let mut partitions: Vec<Vec<Vec<usize>>> = Vec::new();
             for repeat in 0..*repeats {
                 let key = purpose_key(seed, &format!("kfold/repeat={}", repeat + 1));
                 let mut fold_of_unit = vec![usize::MAX; identities.len()];
@@ -375,9 +384,20 @@ pub(crate) fn assign_stratified(
                 for (position, unit) in order.into_iter().enumerate() {
                     fold_of_unit[unit] = position % k;
                 }
-                folds.extend(deal(repeat, *k, &train, |r| fold_of_unit[unit_of_row[r]]));
+                let dealt = deal(partitions.len(), *k, &train, |r| {
+                    fold_of_unit[unit_of_row[r]]
+                });
+                let mut partition: Vec<Vec<usize>> =
+                    dealt.iter().map(|fold| fold.valid.clone()).collect();
+                partition.sort_unstable();
+                if partitions.contains(&partition) {
+                    identical_repeats += 1;
+                    continue;
+                }
+                partitions.push(partition);
+                folds.extend(dealt);
             }
-            *repeats
+            partitions.len()
         }
         FoldScheme::LeaveOneOut => {
             // One fold per training unit: a row, or a whole group (leave one
@@ -424,6 +444,7 @@ pub(crate) fn assign_stratified(
         train,
         folds,
         repeats,
+        identical_repeats,
         single_row_folds,
     })
 }
@@ -619,6 +640,27 @@ mod tests {
                 |a: &Assignment| a.folds.iter().map(|f| f.valid.clone()).collect::<Vec<_>>();
             assert_eq!(valid(&text), valid(&rows));
         }
+    }
+
+    #[test]
+    fn a_repeat_that_deals_the_same_folds_is_counted_once() {
+        // Five groups, five folds: every repeat puts each group in a fold of
+        // its own, so the three repeats are one partition (fold numbers
+        // aside).
+        let ids: Vec<String> = ["a", "b", "c", "d", "e"].map(String::from).to_vec();
+        let units: Vec<usize> = (0..40).map(|r| r % 5).collect();
+        let scheme = FoldScheme::Kfold {
+            folds: 5,
+            repeats: 3,
+        };
+        let a = assign(2, 0.0, &scheme, Identities::Text(&ids), &units).unwrap();
+        assert_eq!((a.repeats, a.identical_repeats, a.folds.len()), (1, 2, 5));
+        assert!(a.folds.iter().all(|f| f.repeat == 0));
+        // Ten groups in five folds: the repeats differ and all are kept.
+        let ids: Vec<String> = (0..10).map(|g| g.to_string()).collect();
+        let units: Vec<usize> = (0..40).map(|r| r % 10).collect();
+        let a = assign(2, 0.0, &scheme, Identities::Text(&ids), &units).unwrap();
+        assert_eq!((a.repeats, a.identical_repeats, a.folds.len()), (3, 0, 15));
     }
 
     #[test]

@@ -187,6 +187,17 @@ fn evaluate_spec(
     let plan = plan::resolve_reporting(loaded, &|parsed, total| reading.update(parsed, total));
     reading.finish(plan.is_ok());
     let plan = plan?;
+    if plan.assignment.identical_repeats > 0 {
+        eprintln!(
+            "warning: {}: {} of the {} repeats dealt the same folds as an earlier repeat \
+             (too few groups or rows to shuffle); each partition is counted once, so the \
+             scores rest on {} repeat(s)",
+            spec_path.display(),
+            plan.assignment.identical_repeats,
+            plan.assignment.identical_repeats + plan.assignment.repeats,
+            plan.assignment.repeats
+        );
+    }
     if plan.table.unterminated {
         eprintln!(
             "warning: {}: the last line ends without a line break; check that the table \

@@ -92,6 +92,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             holdout: 0.2,
             folds: 5,
             repeats: 1,
+            identical_repeats: 0,
             fold_rows: [16, 16],
         },
         final_fit: FinalFit {

@@ -444,3 +444,26 @@ fn a_spec_name_with_backticks_newlines_and_semicolons_stays_inside_its_fence() {
     assert!(listed.status.success(), "{}", util::stderr_of(&listed));
     assert!(!dir.path().join("pwned").exists());
 }
+
+#[test]
+fn repeats_that_deal_the_same_folds_are_counted_once_and_said() {
+    // Five groups in five folds, three repeats: every repeat is the same
+    // partition, and its copies of the scores shrank the standard error.
+    let spec = SPEC
+        .replace("features = [\"x\"]", "features = [\"x\"]\ngroup = \"g\"")
+        .replace("folds = 3", "folds = 5\nrepeats = 3");
+    let mut data = String::from("g,x,y\n");
+    for i in 0..40 {
+        data.push_str(&format!("g{},{i},{}\n", i % 5, 2 * i + i % 3));
+    }
+    let (dir, output) = run_with(&spec, &data, &[]);
+    util::assert_success(&output);
+    assert!(util::stderr_of(&output).contains("2 of the 3 repeats dealt the same folds"));
+    let results = util::read_json(&dir.path().join("out/hostile/results.json"));
+    assert_eq!(results["split"]["repeats"], 1);
+    assert_eq!(results["split"]["identical_repeats"], 2);
+    let scores = &results["candidates"][0]["fold_scores"];
+    assert_eq!(scores.as_array().unwrap().len(), 5);
+    let report = std::fs::read_to_string(dir.path().join("out/hostile/report.md")).unwrap();
+    assert!(report.contains("- **Repeats that were not repeats:** 2 of the 3 repeats"));
+}
