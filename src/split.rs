@@ -615,6 +615,19 @@ pub(crate) fn ordered_labels<'a>(labels: impl Iterator<Item = &'a str>) -> Vec<S
 mod tests {
     use super::*;
 
+    /// Every row some fold of `repeat` validates on, ascending (with
+    /// repeats: a row validated twice appears twice).
+    pub(super) fn validated_in(a: &Assignment, repeat: usize) -> Vec<usize> {
+        let mut rows: Vec<usize> = a
+            .folds
+            .iter()
+            .filter(|f| f.repeat == repeat)
+            .flat_map(|f| f.valid.iter().copied())
+            .collect();
+        rows.sort_unstable();
+        rows
+    }
+
     fn rows(n: usize) -> (Vec<String>, Vec<usize>) {
         ((1..=n).map(|i| i.to_string()).collect(), (0..n).collect())
     }
@@ -689,13 +702,7 @@ mod tests {
         assert_eq!(a.train.len(), 82);
         assert_eq!(a.folds.len(), 10);
         for repeat in 0..2 {
-            let mut seen: Vec<usize> = a
-                .folds
-                .iter()
-                .filter(|f| f.repeat == repeat)
-                .flat_map(|f| f.valid.clone())
-                .collect();
-            seen.sort_unstable();
+            let seen = validated_in(&a, repeat);
             assert_eq!(seen, a.train, "each non-test row validates exactly once");
             for (f, fold) in a
                 .folds
@@ -935,13 +942,7 @@ mod stratified_tests {
             }
             // Still a partition of the non-test rows in every repeat.
             for repeat in 0..2 {
-                let mut all: Vec<usize> = a
-                    .folds
-                    .iter()
-                    .filter(|f| f.repeat == repeat)
-                    .flat_map(|f| f.valid.clone())
-                    .collect();
-                all.sort_unstable();
+                let all = super::tests::validated_in(&a, repeat);
                 assert_eq!(all, a.train, "seed {seed}, repeat {repeat}");
             }
         }
