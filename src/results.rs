@@ -482,6 +482,14 @@ pub mod lenient {
         Ok(values.into_iter().map(or_nan).collect())
     }
 
+    /// An optional number: called only when the key is present, so `null`
+    /// (a non-finite number written by serde_json) reads as NaN.
+    pub(crate) fn optional_number<'de, D: Deserializer<'de>>(
+        d: D,
+    ) -> Result<Option<f64>, D::Error> {
+        Ok(Some(or_nan(Option::deserialize(d)?)))
+    }
+
     pub(crate) fn optional_numbers<'de, D: Deserializer<'de>>(
         d: D,
     ) -> Result<Option<Vec<f64>>, D::Error> {

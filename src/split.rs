@@ -252,8 +252,9 @@ fn shuffled(key: &[u8; 32], identities: Identities<'_>, units: &[usize]) -> Vec<
     ranked.into_iter().map(|(_, u)| u).collect()
 }
 
-/// Assigns rows. `unit_of_row[r]` is the unit (row or group) of row `r`;
-/// `identities` gives the identity text of each unit.
+/// Assigns rows, unstratified. `unit_of_row[r]` is the unit (row or group)
+/// of row `r`; `identities` gives the identity text of each unit.
+#[cfg(test)]
 pub(crate) fn assign(
     seed: u64,
     holdout: f64,

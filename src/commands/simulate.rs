@@ -67,9 +67,14 @@ pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<(summary
             format!("{m} test points drawn from the inputs")
         }
     };
+    let target = if setup.classification {
+        "labels 0/1 drawn with the truth's probability".to_string()
+    } else {
+        format!("noise sd {}", setup.noise_sd)
+    };
     let _ = writeln!(
         out,
-        "simulation  {} replicates × {} training rows ({} design); {test}; noise sd {}",
+        "simulation  {} replicates × {} training rows ({} design); {test}; {target}",
         setup.replicates,
         setup.train_size,
         if setup.fixed_design {
@@ -77,7 +82,6 @@ pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<(summary
         } else {
             "random"
         },
-        setup.noise_sd
     );
     let first = plan.replicate(0)?;
     let a = &first.assignment;

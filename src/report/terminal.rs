@@ -75,46 +75,92 @@ pub(crate) fn render_simulation(results: &Results) -> String {
         .unwrap_or(9)
         .max(9);
     let mut out = String::new();
-    let _ = writeln!(
-        out,
-        "\nsimulation: {} replicates of {} rows; expected error at {} test points; noise σ² = {}",
-        summary.replicates,
-        summary.train_size,
-        summary.test.count,
-        format_number(summary.noise)
-    );
-    let _ = writeln!(
-        out,
-        "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}",
-        "candidate",
-        "eff. df",
-        "bias²",
-        "variance",
-        "sum",
-        "exp. mse",
-        "± mc se",
-        "train mse",
-        "cv chose",
-    );
-    for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
-        let mark = if s.id == summary.oracle {
-            "  <- oracle"
-        } else {
-            ""
-        };
+    if let Some(classes) = &summary.classes {
         let _ = writeln!(
             out,
-            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
-            s.id,
-            format_df(s.effective_df),
-            format_number(s.bias_sq),
-            format_number(s.variance),
-            format_number(s.decomposition_sum),
-            format_number(s.expected_mse),
-            format_number(s.mc_se),
-            format_number(s.train_mse),
-            choice.count,
+            "\nsimulation: {} replicates of {} rows; expected error rate at {} test points; \
+             Bayes error rate {}",
+            summary.replicates,
+            summary.train_size,
+            summary.test.count,
+            format_number(classes.bayes_error)
         );
+        let _ = writeln!(
+            out,
+            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}",
+            "candidate",
+            "eff. df",
+            "bias²",
+            "variance",
+            "exp. brier",
+            "exp. err",
+            "± mc se",
+            "train err",
+            "cv chose",
+        );
+        for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
+            let mark = if s.id == summary.oracle {
+                "  <- oracle"
+            } else {
+                ""
+            };
+            let rate = |v: Option<f64>| format_number(v.unwrap_or(f64::NAN));
+            let _ = writeln!(
+                out,
+                "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
+                s.id,
+                format_df(s.effective_df),
+                format_number(s.bias_sq),
+                format_number(s.variance),
+                format_number(s.expected_mse),
+                rate(s.expected_error_rate),
+                rate(s.expected_error_rate_se),
+                rate(s.train_error_rate),
+                choice.count,
+            );
+        }
+    } else {
+        let _ = writeln!(
+            out,
+            "\nsimulation: {} replicates of {} rows; expected error at {} test points; noise σ² = {}",
+            summary.replicates,
+            summary.train_size,
+            summary.test.count,
+            format_number(summary.noise)
+        );
+        let _ = writeln!(
+            out,
+            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}",
+            "candidate",
+            "eff. df",
+            "bias²",
+            "variance",
+            "sum",
+            "exp. mse",
+            "± mc se",
+            "train mse",
+            "cv chose",
+        );
+        for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
+            let mark = if s.id == summary.oracle {
+                "  <- oracle"
+            } else {
+                ""
+            };
+            let _ = writeln!(
+                out,
+                "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
+                s.id,
+                format_df(s.effective_df),
+                format_number(s.bias_sq),
+                format_number(s.variance),
+                format_number(s.decomposition_sum),
+                format_number(s.expected_mse),
+                format_number(s.mc_se),
+                format_number(s.train_mse),
+                choice.count,
+            );
+        }
     }
     let _ = writeln!(
         out,

@@ -10,6 +10,13 @@
 //! | `simulate/test-points/input=NAME` | the test inputs (`test_points`), point by point |
 //! | `simulate/test-noise/replicate=R` | the noise of replicate R's test targets, point by point |
 //! | `simulate/split/replicate=R` | the seed of replicate R's folds |
+//! | `simulate/labels/replicate=R` | class labels of replicate R's training rows, row by row |
+//! | `simulate/test-labels/replicate=R` | class labels of replicate R's test points |
+//!
+//! A class label is 1 when the row's uniform draw u < p, the truth there
+//! (the probability of label 1), and 0 otherwise. A `normal_pair` input
+//! draws a uniform u first (u < ½ picks the first mean), then a normal
+//! deviate.
 //!
 //! Replicates are numbered from 1. Grid inputs draw nothing: with g grid
 //! inputs and n = m^g rows they form a full grid of m evenly spaced values
@@ -38,6 +45,8 @@ pub(crate) struct Setup {
     pub(crate) test: TestDesign,
     /// Training inputs are the same in every replicate.
     pub(crate) fixed_design: bool,
+    /// The target holds labels 0 and 1 and the truth is P(label = 1 | x).
+    pub(crate) classification: bool,
 }
 
 /// Where expected error is measured.
@@ -63,15 +72,28 @@ pub(crate) struct UndefinedTruth {
     pub(crate) value: f64,
     pub(crate) at: String,
     pub(crate) place: String,
+    /// The truth is a probability (classification) and left [0, 1].
+    pub(crate) not_a_probability: bool,
 }
 
 impl std::fmt::Display for UndefinedTruth {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(
-            f,
-            "the truth is {} at {} ({}); restrict the inputs' ranges so it is defined everywhere",
-            self.value, self.at, self.place
-        )
+        if self.not_a_probability {
+            write!(
+                f,
+                "the truth is {} at {} ({}), and with task = \"classification\" it is the \
+                 probability of label 1, between 0 and 1; write it through a function that \
+                 stays there, e.g. 1/(1 + exp(-(…)))",
+                self.value, self.at, self.place
+            )
+        } else {
+            write!(
+                f,
+                "the truth is {} at {} ({}); restrict the inputs' ranges so it is defined \
+                 everywhere",
+                self.value, self.at, self.place
+            )
+        }
     }
 }
 
@@ -101,6 +123,7 @@ impl Setup {
                 (None, None) => TestDesign::Points(0),
             },
             fixed_design,
+            classification: spec.classification(),
         })
     }
 
@@ -122,7 +145,7 @@ impl Setup {
                         x[(i, j)] = evenly_spaced(*a, *b, side, (i / stride) % side);
                     }
                 }
-                InputSpec::Uniform(_) | InputSpec::Normal(_) => {
+                InputSpec::Uniform(_) | InputSpec::Normal(_) | InputSpec::NormalPair(_) => {
                     let purpose = if self.fixed_design {
                         format!("simulate/inputs/input={}", self.names[j])
                     } else {
@@ -149,7 +172,9 @@ impl Setup {
                 let [a, b] = match self.inputs[0] {
                     InputSpec::Uniform(r) | InputSpec::Grid(r) => r,
                     // Validation allows a test grid only over a bounded input.
-                    InputSpec::Normal([mean, _]) => [mean, mean],
+                    InputSpec::Normal([mean, _]) | InputSpec::NormalPair([mean, _, _]) => {
+                        [mean, mean]
+                    }
                 };
                 DMatrix::from_fn(m, 1, |i, _| evenly_spaced(a, b, m, i))
             }
@@ -184,7 +209,8 @@ impl Setup {
                     *v = x[(i, j)];
                 }
                 let value = self.truth.eval(&point);
-                if value.is_finite() {
+                let probability = (0.0..=1.0).contains(&value);
+                if value.is_finite() && (probability || !self.classification) {
                     Ok(value)
                 } else {
                     let at = self
@@ -198,6 +224,7 @@ impl Setup {
                         value,
                         at,
                         place: format!("{place}, row {}", i + 1),
+                        not_a_probability: value.is_finite() && self.classification,
                     })
                 }
             })
@@ -216,6 +243,19 @@ impl Setup {
         Stream::new(self.seed, &purpose).normals(self.test.count(), 0.0, self.noise_sd)
     }
 
+    /// Class labels (0 or 1) of replicate `replicate`'s training rows, where
+    /// `probability` is the truth at each row.
+    pub(crate) fn labels(&self, replicate: usize, probability: &[f64]) -> Vec<f64> {
+        let purpose = format!("simulate/labels/replicate={}", replicate + 1);
+        draw_labels(&mut Stream::new(self.seed, &purpose), probability)
+    }
+
+    /// Class labels of replicate `replicate`'s test points.
+    pub(crate) fn test_labels(&self, replicate: usize, probability: &[f64]) -> Vec<f64> {
+        let purpose = format!("simulate/test-labels/replicate={}", replicate + 1);
+        draw_labels(&mut Stream::new(self.seed, &purpose), probability)
+    }
+
     /// The seed of replicate `replicate`'s fold assignment.
     pub(crate) fn split_seed(&self, replicate: usize) -> u64 {
         super::random::derived_seed(
@@ -225,11 +265,27 @@ impl Setup {
     }
 }
 
+/// One label per probability: 1 when the next uniform is below it.
+fn draw_labels(stream: &mut Stream, probability: &[f64]) -> Vec<f64> {
+    probability
+        .iter()
+        .map(|&p| if stream.uniform() < p { 1.0 } else { 0.0 })
+        .collect()
+}
+
 /// One draw of a random input.
 fn draw(input: &InputSpec, stream: &mut Stream) -> f64 {
     match input {
         InputSpec::Uniform([a, b]) | InputSpec::Grid([a, b]) => stream.uniform_on(*a, *b),
         InputSpec::Normal([mean, sd]) => mean + sd * stream.normal(),
+        InputSpec::NormalPair([first, second, sd]) => {
+            let mean = if stream.uniform() < 0.5 {
+                first
+            } else {
+                second
+            };
+            mean + sd * stream.normal()
+        }
     }
 }
 
@@ -257,6 +313,7 @@ mod tests {
                 .iter()
                 .map(|(n, i)| (n.to_string(), *i))
                 .collect::<BTreeMap<_, _>>(),
+            task: None,
             noise_sd: Some(1.0),
             noise: None,
             train_size: n,

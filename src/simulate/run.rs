@@ -46,8 +46,11 @@ pub(crate) struct Replicate {
     /// Training inputs, rows × inputs.
     pub(crate) x: DMatrix<f64>,
     pub(crate) y: Vec<f64>,
-    /// Noise of the test targets: y₀ = truth + test_noise.
+    /// Noise of the test targets: y₀ = truth + test_noise (for class
+    /// labels, y₀ − p, with y₀ in `test_labels`).
     pub(crate) test_noise: Vec<f64>,
+    /// Class labels (0 or 1) of the test points, with `task = "classification"`.
+    pub(crate) test_labels: Option<Vec<f64>>,
     /// Folds over the training rows (no test rows).
     pub(crate) assignment: Assignment,
 }
@@ -68,38 +71,82 @@ impl SimulationPlan {
         let truth = setup
             .truth_at(&x, &format!("training inputs of replicate {}", index + 1))
             .map_err(|e| self.invalid("simulate.truth", e.to_string()))?;
-        let y: Vec<f64> = truth
-            .iter()
-            .zip(setup.noise(index))
-            .map(|(f, e)| f + e)
-            .collect();
+        let y: Vec<f64> = if setup.classification {
+            setup.labels(index, &truth)
+        } else {
+            truth
+                .iter()
+                .zip(setup.noise(index))
+                .map(|(f, e)| f + e)
+                .collect()
+        };
         let n = setup.train_size;
         let row_numbers: Vec<u64> = (1..=n as u64).collect();
         let units: Vec<usize> = (0..n).collect();
-        let assignment = split::assign(
+        // Class labels are stratified, as a table's are (docs/splits.md).
+        let strata: Option<Vec<usize>> = setup
+            .classification
+            .then(|| y.iter().map(|&label| label as usize).collect());
+        let assignment = split::assign_stratified(
             setup.split_seed(index),
             0.0,
             &self.scheme,
             split::Identities::RowNumbers(&row_numbers),
             &units,
+            strata.as_deref(),
         )
         .map_err(|e| self.invalid("split", e.to_string()))?;
+        let (test_noise, test_labels) = if setup.classification {
+            let labels = setup.test_labels(index, &self.test_truth);
+            let noise = labels
+                .iter()
+                .zip(&self.test_truth)
+                .map(|(y, p)| y - p)
+                .collect();
+            (noise, Some(labels))
+        } else {
+            (setup.test_noise(index), None)
+        };
         Ok(Replicate {
             index,
             x,
             y,
-            test_noise: setup.test_noise(index),
+            test_noise,
+            test_labels,
             assignment,
         })
     }
 
-    /// Test targets of a replicate: truth plus its test noise.
+    /// Test targets of a replicate: truth plus its test noise, or the drawn
+    /// class labels.
     pub(crate) fn test_targets(&self, replicate: &Replicate) -> Vec<f64> {
-        self.test_truth
-            .iter()
-            .zip(&replicate.test_noise)
-            .map(|(f, e)| f + e)
-            .collect()
+        match &replicate.test_labels {
+            Some(labels) => labels.clone(),
+            None => self
+                .test_truth
+                .iter()
+                .zip(&replicate.test_noise)
+                .map(|(f, e)| f + e)
+                .collect(),
+        }
+    }
+
+    /// The task of every replicate's plan: numbers, or the labels 0 and 1
+    /// with 1 the positive class.
+    pub(crate) fn task(&self) -> crate::classes::TaskInfo {
+        if self.setup.classification {
+            crate::classes::TaskInfo {
+                task: crate::spec::Task::Classification,
+                inferred: None,
+                noteworthy: false,
+                classes: Some(crate::classes::Classes {
+                    labels: vec!["0".to_string(), "1".to_string()],
+                    positive: 1,
+                }),
+            }
+        } else {
+            crate::classes::TaskInfo::regression(None)
+        }
     }
 
     /// A replicate as an ordinary plan: its training rows (rows 1..n, in
@@ -152,8 +199,13 @@ impl SimulationPlan {
             assignment,
             candidates: self.candidates.clone(),
             column_digests,
-            task: crate::classes::TaskInfo::regression(None),
-            metric: self.spec.spec.choose.metric.unwrap_or(Metric::Mse),
+            task: self.task(),
+            metric: self
+                .spec
+                .spec
+                .choose
+                .metric
+                .unwrap_or_else(|| crate::plan::default_metric(self.task().task)),
             full_fit: FullFit {
                 final_fit: replicate.index == 0,
                 training_as_evaluation: true,
@@ -218,10 +270,18 @@ pub(crate) fn resolve(spec: LoadedSpec) -> Result<SimulationPlan, SpecError> {
 
 /// What one replicate yields for every setting (all candidates, results order).
 pub(crate) struct ReplicateOutcome {
-    /// Predictions at the test points, per setting.
+    /// Predictions at the test points, per setting (for class labels, the
+    /// probability of label 1).
     pub(crate) test_pred: Vec<Vec<f64>>,
-    /// Training mean squared error, per setting.
+    /// Training mean squared error, per setting (for class labels, of the
+    /// probability of label 1: the Brier score).
     pub(crate) train_mse: Vec<f64>,
+    /// Class labels only, per setting: the error rate the fit's predicted
+    /// classes would have in expectation over the test labels (a miss
+    /// costs p where it predicts 0 and 1 − p where it predicts 1), and its
+    /// error rate on its own training rows.
+    pub(crate) test_error_rate: Vec<f64>,
+    pub(crate) train_error_rate: Vec<f64>,
     /// Cross-validated score (the spec's metric), per setting.
     pub(crate) cv_score: Vec<f64>,
     pub(crate) effective_df: Vec<f64>,
@@ -247,6 +307,8 @@ pub(crate) fn run_replicate(
     let mut outcome = ReplicateOutcome {
         test_pred: Vec::new(),
         train_mse: Vec::new(),
+        test_error_rate: Vec::new(),
+        train_error_rate: Vec::new(),
         cv_score: Vec::new(),
         effective_df: Vec::new(),
         chosen: 0,
@@ -274,10 +336,39 @@ pub(crate) fn run_replicate(
                     s,
                 ),
             );
-            outcome.test_pred.push(fit.eval_pred.clone());
-            outcome
-                .train_mse
-                .push(Metric::Mse.score(&replicate.y, &fit.train_pred));
+            if plan.setup.classification {
+                // Rows hold P(0), P(1) and the predicted class.
+                let positive =
+                    |rows: &[f64]| -> Vec<f64> { rows.chunks_exact(3).map(|row| row[1]).collect() };
+                let classes =
+                    |rows: &[f64]| -> Vec<f64> { rows.chunks_exact(3).map(|row| row[2]).collect() };
+                let expected_misses: f64 = classes(&fit.eval_pred)
+                    .iter()
+                    .zip(&plan.test_truth)
+                    .map(|(&class, &p)| if class == 1.0 { 1.0 - p } else { p })
+                    .sum();
+                outcome
+                    .test_error_rate
+                    .push(expected_misses / plan.test_truth.len() as f64);
+                let train_classes = classes(&fit.train_pred);
+                let train_misses = train_classes
+                    .iter()
+                    .zip(&replicate.y)
+                    .filter(|(class, y)| class != y)
+                    .count();
+                outcome
+                    .train_error_rate
+                    .push(train_misses as f64 / replicate.y.len() as f64);
+                outcome
+                    .train_mse
+                    .push(Metric::Mse.score(&replicate.y, &positive(&fit.train_pred)));
+                outcome.test_pred.push(positive(&fit.eval_pred));
+            } else {
+                outcome.test_pred.push(fit.eval_pred.clone());
+                outcome
+                    .train_mse
+                    .push(Metric::Mse.score(&replicate.y, &fit.train_pred));
+            }
             outcome.cv_score.push(score.cv_score);
             outcome.effective_df.push(fit.effective_df);
             scores.push(score);

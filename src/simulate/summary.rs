@@ -68,6 +68,27 @@ pub struct SimulatedSetting {
     pub cv_estimate: f64,
     #[serde(deserialize_with = "lenient::number")]
     pub cv_estimate_se: f64,
+    /// Class labels only: the expected error rate of the fit's predicted
+    /// classes at the test points, its Monte-Carlo standard error over
+    /// replicates, and the mean training error rate.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub expected_error_rate: Option<f64>,
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub expected_error_rate_se: Option<f64>,
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub train_error_rate: Option<f64>,
     /// With `test_grid`: the average fit and the variance at each grid point.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pointwise: Option<PointwiseCurve>,
@@ -75,8 +96,8 @@ pub struct SimulatedSetting {
 
 impl SimulatedSetting {
     /// Every scalar, with its name in `results.json`, in field order.
-    pub fn named_numbers(&self) -> [(&'static str, f64); 15] {
-        [
+    pub fn named_numbers(&self) -> Vec<(&'static str, f64)> {
+        let mut numbers = vec![
             ("effective_df", self.effective_df),
             ("bias_sq", self.bias_sq),
             ("bias_sq_se", self.bias_sq_se),
@@ -92,7 +113,15 @@ impl SimulatedSetting {
             ("train_mse_se", self.train_mse_se),
             ("cv_estimate", self.cv_estimate),
             ("cv_estimate_se", self.cv_estimate_se),
-        ]
+        ];
+        for (name, value) in [
+            ("expected_error_rate", self.expected_error_rate),
+            ("expected_error_rate_se", self.expected_error_rate_se),
+            ("train_error_rate", self.train_error_rate),
+        ] {
+            numbers.extend(value.map(|v| (name, v)));
+        }
+        numbers
     }
 
     /// The scalars alone, in [`Self::named_numbers`] order.
@@ -117,11 +146,20 @@ pub struct SimulationSummary {
     pub truth: String,
     pub target: String,
     pub inputs: BTreeMap<String, InputSpec>,
-    #[serde(deserialize_with = "lenient::number")]
-    pub noise_sd: f64,
-    /// σ².
+    /// The declared noise; absent for class labels.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub noise_sd: Option<f64>,
+    /// σ²; for class labels, the mean of p(1 − p) over the test points,
+    /// the part of the Brier score no probability can remove.
     #[serde(deserialize_with = "lenient::number")]
     pub noise: f64,
+    /// Class labels only: what the decomposition and the oracle mean for them.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub classes: Option<ClassSimulation>,
     pub train_size: usize,
     pub replicates: usize,
     /// `random` (inputs drawn per replicate) or `fixed`.
@@ -132,6 +170,28 @@ pub struct SimulationSummary {
     #[serde(deserialize_with = "lenient::number")]
     pub oracle_expected_mse: f64,
     pub cv: ChoiceSummary,
+}
+
+/// A simulation of class labels 0 and 1, where the truth is P(label = 1 | x).
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct ClassSimulation {
+    /// The labels, in class order; the second is the positive class.
+    pub labels: Vec<String>,
+    /// The Bayes error rate: the mean over the test points of min(p, 1 − p),
+    /// the error rate of the best possible classifier, the irreducible part.
+    #[serde(deserialize_with = "lenient::number")]
+    pub bayes_error: f64,
+    /// Its Monte-Carlo standard error as a mean over test points drawn from
+    /// the inputs' distribution (absent for a test grid, an integration rule).
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub bayes_error_se: Option<f64>,
+    /// The oracle's expected error rate (the oracle has the lowest).
+    #[serde(deserialize_with = "lenient::number")]
+    pub oracle_expected_error_rate: f64,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -163,7 +223,8 @@ pub struct ChoiceSummary {
     pub choices: Vec<ChoiceRow>,
     /// Replicates on which the choice was the oracle.
     pub chose_oracle: usize,
-    /// Mean over replicates of expected_mse(choice) − expected_mse(oracle).
+    /// Mean over replicates of expected_mse(choice) − expected_mse(oracle)
+    /// (for class labels, of the expected error rates).
     #[serde(deserialize_with = "lenient::number")]
     pub mean_excess: f64,
     #[serde(deserialize_with = "lenient::number")]
@@ -171,6 +232,13 @@ pub struct ChoiceSummary {
     /// Mean over replicates of expected_mse(choice).
     #[serde(deserialize_with = "lenient::number")]
     pub expected_mse: f64,
+    /// Class labels only: mean over replicates of expected_error_rate(choice).
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub expected_error_rate: Option<f64>,
     /// The chosen id, replicate by replicate.
     pub chosen_by_replicate: Vec<String>,
 }
@@ -183,7 +251,15 @@ pub struct ChoiceRow {
     pub share: f64,
     #[serde(deserialize_with = "lenient::number")]
     pub expected_mse: f64,
-    /// expected_mse − the oracle's.
+    /// Class labels only: the setting's expected error rate.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub expected_error_rate: Option<f64>,
+    /// expected_mse − the oracle's (for class labels, of the expected
+    /// error rates).
     #[serde(deserialize_with = "lenient::number")]
     pub excess: f64,
 }
@@ -200,7 +276,15 @@ pub(crate) struct Simulated {
 /// Summarises the outcomes of every replicate (in replicate order).
 pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome>) -> Simulated {
     let setup = &plan.setup;
-    let noise = setup.noise_sd * setup.noise_sd;
+    let classification = setup.classification;
+    let m = plan.test_truth.len() as f64;
+    // A label's variance about its probability, p(1 − p), is the Brier
+    // score's floor, as σ² is the squared error's.
+    let noise = if classification {
+        plan.test_truth.iter().map(|p| p * (1.0 - p)).sum::<f64>() / m
+    } else {
+        setup.noise_sd * setup.noise_sd
+    };
     let mut ids = Vec::new();
     let mut families = Vec::new();
     for candidate in &plan.candidates {
@@ -220,6 +304,9 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         };
         let (train_mse, train_mse_se) = mean_and_se(&column(&|o| o.train_mse[s]));
         let (cv_estimate, cv_estimate_se) = mean_and_se(&column(&|o| o.cv_score[s]));
+        let error_rate = classification.then(|| mean_and_se(&column(&|o| o.test_error_rate[s])));
+        let train_error_rate =
+            classification.then(|| mean_and_se(&column(&|o| o.train_error_rate[s])).0);
         let dfs = column(&|o| o.effective_df[s]);
         let effective_df = if dfs.iter().all(|&v| v == dfs[0]) {
             dfs[0]
@@ -244,6 +331,9 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
             train_mse_se,
             cv_estimate,
             cv_estimate_se,
+            expected_error_rate: error_rate.map(|e| e.0),
+            expected_error_rate_se: error_rate.map(|e| e.1),
+            train_error_rate,
             pointwise: grid.then_some(PointwiseCurve {
                 mean_fit: d.pointwise.mean_fit,
                 bias_sq: d.pointwise.bias_sq,
@@ -252,20 +342,25 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         });
     }
 
+    // The oracle has the lowest expected squared error, or for class labels
+    // the lowest expected error rate (docs/simulation.md).
+    let judged = |s: &SimulatedSetting| s.expected_error_rate.unwrap_or(s.expected_mse);
     let mut oracle = 0;
     for (s, setting) in settings.iter().enumerate() {
-        if setting.expected_mse < settings[oracle].expected_mse {
+        if judged(setting) < judged(&settings[oracle]) {
             oracle = s;
         }
     }
-    let best = settings[oracle].expected_mse;
+    let best = judged(&settings[oracle]);
     let mut counts = vec![0usize; settings.len()];
     let mut excess = Vec::with_capacity(outcomes.len());
     let mut chosen_error = Vec::with_capacity(outcomes.len());
+    let mut chosen_rate = Vec::with_capacity(outcomes.len());
     for o in &outcomes {
         counts[o.chosen] += 1;
-        excess.push(settings[o.chosen].expected_mse - best);
+        excess.push(judged(&settings[o.chosen]) - best);
         chosen_error.push(settings[o.chosen].expected_mse);
+        chosen_rate.extend(settings[o.chosen].expected_error_rate);
     }
     let (mean_excess, mean_excess_se) = mean_and_se(&excess);
     let replicates = outcomes.len();
@@ -278,13 +373,16 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
                 count,
                 share: count as f64 / replicates as f64,
                 expected_mse: s.expected_mse,
-                excess: s.expected_mse - best,
+                expected_error_rate: s.expected_error_rate,
+                excess: judged(s) - best,
             })
             .collect(),
         chose_oracle: counts[oracle],
         mean_excess,
         mean_excess_se,
         expected_mse: chosen_error.iter().sum::<f64>() / replicates as f64,
+        expected_error_rate: classification
+            .then(|| chosen_rate.iter().sum::<f64>() / replicates as f64),
         chosen_by_replicate: outcomes.iter().map(|o| ids[o.chosen].clone()).collect(),
     };
     let sim = plan
@@ -313,8 +411,18 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         truth: setup.truth_text.clone(),
         target: setup.target.clone(),
         inputs: sim.inputs.clone(),
-        noise_sd: setup.noise_sd,
+        noise_sd: (!classification).then_some(setup.noise_sd),
         noise,
+        classes: classification.then(|| {
+            let misses: Vec<f64> = plan.test_truth.iter().map(|&p| p.min(1.0 - p)).collect();
+            let (bayes_error, se) = mean_and_se(&misses);
+            ClassSimulation {
+                labels: vec!["0".to_string(), "1".to_string()],
+                bayes_error,
+                bayes_error_se: (!grid).then_some(se),
+                oracle_expected_error_rate: best,
+            }
+        }),
         train_size: setup.train_size,
         replicates,
         design: if setup.fixed_design {
@@ -325,7 +433,7 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         .to_string(),
         test,
         oracle: settings[oracle].id.clone(),
-        oracle_expected_mse: best,
+        oracle_expected_mse: settings[oracle].expected_mse,
         cv,
     };
 

@@ -157,16 +157,21 @@ pub(crate) fn check_task(
     families: &[FamilySpec],
     task: Task,
 ) -> Result<(), (String, String)> {
+    let table = if spec.simulate.is_some() {
+        "[simulate]"
+    } else {
+        "[data]"
+    };
     let (kind, others, fix) = match task {
         Task::Classification => (
             "a class target",
             "error-rate, log-loss, brier or auc",
-            "set `task = \"regression\"` in [data] if the labels are numbers to predict",
+            format!("set `task = \"regression\"` in {table} if the labels are numbers to predict"),
         ),
         Task::Regression => (
             "a numeric target",
             "mse, rmse, mae or r2",
-            "set `task = \"classification\"` in [data] if the target holds class labels",
+            format!("set `task = \"classification\"` in {table} if the target holds class labels"),
         ),
     };
     if let Some(metric) = spec.choose.metric {

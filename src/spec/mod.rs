@@ -85,7 +85,7 @@ pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
         group: None,
         order: None,
         missing: MissingPolicy::Error,
-        task: Some(Task::Regression),
+        task: Some(sim.task.unwrap_or(Task::Regression)),
         positive: None,
     });
     Ok(LoadedSpec {
@@ -206,8 +206,9 @@ pub(crate) fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, 
     let families = candidate::validate_candidates(spec, &default_features, &invalid)?;
     let declared = match (&spec.data, &spec.simulate) {
         (Some(data), _) => data.task,
-        // Simulation specs simulate a numeric target.
-        (None, _) => Some(Task::Regression),
+        // Simulation specs simulate numbers unless `[simulate] task` says labels.
+        (None, Some(sim)) => Some(sim.task.unwrap_or(Task::Regression)),
+        (None, None) => None,
     };
     if let Some(task) = declared {
         check_task(spec, &families, task).map_err(|(key, message)| invalid(&key, message))?;

@@ -15,8 +15,13 @@ use crate::spec::{SplitMethod, SplitSpec};
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub(crate) struct SimulateSpec {
-    /// The true regression function over the named inputs.
+    /// The true regression function over the named inputs; with
+    /// `task = "classification"`, the probability that the label is 1.
     pub(crate) truth: String,
+    /// `regression` (the default: truth plus normal noise) or
+    /// `classification` (labels 0 and 1, drawn with the truth's probability).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) task: Option<crate::spec::Task>,
     /// Name of the simulated target in reports and results.
     #[serde(default = "default_target")]
     pub(crate) target: String,
@@ -60,6 +65,10 @@ pub enum InputSpec {
     Normal([f64; 2]),
     /// Fixed design: evenly spaced over [a, b], both ends included.
     Grid([f64; 2]),
+    /// Half the draws from N(a, sd) and half from N(b, sd), written
+    /// [a, b, sd]: the input of two equally likely classes with normal
+    /// densities of equal spread.
+    NormalPair([f64; 3]),
 }
 
 /// The table an input is written as.
@@ -72,18 +81,22 @@ struct InputTable {
     normal: Option<[f64; 2]>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     grid: Option<[f64; 2]>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    normal_pair: Option<[f64; 3]>,
 }
 
 impl TryFrom<InputTable> for InputSpec {
     type Error = String;
 
     fn try_from(table: InputTable) -> Result<Self, String> {
-        match (table.uniform, table.normal, table.grid) {
-            (Some(v), None, None) => Ok(InputSpec::Uniform(v)),
-            (None, Some(v), None) => Ok(InputSpec::Normal(v)),
-            (None, None, Some(v)) => Ok(InputSpec::Grid(v)),
+        match (table.uniform, table.normal, table.grid, table.normal_pair) {
+            (Some(v), None, None, None) => Ok(InputSpec::Uniform(v)),
+            (None, Some(v), None, None) => Ok(InputSpec::Normal(v)),
+            (None, None, Some(v), None) => Ok(InputSpec::Grid(v)),
+            (None, None, None, Some(v)) => Ok(InputSpec::NormalPair(v)),
             _ => Err("an input takes exactly one of `uniform = [a, b]`, \
-                      `normal = [mean, sd]` and `grid = [a, b]`"
+                      `normal = [mean, sd]`, `grid = [a, b]` and \
+                      `normal_pair = [mean_a, mean_b, sd]`"
                 .to_string()),
         }
     }
@@ -95,11 +108,13 @@ impl From<InputSpec> for InputTable {
             uniform: None,
             normal: None,
             grid: None,
+            normal_pair: None,
         };
         match input {
             InputSpec::Uniform(v) => table.uniform = Some(v),
             InputSpec::Normal(v) => table.normal = Some(v),
             InputSpec::Grid(v) => table.grid = Some(v),
+            InputSpec::NormalPair(v) => table.normal_pair = Some(v),
         }
         table
     }
@@ -147,7 +162,12 @@ impl SimulateSpec {
         self.inputs.keys().cloned().collect()
     }
 
-    /// The noise standard deviation, however it was written.
+    /// Whether the simulated target holds the class labels 0 and 1.
+    pub(crate) fn classification(&self) -> bool {
+        self.task == Some(crate::spec::Task::Classification)
+    }
+
+    /// The noise standard deviation, however it was written (0 for labels).
     pub(crate) fn noise_sd(&self) -> f64 {
         match (self.noise_sd, self.noise) {
             (Some(sd), _) => sd,
@@ -235,28 +255,37 @@ pub(crate) fn validate(
                 format!("\"{name}\" is a function or constant of the truth; rename the input"),
             ));
         }
-        let (what, [a, b]) = match input {
+        let (what, values): (&str, &[f64]) = match input {
             InputSpec::Uniform(v) => ("uniform", v),
             InputSpec::Normal(v) => ("normal", v),
             InputSpec::Grid(v) => ("grid", v),
+            InputSpec::NormalPair(v) => ("normal_pair", v),
         };
-        if !a.is_finite() || !b.is_finite() {
+        let written = values
+            .iter()
+            .map(|v| v.to_string())
+            .collect::<Vec<_>>()
+            .join(", ");
+        if values.iter().any(|v| !v.is_finite()) {
             return Err(invalid(
                 &key,
-                format!("{what} = [{a}, {b}] must hold finite numbers"),
+                format!("{what} = [{written}] must hold finite numbers"),
             ));
         }
         match input {
-            InputSpec::Normal(_) if *b <= 0.0 => {
+            InputSpec::Normal([_, sd]) | InputSpec::NormalPair([_, _, sd]) if *sd <= 0.0 => {
                 return Err(invalid(
                     &key,
-                    format!("normal = [{a}, {b}]: the standard deviation (second) must be > 0"),
+                    format!(
+                        "{what} = [{written}]: the standard deviation ({}) must be > 0",
+                        if what == "normal" { "second" } else { "third" }
+                    ),
                 ));
             }
-            InputSpec::Uniform(_) | InputSpec::Grid(_) if a >= b => {
+            InputSpec::Uniform([a, b]) | InputSpec::Grid([a, b]) if a >= b => {
                 return Err(invalid(
                     &key,
-                    format!("{what} = [{a}, {b}]: the range must have a < b"),
+                    format!("{what} = [{written}]: the range must have a < b"),
                 ));
             }
             _ => {}
@@ -271,21 +300,36 @@ pub(crate) fn validate(
     }
     expr::parse(&sim.truth, &names).map_err(|e| invalid("simulate.truth", e.to_string()))?;
 
-    let sd = match (sim.noise_sd, sim.noise) {
-        (Some(sd), None) => sd,
-        (None, Some(NoiseSpec::Normal(sd))) => sd,
-        _ => {
+    if sim.classification() {
+        if sim.noise_sd.is_some() || sim.noise.is_some() {
+            return Err(invalid(
+                if sim.noise_sd.is_some() {
+                    "simulate.noise_sd"
+                } else {
+                    "simulate.noise"
+                },
+                "a class label carries its own randomness (it is 1 with the truth's \
+                 probability); remove the noise"
+                    .into(),
+            ));
+        }
+    } else {
+        let sd = match (sim.noise_sd, sim.noise) {
+            (Some(sd), None) => sd,
+            (None, Some(NoiseSpec::Normal(sd))) => sd,
+            _ => {
+                return Err(invalid(
+                    "simulate.noise_sd",
+                    "give the noise once: `noise_sd = 0.5` or `noise = { normal = 0.5 }`".into(),
+                ))
+            }
+        };
+        if !sd.is_finite() || sd < 0.0 {
             return Err(invalid(
                 "simulate.noise_sd",
-                "give the noise once: `noise_sd = 0.5` or `noise = { normal = 0.5 }`".into(),
-            ))
+                format!("{sd} must be a finite number ≥ 0"),
+            ));
         }
-    };
-    if !sd.is_finite() || sd < 0.0 {
-        return Err(invalid(
-            "simulate.noise_sd",
-            format!("{sd} must be a finite number ≥ 0"),
-        ));
     }
     if sim.train_size < 2 {
         return Err(invalid(
@@ -344,7 +388,9 @@ pub(crate) fn validate(
                     ),
                 ));
             }
-            if let Some((name, InputSpec::Normal(_))) = sim.inputs.iter().next() {
+            if let Some((name, InputSpec::Normal(_) | InputSpec::NormalPair(_))) =
+                sim.inputs.iter().next()
+            {
                 return Err(invalid(
                     "simulate.test_grid",
                     format!("input \"{name}\" is normal and has no range to span; use test_points"),

@@ -24,6 +24,7 @@ mod scaffold;
 mod schema;
 mod several_specs;
 mod simulation;
+mod simulation_classes;
 mod simulation_report;
 mod smoothing_spline;
 mod spec_as_read;

@@ -193,7 +193,11 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
             dashed: true,
             width: 2,
         },
-        format!("noise floor σ² = {}", format_number(noise)),
+        if summary.classes.is_some() {
+            format!("floor, mean p(1 − p) = {}", format_number(noise))
+        } else {
+            format!("noise floor σ² = {}", format_number(noise))
+        },
     ));
     entries.push((Swatch::Ring, format!("oracle: {}", summary.oracle)));
     if several {
@@ -334,10 +338,20 @@ pub(crate) fn render(results: &Results) -> Result<Option<Figure>, FigureError> {
         title: "Squared bias, variance and noise against flexibility".into(),
         caption: caption(results, oracle, several, any_log, clipped),
         alt: format!(
-            "Line charts, one per family ({}), of expected test error, squared bias and \
-             variance against effective degrees of freedom, with the noise floor at σ² = {}; \
-             the oracle, {}, is ringed.",
+            "Line charts, one per family ({}), of expected {}, squared bias and variance \
+             against effective degrees of freedom, with the {} {}; the oracle, {}, is \
+             ringed.",
             panels.iter().map(|p| p.stem).collect::<Vec<_>>().join(", "),
+            if summary.classes.is_some() {
+                "Brier score"
+            } else {
+                "test error"
+            },
+            if summary.classes.is_some() {
+                "floor, mean p(1 − p), at"
+            } else {
+                "noise floor at σ² ="
+            },
             format_number(noise),
             summary.oracle
         ),
@@ -385,7 +399,11 @@ fn caption(
         None => summary.oracle.clone(),
     };
     let flagged = if several {
-        " A small ink triangle flags the lowest expected error within each other family."
+        if summary.classes.is_some() {
+            " A small ink triangle flags the lowest expected Brier score within each other family."
+        } else {
+            " A small ink triangle flags the lowest expected error within each other family."
+        }
     } else {
         ""
     };
@@ -398,6 +416,29 @@ fn caption(
     } else {
         String::new()
     };
+    if let Some(classes) = &summary.classes {
+        let rate = oracle
+            .and_then(|o| o.expected_error_rate)
+            .map_or_else(String::new, |r| {
+                format!(", expected error rate {}", format_number(r))
+            });
+        return format!(
+            "The expected Brier score of the predicted probability of label 1 (ink circles) \
+             and its parts, squared bias (orange squares) and variance (teal triangles), of \
+             every setting against its effective degrees of freedom{panels}{scale}. Each value \
+             averages {replicates} simulated training sets of {n} rows, evaluated at {m} test \
+             points. The dashed line is the floor, the mean of p(1 − p) = {noise}: the \
+             expected Brier score of the true probability itself. The ringed point is the \
+             oracle, {id}{rate}: the setting with the lowest expected error rate of its \
+             predicted classes, against the Bayes error rate {bayes}.{flagged}{reach}",
+            replicates = summary.replicates,
+            n = summary.train_size,
+            m = summary.test.count,
+            noise = format_number(summary.noise),
+            id = summary.oracle,
+            bayes = format_number(classes.bayes_error),
+        );
+    }
     format!(
         "Expected test error (ink circles) and its parts, squared bias (orange squares) and \
          variance (teal triangles), of every setting against its effective degrees of \
