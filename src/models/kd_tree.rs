@@ -199,9 +199,12 @@ impl KdTree {
                     let candidate = Candidate(squared_distance(p, query), row);
                     if heap.len() < k {
                         heap.push(candidate);
-                    } else if heap.peek().is_some_and(|worst| candidate < *worst) {
-                        heap.pop();
-                        heap.push(candidate);
+                    } else if let Some(mut worst) = heap.peek_mut() {
+                        // Replacing the top sifts once, where pop and push
+                        // would sift twice.
+                        if candidate < *worst {
+                            *worst = candidate;
+                        }
                     }
                 }
             }

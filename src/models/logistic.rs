@@ -211,21 +211,24 @@ impl Problem<'_> {
         }
     }
 
-    /// −log-likelihood + penalty term.
-    fn objective(&self, beta: &[Vec<f64>]) -> f64 {
+    /// −log-likelihood + penalty term, and every row's probabilities of the
+    /// non-reference classes (row-major, rows × (classes − 1)), which the
+    /// derivatives at the same coefficients reuse.
+    fn evaluate(&self, beta: &[Vec<f64>]) -> (f64, Vec<f64>) {
         let m = self.present - 1;
         let mut eta = vec![0.0; m];
+        let mut prob = vec![0.0; self.rows() * m];
         let mut total = 0.0;
-        for i in 0..self.rows() {
+        for (i, out) in prob.chunks_exact_mut(m).enumerate() {
             self.eta(beta, i, &mut eta);
-            let (log_norm, _) = softmax_with_reference(&eta);
+            let log_norm = softmax_with_reference(&eta, out);
             let own = match self.class[i] {
                 0 => 0.0,
                 c => eta[c - 1],
             };
             total += log_norm - own;
         }
-        total + self.penalty / 2.0 * self.penalty_form(beta)
+        (total + self.penalty / 2.0 * self.penalty_form(beta), prob)
     }
 
     /// Σ_j β_jᵀ M β_j over non-intercept columns.
@@ -244,37 +247,27 @@ impl Problem<'_> {
 
     /// Gradient of the objective and the Hessian of its likelihood part and
     /// of the whole, indexed (class, column) → class · p + column.
-    fn derivatives(&self, beta: &[Vec<f64>]) -> (DVector<f64>, DMatrix<f64>, DMatrix<f64>) {
+    fn derivatives(
+        &self,
+        beta: &[Vec<f64>],
+        probabilities: &[f64],
+    ) -> (DVector<f64>, DMatrix<f64>, DMatrix<f64>) {
         let m = self.present - 1;
-        let size = m * self.p;
+        let p = self.p;
+        let size = m * p;
         let mut gradient = DVector::zeros(size);
-        let mut hessian = DMatrix::zeros(size, size);
-        let mut eta = vec![0.0; m];
-        for i in 0..self.rows() {
-            self.eta(beta, i, &mut eta);
-            let (_, prob) = softmax_with_reference(&eta);
-            let row = &self.design[i * self.p..(i + 1) * self.p];
-            for a in 0..m {
-                let observed = if self.class[i] == a + 1 { 1.0 } else { 0.0 };
-                let residual = prob[a] - observed;
-                for (j, &x) in row.iter().enumerate() {
-                    gradient[a * self.p + j] += residual * x;
-                }
-                for b in 0..m {
-                    let w = if a == b {
-                        prob[a] * (1.0 - prob[a])
-                    } else {
-                        -prob[a] * prob[b]
-                    };
-                    for (j, &xj) in row.iter().enumerate() {
-                        let wx = w * xj;
-                        for (l, &xl) in row.iter().enumerate() {
-                            hessian[(a * self.p + j, b * self.p + l)] += wx * xl;
-                        }
-                    }
-                }
+        let upper = if m == 1 {
+            self.binary_sums(probabilities, gradient.as_mut_slice())
+        } else {
+            self.multinomial_sums(probabilities, gradient.as_mut_slice())
+        };
+        let mut hessian = DMatrix::from_fn(size, size, |r, c| {
+            if r <= c {
+                upper[r * size + c]
+            } else {
+                upper[c * size + r]
             }
-        }
+        });
         let likelihood = hessian.clone();
         if self.penalty > 0.0 {
             for a in 0..m {
@@ -290,13 +283,90 @@ impl Problem<'_> {
         (gradient, likelihood, hessian)
     }
 
+    /// Two classes: the gradient Σᵢ (pᵢ − yᵢ) xᵢ into `gradient`, and the
+    /// upper triangle of the Hessian Σᵢ wᵢ xᵢxᵢᵀ, wᵢ = pᵢ(1 − pᵢ), row-major.
+    /// Rows are taken in blocks of [`BLOCK`], copied column by column, so
+    /// each Hessian entry is a dot product of two contiguous columns (one
+    /// scaled by w); blocks are added in row order, so the sums do not
+    /// depend on anything but the data.
+    fn binary_sums(&self, probabilities: &[f64], gradient: &mut [f64]) -> Vec<f64> {
+        let p = self.p;
+        let mut upper = vec![0.0; p * p];
+        let mut columns = vec![0.0; BLOCK * p];
+        let mut weighted = vec![0.0; BLOCK * p];
+        let rows = self.rows();
+        let mut start = 0;
+        while start < rows {
+            let end = (start + BLOCK).min(rows);
+            let len = end - start;
+            for (r, i) in (start..end).enumerate() {
+                let prob = probabilities[i];
+                let observed = if self.class[i] == 1 { 1.0 } else { 0.0 };
+                let residual = prob - observed;
+                let w = prob * (1.0 - prob);
+                let row = &self.design[i * p..(i + 1) * p];
+                for (j, &x) in row.iter().enumerate() {
+                    gradient[j] += residual * x;
+                    columns[j * BLOCK + r] = x;
+                    weighted[j * BLOCK + r] = w * x;
+                }
+            }
+            for j in 0..p {
+                let xj = &columns[j * BLOCK..j * BLOCK + len];
+                for l in j..p {
+                    let wl = &weighted[l * BLOCK..l * BLOCK + len];
+                    upper[j * p + l] += dot(xj, wl);
+                }
+            }
+            start = end;
+        }
+        upper
+    }
+
+    /// Three or more classes: the gradient into `gradient` and the upper
+    /// triangle of Σᵢ Wᵢ ⊗ xᵢxᵢᵀ, summed row by row into a flat row-major
+    /// buffer (the inner loop runs over contiguous memory).
+    fn multinomial_sums(&self, probabilities: &[f64], gradient: &mut [f64]) -> Vec<f64> {
+        let m = self.present - 1;
+        let p = self.p;
+        let size = m * p;
+        let mut upper = vec![0.0; size * size];
+        for (i, prob) in probabilities.chunks_exact(m).enumerate() {
+            let row = &self.design[i * p..(i + 1) * p];
+            for a in 0..m {
+                let observed = if self.class[i] == a + 1 { 1.0 } else { 0.0 };
+                let residual = prob[a] - observed;
+                for (j, &x) in row.iter().enumerate() {
+                    gradient[a * p + j] += residual * x;
+                }
+                for b in a..m {
+                    let w = if a == b {
+                        prob[a] * (1.0 - prob[a])
+                    } else {
+                        -prob[a] * prob[b]
+                    };
+                    for (j, &xj) in row.iter().enumerate() {
+                        let wx = w * xj;
+                        let first = if a == b { j } else { 0 };
+                        let start = (a * p + j) * size + b * p;
+                        let target = &mut upper[start + first..start + p];
+                        for (h, &xl) in target.iter_mut().zip(&row[first..]) {
+                            *h += wx * xl;
+                        }
+                    }
+                }
+            }
+        }
+        upper
+    }
+
     /// Newton's method with step halving from zero coefficients.
     fn solve(&self, setting: &str) -> Result<Fitted, FitError> {
         let m = self.present - 1;
         let mut beta = vec![vec![0.0; self.p]; m];
-        let mut value = self.objective(&beta);
+        let (mut value, mut probabilities) = self.evaluate(&beta);
         for _ in 0..MAX_ITERATIONS {
-            let (gradient, likelihood, hessian) = self.derivatives(&beta);
+            let (gradient, likelihood, hessian) = self.derivatives(&beta, &probabilities);
             let Some(cholesky) = hessian.clone().cholesky() else {
                 return Err(self.breakdown(setting, &beta));
             };
@@ -312,24 +382,25 @@ impl Problem<'_> {
                             .collect()
                     })
                     .collect();
-                let trial_value = self.objective(&trial);
+                let (trial_value, trial_probabilities) = self.evaluate(&trial);
                 if trial_value <= value {
-                    accepted = Some((trial, trial_value));
+                    accepted = Some((trial, trial_value, trial_probabilities));
                     break;
                 }
                 scale /= 2.0;
             }
             let converged = largest_step * scale <= 1e-10 * (1.0 + max_abs(&beta));
             match accepted {
-                Some((trial, trial_value)) => {
+                Some((trial, trial_value, trial_probabilities)) => {
                     beta = trial;
                     value = trial_value;
+                    probabilities = trial_probabilities;
                 }
                 // No halving lowers the objective: at the optimum to rounding.
                 None => return self.finish(setting, beta, &likelihood, &hessian),
             }
             if converged {
-                let (_, likelihood, hessian) = self.derivatives(&beta);
+                let (_, likelihood, hessian) = self.derivatives(&beta, &probabilities);
                 return self.finish(setting, beta, &likelihood, &hessian);
             }
         }
@@ -397,15 +468,52 @@ fn max_abs(beta: &[Vec<f64>]) -> f64 {
     beta.iter().flatten().fold(0.0f64, |a, b| a.max(b.abs()))
 }
 
-/// log(1 + Σ exp(η_k)) and the probabilities of the non-reference classes,
-/// computed stably by shifting by the largest predictor.
-fn softmax_with_reference(eta: &[f64]) -> (f64, Vec<f64>) {
+/// Rows per block of the two-class Hessian sums.
+const BLOCK: usize = 256;
+
+/// Σ aᵢbᵢ in four interleaved partial sums (lanes a processor can run side by
+/// side), added in a fixed order at the end: deterministic for given inputs.
+fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let mut lanes = [0.0; 4];
+    let (a4, a_rest) = a.split_at(a.len() - a.len() % 4);
+    let (b4, b_rest) = b.split_at(a4.len());
+    for (x, y) in a4.chunks_exact(4).zip(b4.chunks_exact(4)) {
+        for lane in 0..4 {
+            lanes[lane] += x[lane] * y[lane];
+        }
+    }
+    let mut total = (lanes[0] + lanes[1]) + (lanes[2] + lanes[3]);
+    for (x, y) in a_rest.iter().zip(b_rest) {
+        total += x * y;
+    }
+    total
+}
+
+/// log(1 + Σ exp(η_k)), with the probabilities of the non-reference classes
+/// written to `probabilities`, computed stably (shifted by the largest
+/// predictor).
+fn softmax_with_reference(eta: &[f64], probabilities: &mut [f64]) -> f64 {
+    if let [e] = eta {
+        // Two classes: one exponential of −|η|, which cannot overflow;
+        // log(1 + e^η) = max(η, 0) + log1p(e^−|η|).
+        let t = libm::exp(-e.abs());
+        let (p, log_norm) = if *e > 0.0 {
+            (1.0 / (1.0 + t), e + libm::log1p(t))
+        } else {
+            (t / (1.0 + t), libm::log1p(t))
+        };
+        probabilities[0] = p;
+        return log_norm;
+    }
     let top = eta.iter().fold(0.0f64, |a, &e| a.max(e));
     let reference = libm::exp(-top);
-    let exps: Vec<f64> = eta.iter().map(|&e| libm::exp(e - top)).collect();
-    let sum = reference + exps.iter().sum::<f64>();
-    let log_norm = top + libm::log(sum);
-    (log_norm, exps.into_iter().map(|e| e / sum).collect())
+    let mut sum = reference;
+    for (out, &e) in probabilities.iter_mut().zip(eta) {
+        *out = libm::exp(e - top);
+        sum += *out;
+    }
+    probabilities.iter_mut().for_each(|v| *v /= sum);
+    top + libm::log(sum)
 }
 
 impl Family for Logistic {
@@ -468,12 +576,13 @@ impl Family for Logistic {
                 let mut out = Vec::with_capacity(count * layout.width());
                 let mut probabilities = vec![0.0; classes];
                 let mut eta = vec![0.0; present.len().saturating_sub(1)];
+                let mut others = vec![0.0; eta.len()];
                 for i in 0..count {
                     let row = &rows[i * p..(i + 1) * p];
                     for (k, b) in fitted.beta.iter().enumerate() {
                         eta[k] = row.iter().zip(b).map(|(x, c)| x * c).sum();
                     }
-                    let (_, others) = softmax_with_reference(&eta);
+                    softmax_with_reference(&eta, &mut others);
                     probabilities.iter_mut().for_each(|v| *v = 0.0);
                     let rest: f64 = others.iter().sum();
                     probabilities[present[0]] = 1.0 - rest;
