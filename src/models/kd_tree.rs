@@ -39,14 +39,11 @@ pub(crate) fn by_distance_then_row(a: &(f64, usize), b: &(f64, usize)) -> Orderi
     a.0.total_cmp(&b.0).then(a.1.cmp(&b.1))
 }
 
-/// A node: the rows `order[start..end]`, their bounding box and, unless a
-/// leaf, its two children.
+/// A node: the rows `order[start..end]` and, unless a leaf, its two
+/// children. Its bounding box is in [`KdTree::bounds`].
 struct Node {
     start: usize,
     end: usize,
-    /// Per dimension, smallest then largest coordinate of the node's rows
-    /// (`2 · dims` values).
-    bounds: Vec<f64>,
     children: Option<(usize, usize)>,
 }
 
@@ -55,7 +52,13 @@ pub(crate) struct KdTree {
     dims: usize,
     /// Row numbers, permuted so each node holds a contiguous range.
     order: Vec<usize>,
+    /// The points in `order`'s order, so a leaf's rows are read from one
+    /// contiguous stretch of memory (the same values, copied).
+    ordered_points: Vec<f64>,
     nodes: Vec<Node>,
+    /// Per node, per dimension, the smallest then the largest coordinate of
+    /// its rows (`2 · dims` values per node, in node order).
+    bounds: Vec<f64>,
 }
 
 /// A candidate in the search heap; the largest (distance, row) on top.
@@ -90,11 +93,18 @@ impl KdTree {
         let mut tree = KdTree {
             dims,
             order: (0..rows).collect(),
+            ordered_points: Vec::new(),
             nodes: Vec::with_capacity(2 * rows / LEAF_SIZE + 1),
+            bounds: Vec::with_capacity((2 * rows / LEAF_SIZE + 1) * 2 * dims),
         };
         if rows > 0 {
             tree.grow(points, 0, rows);
         }
+        tree.ordered_points = tree
+            .order
+            .iter()
+            .flat_map(|&row| points[row * dims..(row + 1) * dims].iter().copied())
+            .collect();
         tree
     }
 
@@ -119,9 +129,9 @@ impl KdTree {
         self.nodes.push(Node {
             start,
             end,
-            bounds,
             children: None,
         });
+        self.bounds.extend_from_slice(&bounds);
         // A leaf when small, or when every row sits at one point.
         if end - start <= LEAF_SIZE || width <= 0.0 {
             return index;
@@ -140,7 +150,7 @@ impl KdTree {
     /// node `index`'s box (see the module documentation on why it never
     /// exceeds a computed distance).
     fn box_bound(&self, index: usize, query: &[f64]) -> f64 {
-        let bounds = &self.nodes[index].bounds;
+        let bounds = &self.bounds[index * 2 * self.dims..(index + 1) * 2 * self.dims];
         query
             .iter()
             .enumerate()
@@ -163,7 +173,6 @@ impl KdTree {
     /// `skip`, if given, is passed over (leave-one-out).
     pub(crate) fn nearest(
         &self,
-        points: &[f64],
         query: &[f64],
         k: usize,
         skip: Option<usize>,
@@ -174,7 +183,7 @@ impl KdTree {
             return;
         }
         let mut heap: BinaryHeap<Candidate> = BinaryHeap::with_capacity(k + 1);
-        self.visit(0, points, query, k, skip, &mut heap);
+        self.visit(0, query, k, skip, &mut heap);
         found.extend(heap.into_sorted_vec().into_iter().map(|c| (c.0, c.1)));
     }
 
@@ -182,7 +191,6 @@ impl KdTree {
     fn visit(
         &self,
         index: usize,
-        points: &[f64],
         query: &[f64],
         k: usize,
         skip: Option<usize>,
@@ -191,11 +199,12 @@ impl KdTree {
         let node = &self.nodes[index];
         match node.children {
             None => {
-                for &row in &self.order[node.start..node.end] {
+                let rows = &self.order[node.start..node.end];
+                let stretch = &self.ordered_points[node.start * self.dims..node.end * self.dims];
+                for (&row, p) in rows.iter().zip(stretch.chunks_exact(self.dims)) {
                     if Some(row) == skip {
                         continue;
                     }
-                    let p = &points[row * self.dims..(row + 1) * self.dims];
                     let candidate = Candidate(squared_distance(p, query), row);
                     if heap.len() < k {
                         heap.push(candidate);
@@ -221,7 +230,7 @@ impl KdTree {
                     let pruned =
                         heap.len() == k && heap.peek().is_some_and(|worst| bound > worst.0);
                     if !pruned {
-                        self.visit(child, points, query, k, skip, heap);
+                        self.visit(child, query, k, skip, heap);
                     }
                 }
             }
@@ -261,7 +270,7 @@ mod tests {
             for q in (0..rows).step_by(7) {
                 let query = &points[q * dims..(q + 1) * dims];
                 for k in [1, 2, 5, 17, 60, rows] {
-                    tree.nearest(&points, query, k, None, &mut found);
+                    tree.nearest(query, k, None, &mut found);
                     assert_eq!(found, scan(&points, dims, query, k), "dims {dims} k {k}");
                 }
             }
@@ -274,7 +283,7 @@ mod tests {
         let points = [0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 2.0, 2.0];
         let tree = KdTree::build(&points, 2);
         let mut found = Vec::new();
-        tree.nearest(&points, &[0.0, 0.0], 3, Some(0), &mut found);
+        tree.nearest(&[0.0, 0.0], 3, Some(0), &mut found);
         assert_eq!(found, vec![(0.0, 2), (1.0, 1), (8.0, 3)]);
     }
 }

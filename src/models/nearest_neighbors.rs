@@ -185,7 +185,7 @@ impl Standardised {
     ) {
         if let Some(tree) = &self.tree {
             // Already the k_max nearest, nearest first.
-            tree.nearest(&self.points, query, k_max, skip, scratch);
+            tree.nearest(query, k_max, skip, scratch);
             return;
         }
         let wanted = k_max + usize::from(skip.is_some());
