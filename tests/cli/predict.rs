@@ -74,12 +74,31 @@ fn predictions_for_the_test_rows_equal_the_reports_final_fit_to_the_bit() {
     let written = std::fs::read_to_string(dir.path().join("predicted.csv")).unwrap();
     let comments: Vec<&str> = written.lines().filter(|l| l.starts_with('#')).collect();
     let body: Vec<&str> = written.lines().filter(|l| !l.starts_with('#')).collect();
-    assert_eq!(body[0], "meter_id,predicted_demand_mwh");
-    for ((line, want), &row) in body[1..].iter().zip(&expected).zip(&rows) {
-        let (key, value) = line.split_once(',').unwrap();
+    // The demo spec sets [intervals]: each row's CV+ interval must equal
+    // the one results.json reports for that test row, to the bit.
+    let bound = |side: &str| -> Vec<f64> {
+        results["intervals"]["test"][side]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect()
+    };
+    let (lower, upper) = (bound("lower"), bound("upper"));
+    assert_eq!(lower.len(), expected.len());
+    assert_eq!(
+        body[0],
+        "meter_id,predicted_demand_mwh,lower_demand_mwh,upper_demand_mwh"
+    );
+    for (i, (line, &row)) in body[1..].iter().zip(&rows).enumerate() {
+        let fields: Vec<&str> = line.split(',').collect();
+        let key = fields[0];
         assert_eq!(key, lines[row].split(',').nth(1).unwrap());
-        let got: f64 = value.parse().unwrap();
-        assert_eq!(got.to_bits(), want.to_bits(), "{key}: {got} vs {want}");
+        for (text, want) in fields[1..].iter().zip([expected[i], lower[i], upper[i]]) {
+            let got: f64 = text.parse().unwrap();
+            assert_eq!(got.to_bits(), want.to_bits(), "{key}: {got} vs {want}");
+        }
+        assert!(lower[i] < expected[i] && expected[i] < upper[i], "{key}");
     }
     assert_eq!(body.len(), expected.len() + 1);
 
@@ -100,6 +119,12 @@ fn predictions_for_the_test_rows_equal_the_reports_final_fit_to_the_bit() {
     assert!(comments
         .iter()
         .any(|c| c.contains(&format!("kept: {kept}"))));
+    assert!(
+        comments
+            .iter()
+            .any(|c| c.contains("intervals: cv+ at level 0.9")),
+        "{comments:?}"
+    );
 }
 
 #[test]
