@@ -123,20 +123,18 @@ pub(crate) fn calibration(
     }
 }
 
-/// Each calibration fold's fit of `candidate` (its whole grid, on the fold's
+/// Each of `folds`' fit of `candidate` (its whole grid, on the fold's
 /// training rows, exactly as the fold task fits it) evaluated at the rows of
-/// `x_eval`; returns setting `setting`'s predictions, per calibration fold.
-/// The fits run in parallel and are gathered in fold order.
-pub(crate) fn fold_predictions_at(
+/// `x_eval`: per fold, per setting, per point. The fits run in parallel and
+/// are gathered in fold order.
+pub(crate) fn fold_grids_at(
     plan: &ExperimentPlan,
     candidate: &CandidatePlan,
-    setting: usize,
-    calibration: &Calibration,
+    folds: &[usize],
     x_eval: &DMatrix<f64>,
-) -> Result<Vec<Vec<f64>>, FitFailure> {
+) -> Result<Vec<Vec<Vec<f64>>>, FitFailure> {
     let a = &plan.assignment;
-    calibration
-        .folds
+    folds
         .par_iter()
         .map(|&f| {
             let train = a.fold_train(f);
@@ -148,16 +146,75 @@ pub(crate) fn fold_predictions_at(
                     x_eval,
                     false,
                 )
-                .map(|mut fits| std::mem::take(&mut fits[setting].eval_pred))
+                .map(|fits| fits.into_iter().map(|fit| fit.eval_pred).collect())
                 .map_err(|cause| FitFailure {
                     candidate: candidate.stem.clone(),
-                    fold: format!("{} (refitted for the intervals)", a.describe_fold(f)),
+                    fold: match &plan.origin {
+                        Some(origin) => format!(
+                            "{origin}, {} (refitted for the intervals)",
+                            a.describe_fold(f)
+                        ),
+                        None => format!("{} (refitted for the intervals)", a.describe_fold(f)),
+                    },
                     cause,
                 })
         })
         .collect::<Vec<_>>()
         .into_iter()
         .collect()
+}
+
+/// Setting `setting`'s predictions at the rows of `x_eval`, per calibration
+/// fold (see [`fold_grids_at`]).
+pub(crate) fn fold_predictions_at(
+    plan: &ExperimentPlan,
+    candidate: &CandidatePlan,
+    setting: usize,
+    calibration: &Calibration,
+    x_eval: &DMatrix<f64>,
+) -> Result<Vec<Vec<f64>>, FitFailure> {
+    Ok(fold_grids_at(plan, candidate, &calibration.folds, x_eval)?
+        .into_iter()
+        .map(|mut grid| std::mem::take(&mut grid[setting]))
+        .collect())
+}
+
+/// How every setting of a candidate's intervals fare at points with known
+/// targets (a simulation's test points): per setting, the share of points
+/// covered and the mean width (infinite when unbounded).
+pub(crate) fn coverage_by_setting(
+    plan: &ExperimentPlan,
+    candidate: &CandidatePlan,
+    fold_predictions: &[Vec<Vec<f64>>],
+    level: f64,
+    rows: &[usize],
+) -> Result<Vec<(f64, f64)>, FitFailure> {
+    let first = calibration(plan, fold_predictions, 0);
+    let grids = fold_grids_at(plan, candidate, &first.folds, &plan.design(candidate, rows))?;
+    Ok((0..candidate.settings.len())
+        .map(|s| {
+            let calibration = calibration(plan, fold_predictions, s);
+            let at: Vec<Vec<f64>> = grids.iter().map(|grid| grid[s].clone()).collect();
+            let ends = bounds(
+                level,
+                &calibration.residuals,
+                &calibration.fold_of,
+                &at,
+                rows.len(),
+            );
+            let covered = rows
+                .iter()
+                .zip(&ends)
+                .filter(|(&row, &(low, high))| low <= plan.target[row] && plan.target[row] <= high)
+                .count();
+            // Summed in point order (determinism).
+            let width: f64 = ends.iter().map(|(low, high)| high - low).sum();
+            (
+                covered as f64 / rows.len() as f64,
+                width / rows.len() as f64,
+            )
+        })
+        .collect())
 }
 
 /// The intervals of `candidate`'s setting `setting` at the rows of `x_eval`.

@@ -68,6 +68,16 @@ pub struct SimulatedSetting {
     pub cv_estimate: f64,
     #[serde(deserialize_with = "lenient::number")]
     pub cv_estimate_se: f64,
+    /// With `[intervals]`: the mean over replicates of the share of test
+    /// points whose fresh test target lies inside this setting's CV+
+    /// interval, its Monte-Carlo standard error, and the mean width (absent
+    /// when the level is too high for the rows, every interval unbounded).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_coverage: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_coverage_se: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_width: Option<f64>,
     /// With `test_grid`: the average fit and the variance at each grid point.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pointwise: Option<PointwiseCurve>,
@@ -132,6 +142,10 @@ pub struct SimulationSummary {
     #[serde(deserialize_with = "lenient::number")]
     pub oracle_expected_mse: f64,
     pub cv: ChoiceSummary,
+    /// With `[intervals]`: the nominal coverage of the intervals whose
+    /// coverage each setting reports.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_level: Option<f64>,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -220,6 +234,17 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         };
         let (train_mse, train_mse_se) = mean_and_se(&column(&|o| o.train_mse[s]));
         let (cv_estimate, cv_estimate_se) = mean_and_se(&column(&|o| o.cv_score[s]));
+        let with_intervals =
+            !outcomes.is_empty() && outcomes.iter().all(|o| o.interval_coverage.len() > s);
+        let (interval_coverage, interval_coverage_se) = if with_intervals {
+            let (mean, se) = mean_and_se(&column(&|o| o.interval_coverage[s].0));
+            (Some(mean), Some(se).filter(|se| se.is_finite()))
+        } else {
+            (None, None)
+        };
+        let interval_width = with_intervals
+            .then(|| mean_and_se(&column(&|o| o.interval_coverage[s].1)).0)
+            .filter(|w| w.is_finite());
         let dfs = column(&|o| o.effective_df[s]);
         let effective_df = if dfs.iter().all(|&v| v == dfs[0]) {
             dfs[0]
@@ -244,6 +269,9 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
             train_mse_se,
             cv_estimate,
             cv_estimate_se,
+            interval_coverage,
+            interval_coverage_se,
+            interval_width,
             pointwise: grid.then_some(PointwiseCurve {
                 mean_fit: d.pointwise.mean_fit,
                 bias_sq: d.pointwise.bias_sq,
@@ -327,6 +355,7 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         oracle: settings[oracle].id.clone(),
         oracle_expected_mse: best,
         cv,
+        interval_level: plan.spec.spec.intervals.map(|iv| iv.level),
     };
 
     let (experiment, fits) = outcomes
