@@ -16,6 +16,7 @@ pub(crate) mod data;
 pub(crate) mod digests;
 pub mod error;
 pub(crate) mod execute;
+pub(crate) mod intervals;
 pub(crate) mod metrics;
 pub mod models;
 pub(crate) mod output;

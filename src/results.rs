@@ -14,9 +14,11 @@ use crate::plan::ExperimentPlan;
 use crate::spec::{Metric, Rule, SplitMethod};
 
 mod classification;
+pub(crate) mod intervals;
 pub use classification::{
     AbsentClasses, CalibrationBin, Classification, TestEvidence, CALIBRATION_BINS,
 };
+pub use intervals::{IntervalTest, Intervals};
 
 pub const SCHEMA: &str = "heldout-results/1";
 
@@ -42,6 +44,10 @@ pub struct Results {
     /// setting's confusion matrix, ROC curve and calibration on the test set.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub classification: Option<Classification>,
+    /// With `[intervals]`: the kept setting's prediction intervals and
+    /// their coverage on the locked test set (docs/intervals.md).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub intervals: Option<Intervals>,
     /// Simulation specs only: `simulation` (the bias–variance decomposition
     /// of every setting) and `simulation_summary` (setup, oracle and
     /// cross-validation's choices), flattened into the top level.
@@ -407,6 +413,7 @@ pub(crate) fn assemble(
             predictions,
         },
         classification,
+        intervals: None,
         candidates,
         simulation: None,
     })

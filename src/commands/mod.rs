@@ -157,6 +157,9 @@ struct Evaluation {
     outputs: Vec<(String, Vec<u8>)>,
     receipt: Receipt,
     summary: Summary,
+    /// The fits behind the results (a table's; empty for a simulation):
+    /// `predict` reads the fold predictions for its intervals.
+    fits: Vec<CandidateFits>,
 }
 
 /// Loads and checks a spec, with where its data may come from as the
@@ -228,7 +231,9 @@ fn evaluate(
     let Some(fits) = fits else {
         return Ok(Err(summary));
     };
-    Ok(Ok(finish(plan, spec_path, &fits, summary, None)?))
+    let mut evaluation = finish(plan, spec_path, &fits, summary, None)?;
+    evaluation.fits = fits;
+    Ok(Ok(evaluation))
 }
 
 /// Runs `work`, which calls `done(cached)` once per finished unit of
@@ -261,6 +266,9 @@ fn finish(
     simulation: Option<crate::simulate::SimulationOutput>,
 ) -> anyhow::Result<Evaluation> {
     let mut results = results::assemble(&plan, fits)?;
+    if simulation.is_none() {
+        results.intervals = results::intervals::assess(&plan, fits, &results)?;
+    }
     results.simulation = simulation;
     let regenerate = regenerate_command(spec_path);
     let spec_text = report::spec_as_read(&plan.spec.spec);
@@ -278,6 +286,7 @@ fn finish(
         outputs,
         receipt,
         summary,
+        fits: Vec::new(),
     })
 }
 

@@ -48,17 +48,10 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     )?
     .map_err(|_| anyhow::anyhow!("predict never shards"))?;
     let plan = &evaluation.plan;
-    if plan.task.task == crate::spec::Task::Classification {
-        return Err(UsageError(format!(
-            "{}: the target holds classes; `heldout predict` writes numeric predictions only \
-             so far (class probabilities are not written yet)",
-            args.spec.display()
-        ))
-        .into());
-    }
     let chosen = &evaluation.results.chosen;
-    let (candidate, setting) = locate(plan, chosen)
+    let (c, setting) = crate::results::intervals::locate(plan, chosen)
         .ok_or_else(|| anyhow::anyhow!("the kept setting {chosen} is not among the candidates"))?;
+    let candidate = &plan.candidates[c];
 
     let key = plan.spec.data().key.clone();
     let new = data::load(
@@ -77,11 +70,12 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     let train = &plan.assignment.train;
     let fits = candidate
         .family
-        .fit_path(
+        .fit_classes(
             &plan.design(candidate, train),
             &plan.target_of(train),
             &x_new,
             plan.full_fit.final_fit,
+            plan.task.class_count(),
         )
         .map_err(|cause| crate::error::FitFailure {
             candidate: candidate.stem.clone(),
@@ -93,19 +87,50 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
         .ok_or_else(|| anyhow::anyhow!("the refit of {chosen} returned no fit for it"))?
         .eval_pred;
 
+    // CV+ intervals from the same fold predictions the report's came from
+    // (docs/intervals.md), so a locked test row gets the report's interval.
+    let intervals = match plan.spec.spec.intervals {
+        Some(spec) => Some(
+            crate::intervals::intervals_at(
+                plan,
+                candidate,
+                setting,
+                &evaluation.fits[c].fold_predictions,
+                spec.level,
+                &x_new,
+            )?
+            .1,
+        ),
+        None => None,
+    };
+
     if !args.quiet {
         for warning in extrapolation(plan, candidate, &new) {
             eprintln!("warning: {}: {warning}", args.table.display());
         }
     }
-    let header = provenance(&args.spec, plan, chosen, train.len())?;
-    let bytes = write_csv(
-        &header,
-        key.as_deref(),
-        &new,
-        &plan.spec.data().target,
-        predicted,
-    )?;
+    let mut header = provenance(&args.spec, plan, chosen, train.len())?;
+    if let (Some(iv), Some(_)) = (&evaluation.results.intervals, &intervals) {
+        header.push(format!(
+            "intervals: {} at level {} from the out-of-fold residuals of the {} non-test rows \
+             ({} folds){}",
+            iv.method,
+            iv.level,
+            iv.calibration_rows,
+            iv.folds,
+            if iv.bounded {
+                ""
+            } else {
+                "; too few rows for the level, so every interval is the whole line"
+            }
+        ));
+    }
+    let columns = Columns {
+        key: key.as_deref(),
+        target: &plan.spec.data().target,
+        classes: plan.task.classes.as_ref().map(|c| c.labels.as_slice()),
+    };
+    let bytes = write_csv(&header, &columns, &new, predicted, intervals.as_deref())?;
     match &args.output {
         Some(path) => {
             crate::output::write_atomic(path, &bytes)?;
@@ -120,17 +145,6 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
         None => std::io::stdout().write_all(&bytes)?,
     }
     Ok(())
-}
-
-/// The candidate and setting index whose id is `id`.
-fn locate<'a>(plan: &'a ExperimentPlan, id: &str) -> Option<(&'a CandidatePlan, usize)> {
-    plan.candidates.iter().find_map(|candidate| {
-        candidate
-            .settings
-            .iter()
-            .position(|setting| candidate.id(setting) == id)
-            .map(|s| (candidate, s))
-    })
 }
 
 /// One warning per feature with new values outside the range the fit saw.
@@ -194,15 +208,26 @@ fn provenance(
     ])
 }
 
+/// What names the output's columns.
+struct Columns<'a> {
+    /// The spec's row key, or `row` (the 1-based data row).
+    key: Option<&'a str>,
+    target: &'a str,
+    /// A class target's labels in class order.
+    classes: Option<&'a [String]>,
+}
+
 /// The CSV: comment lines, then one row per new row, named by the spec's key
-/// or by its 1-based data row, with its prediction in shortest round-trip
-/// form.
+/// or by its 1-based data row. A number target: the prediction, then the
+/// interval's ends when there are intervals (`inf` / `-inf` when unbounded).
+/// A class target: the predicted class (the most probable), then each
+/// class's probability in class order. Numbers in shortest round-trip form.
 fn write_csv(
     header: &[String],
-    key: Option<&str>,
+    columns: &Columns<'_>,
     new: &Table,
-    target: &str,
     predicted: &[f64],
+    intervals: Option<&[(f64, f64)]>,
 ) -> anyhow::Result<Vec<u8>> {
     let mut bytes = Vec::new();
     for line in header {
@@ -210,14 +235,46 @@ fn write_csv(
         writeln!(bytes, "# {}", line.replace(['\n', '\r'], " "))?;
     }
     let mut writer = csv::Writer::from_writer(bytes);
-    let column = format!("predicted_{target}");
-    writer.write_record([key.unwrap_or("row"), column.as_str()])?;
-    for (i, value) in predicted.iter().enumerate() {
-        let name = match key {
+    let target = columns.target;
+    let mut names = vec![
+        columns.key.unwrap_or("row").to_string(),
+        format!("predicted_{target}"),
+    ];
+    if intervals.is_some() {
+        names.push(format!("lower_{target}"));
+        names.push(format!("upper_{target}"));
+    }
+    if let Some(labels) = columns.classes {
+        names.extend(labels.iter().map(|l| format!("probability_{l}")));
+    }
+    writer.write_record(&names)?;
+    let layout = crate::metrics::ClassPrediction {
+        classes: columns.classes.map_or(0, <[String]>::len),
+    };
+    for i in 0..new.len() {
+        let mut record = vec![match columns.key {
             Some(key) => new.text_column(key)[i].clone(),
             None => new.row_numbers[i].to_string(),
-        };
-        writer.write_record([name, format!("{value:?}")])?;
+        }];
+        match columns.classes {
+            None => {
+                record.push(format!("{:?}", predicted[i]));
+                if let Some(bounds) = intervals {
+                    record.push(format!("{:?}", bounds[i].0));
+                    record.push(format!("{:?}", bounds[i].1));
+                }
+            }
+            Some(labels) => {
+                record.push(labels[layout.class(predicted, i)].clone());
+                record.extend(
+                    layout
+                        .probabilities(predicted, i)
+                        .iter()
+                        .map(|p| format!("{p:?}")),
+                );
+            }
+        }
+        writer.write_record(&record)?;
     }
     writer
         .into_inner()

@@ -111,6 +111,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
         choice,
         test_score: Some(1.0),
         classification: None,
+        intervals: None,
         simulation: None,
     }
 }

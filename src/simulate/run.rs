@@ -288,6 +288,10 @@ pub(crate) struct ReplicateOutcome {
     /// Index of the setting the spec's rule chose on this replicate.
     pub(crate) chosen: usize,
     pub(crate) test_noise: Vec<f64>,
+    /// With `[intervals]`, per setting: the share of test points whose test
+    /// target lies inside the setting's CV+ interval, and the mean width
+    /// (docs/simulation.md); empty otherwise.
+    pub(crate) interval_coverage: Vec<(f64, f64)>,
     /// Replicate 1 only: its plan and fits, as the ordinary pipeline holds them.
     pub(crate) first: Option<(ExperimentPlan, Vec<CandidateFits>)>,
 }
@@ -313,6 +317,7 @@ pub(crate) fn run_replicate(
         effective_df: Vec::new(),
         chosen: 0,
         test_noise: replicate.test_noise.clone(),
+        interval_coverage: Vec::new(),
         first: None,
     };
     let fold_targets: Vec<Vec<f64>> = replicate
@@ -381,6 +386,19 @@ pub(crate) fn run_replicate(
             cause,
         })?
         .chosen;
+    if let Some(intervals) = plan.spec.spec.intervals {
+        for (candidate, fitted) in plan.candidates.iter().zip(&fits) {
+            outcome
+                .interval_coverage
+                .extend(crate::intervals::coverage_by_setting(
+                    &experiment,
+                    candidate,
+                    &fitted.fold_predictions,
+                    intervals.level,
+                    &experiment.assignment.test,
+                )?);
+        }
+    }
     if replicate.index == 0 {
         outcome.first = Some((experiment, fits));
     }

@@ -89,6 +89,16 @@ pub struct SimulatedSetting {
         deserialize_with = "lenient::optional_number"
     )]
     pub train_error_rate: Option<f64>,
+    /// With `[intervals]`: the mean over replicates of the share of test
+    /// points whose fresh test target lies inside this setting's CV+
+    /// interval, its Monte-Carlo standard error, and the mean width (absent
+    /// when the level is too high for the rows, every interval unbounded).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_coverage: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_coverage_se: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_width: Option<f64>,
     /// With `test_grid`: the average fit and the variance at each grid point.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pointwise: Option<PointwiseCurve>,
@@ -170,6 +180,10 @@ pub struct SimulationSummary {
     #[serde(deserialize_with = "lenient::number")]
     pub oracle_expected_mse: f64,
     pub cv: ChoiceSummary,
+    /// With `[intervals]`: the nominal coverage of the intervals whose
+    /// coverage each setting reports.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval_level: Option<f64>,
 }
 
 /// A simulation of class labels 0 and 1, where the truth is P(label = 1 | x).
@@ -307,6 +321,17 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         let error_rate = classification.then(|| mean_and_se(&column(&|o| o.test_error_rate[s])));
         let train_error_rate =
             classification.then(|| mean_and_se(&column(&|o| o.train_error_rate[s])).0);
+        let with_intervals =
+            !outcomes.is_empty() && outcomes.iter().all(|o| o.interval_coverage.len() > s);
+        let (interval_coverage, interval_coverage_se) = if with_intervals {
+            let (mean, se) = mean_and_se(&column(&|o| o.interval_coverage[s].0));
+            (Some(mean), Some(se).filter(|se| se.is_finite()))
+        } else {
+            (None, None)
+        };
+        let interval_width = with_intervals
+            .then(|| mean_and_se(&column(&|o| o.interval_coverage[s].1)).0)
+            .filter(|w| w.is_finite());
         let dfs = column(&|o| o.effective_df[s]);
         let effective_df = if dfs.iter().all(|&v| v == dfs[0]) {
             dfs[0]
@@ -334,6 +359,9 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
             expected_error_rate: error_rate.map(|e| e.0),
             expected_error_rate_se: error_rate.map(|e| e.1),
             train_error_rate,
+            interval_coverage,
+            interval_coverage_se,
+            interval_width,
             pointwise: grid.then_some(PointwiseCurve {
                 mean_fit: d.pointwise.mean_fit,
                 bias_sq: d.pointwise.bias_sq,
@@ -435,6 +463,7 @@ pub(crate) fn summarise(plan: SimulationPlan, mut outcomes: Vec<ReplicateOutcome
         oracle: settings[oracle].id.clone(),
         oracle_expected_mse: settings[oracle].expected_mse,
         cv,
+        interval_level: plan.spec.spec.intervals.map(|iv| iv.level),
     };
 
     let (experiment, fits) = outcomes

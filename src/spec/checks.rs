@@ -3,7 +3,7 @@
 
 use std::collections::BTreeSet;
 
-use super::{limits, DataSpec, FamilySpec, SpecFile, SplitMethod, SplitSpec, Task};
+use super::{limits, DataSpec, FamilySpec, IntervalsSpec, SpecFile, SplitMethod, SplitSpec, Task};
 use crate::error::SpecError;
 
 pub(super) fn validate_data(
@@ -147,6 +147,35 @@ pub(super) fn validate_split(
     Ok(())
 }
 
+/// `[intervals]`: a level strictly inside (0, 1), and folds that leave every
+/// non-test row out exactly once (CV+ needs each row's out-of-fold residual;
+/// forward-chaining folds never validate the first block).
+pub(super) fn validate_intervals(
+    intervals: &IntervalsSpec,
+    split: &SplitSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if !(intervals.level > 0.0 && intervals.level < 1.0) {
+        return Err(invalid(
+            "intervals.level",
+            format!(
+                "{} is outside (0, 1): it is the intervals' nominal coverage, such as 0.9",
+                intervals.level
+            ),
+        ));
+    }
+    if split.method == SplitMethod::Ordered {
+        return Err(invalid(
+            "intervals",
+            "CV+ intervals need folds that leave every non-test row out once; ordered \
+             (forward-chaining) folds never validate the earliest rows. Use another split \
+             method or remove [intervals]"
+                .into(),
+        ));
+    }
+    Ok(())
+}
+
 /// What a task demands of the rest of the spec: a metric of its kind (when
 /// one is named) and families that predict its kind of target, and
 /// `positive` only for classification. Used when `[data] task` is declared
@@ -211,6 +240,14 @@ pub(crate) fn check_task(
                 "names the positive class of a class target; a regression target has none".into(),
             ));
         }
+    }
+    if task == Task::Classification && spec.intervals.is_some() {
+        return Err((
+            "intervals".into(),
+            "prediction sets for a class target are not built yet; [intervals] applies to a \
+             numeric target (remove it, or predict a number)"
+                .into(),
+        ));
     }
     Ok(())
 }

@@ -196,6 +196,9 @@ pub(crate) fn validate(path: &Path, spec: &SpecFile) -> Result<Vec<FamilySpec>, 
         }
     };
     checks::validate_split(&spec.split, &invalid)?;
+    if let Some(intervals) = &spec.intervals {
+        checks::validate_intervals(intervals, &spec.split, &invalid)?;
+    }
 
     if spec.candidates.is_empty() {
         return Err(invalid(

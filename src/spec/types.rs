@@ -24,6 +24,18 @@ pub(crate) struct SpecFile {
     pub(crate) choose: ChooseSpec,
     #[serde(default)]
     pub(crate) report: ReportSpec,
+    /// Prediction intervals for the kept setting (CV+ / jackknife+); off
+    /// when absent (docs/intervals.md).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) intervals: Option<IntervalsSpec>,
+}
+
+/// `[intervals]`: the nominal coverage of the prediction intervals.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct IntervalsSpec {
+    /// Nominal coverage 1 − α, strictly between 0 and 1 (e.g. 0.9).
+    pub(crate) level: f64,
 }
 
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]

@@ -12,6 +12,7 @@ mod cv_reference;
 mod demo;
 mod fuzz;
 mod hostile;
+mod intervals;
 mod json;
 mod nist;
 mod ordered;

@@ -9,16 +9,27 @@ use crate::{demo, util};
 
 /// The demo table's lines (header first).
 fn demo_lines(dir: &Path) -> Vec<String> {
-    std::fs::read_to_string(dir.join("demo-data/heat-demand.csv"))
+    table_lines(dir, "heat-demand")
+}
+
+/// A demo table's lines (header first).
+fn table_lines(dir: &Path, name: &str) -> Vec<String> {
+    std::fs::read_to_string(dir.join(format!("demo-data/{name}.csv")))
         .unwrap()
         .lines()
         .map(str::to_string)
         .collect()
 }
 
-/// 1-based data rows of the locked test set, from `heldout folds`.
+/// 1-based data rows of the heat-demand demo's locked test set.
 fn test_rows(dir: &Path) -> Vec<usize> {
-    let output = util::run_in(dir, &["folds", "specs/heat-demand.toml"]);
+    spec_test_rows(dir, "heat-demand")
+}
+
+/// 1-based data rows of a demo spec's locked test set, from `heldout folds`.
+fn spec_test_rows(dir: &Path, name: &str) -> Vec<usize> {
+    let spec = format!("specs/{name}.toml");
+    let output = util::run_in(dir, &["folds", spec.as_str()]);
     util::assert_success(&output);
     let mut rows: Vec<usize> = util::stdout_of(&output)
         .lines()
@@ -74,12 +85,31 @@ fn predictions_for_the_test_rows_equal_the_reports_final_fit_to_the_bit() {
     let written = std::fs::read_to_string(dir.path().join("predicted.csv")).unwrap();
     let comments: Vec<&str> = written.lines().filter(|l| l.starts_with('#')).collect();
     let body: Vec<&str> = written.lines().filter(|l| !l.starts_with('#')).collect();
-    assert_eq!(body[0], "meter_id,predicted_demand_mwh");
-    for ((line, want), &row) in body[1..].iter().zip(&expected).zip(&rows) {
-        let (key, value) = line.split_once(',').unwrap();
+    // The demo spec sets [intervals]: each row's CV+ interval must equal
+    // the one results.json reports for that test row, to the bit.
+    let bound = |side: &str| -> Vec<f64> {
+        results["intervals"]["test"][side]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect()
+    };
+    let (lower, upper) = (bound("lower"), bound("upper"));
+    assert_eq!(lower.len(), expected.len());
+    assert_eq!(
+        body[0],
+        "meter_id,predicted_demand_mwh,lower_demand_mwh,upper_demand_mwh"
+    );
+    for (i, (line, &row)) in body[1..].iter().zip(&rows).enumerate() {
+        let fields: Vec<&str> = line.split(',').collect();
+        let key = fields[0];
         assert_eq!(key, lines[row].split(',').nth(1).unwrap());
-        let got: f64 = value.parse().unwrap();
-        assert_eq!(got.to_bits(), want.to_bits(), "{key}: {got} vs {want}");
+        for (text, want) in fields[1..].iter().zip([expected[i], lower[i], upper[i]]) {
+            let got: f64 = text.parse().unwrap();
+            assert_eq!(got.to_bits(), want.to_bits(), "{key}: {got} vs {want}");
+        }
+        assert!(lower[i] < expected[i] && expected[i] < upper[i], "{key}");
     }
     assert_eq!(body.len(), expected.len() + 1);
 
@@ -100,6 +130,12 @@ fn predictions_for_the_test_rows_equal_the_reports_final_fit_to_the_bit() {
     assert!(comments
         .iter()
         .any(|c| c.contains(&format!("kept: {kept}"))));
+    assert!(
+        comments
+            .iter()
+            .any(|c| c.contains("intervals: cv+ at level 0.9")),
+        "{comments:?}"
+    );
 }
 
 #[test]
@@ -138,4 +174,65 @@ fn new_rows_outside_the_training_range_are_counted_and_missing_columns_refused()
         stderr.contains("short.csv") && stderr.contains("no column named \"outdoor_c\""),
         "{stderr}"
     );
+}
+
+#[test]
+fn class_targets_get_each_class_probability_equal_to_the_reports_final_fit() {
+    let dir = tempfile::tempdir().unwrap();
+    demo::copy_demo(dir.path());
+    let root = util::crate_root();
+    for file in [
+        "specs/substation-descaling.toml",
+        "demo-data/substation-descaling.csv",
+    ] {
+        std::fs::copy(root.join(file), dir.path().join(file)).unwrap();
+    }
+    util::assert_success(&util::run_in(
+        dir.path(),
+        &["run", "--quiet", "specs/substation-descaling.toml"],
+    ));
+    let results = util::read_json(&dir.path().join("out/substation-descaling/results.json"));
+    // A binary target's final predictions are the positive class's
+    // probability (`yes`).
+    let expected: Vec<f64> = results["final"]["predictions"]["test"]["predicted"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    let rows = spec_test_rows(dir.path(), "substation-descaling");
+    assert_eq!(rows.len(), expected.len());
+    let lines = table_lines(dir.path(), "substation-descaling");
+    let mut new = format!("{}\n", lines[0]);
+    for &row in &rows {
+        new.push_str(&lines[row]);
+        new.push('\n');
+    }
+    std::fs::write(dir.path().join("new.csv"), new).unwrap();
+    let output = util::run_in(
+        dir.path(),
+        &[
+            "predict",
+            "specs/substation-descaling.toml",
+            "--table",
+            "new.csv",
+        ],
+    );
+    util::assert_success(&output);
+    let stdout = util::stdout_of(&output);
+    let body: Vec<&str> = stdout.lines().filter(|l| !l.starts_with('#')).collect();
+    assert_eq!(
+        body[0],
+        "inspection_id,predicted_descale,probability_no,probability_yes"
+    );
+    assert_eq!(body.len(), expected.len() + 1);
+    for (line, want) in body[1..].iter().zip(&expected) {
+        let fields: Vec<&str> = line.split(',').collect();
+        let no: f64 = fields[2].parse().unwrap();
+        let yes: f64 = fields[3].parse().unwrap();
+        assert_eq!(yes.to_bits(), want.to_bits(), "{line}");
+        assert!((no + yes - 1.0).abs() < 1e-12, "{line}");
+        let most = if yes > no { "yes" } else { "no" };
+        assert_eq!(fields[1], most, "{line}");
+    }
 }

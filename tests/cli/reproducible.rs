@@ -272,6 +272,8 @@ choose:
   rule: one-se
 report:
   formats: [markdown, html]
+intervals:
+  level: 0.9
 "#;
 
 #[test]

@@ -74,6 +74,28 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
                 .collect(),
         }
     };
+    // The prediction intervals at the test rows, as (x, lower, upper) in
+    // feature order, when the spec asked for them and they are bounded.
+    let band: Vec<(f64, f64, f64)> = match (&results.intervals, one_feature) {
+        (Some(iv), Some(_)) if iv.bounded => iv
+            .test
+            .as_ref()
+            .and_then(|t| t.x.as_ref().map(|x| (x, t)))
+            .map(|(x, t)| {
+                let mut band: Vec<(f64, f64, f64)> = x
+                    .iter()
+                    .zip(t.lower.iter().zip(&t.upper))
+                    .map(|(&x, (&low, &high))| (x, low, high))
+                    .filter(|p| p.0.is_finite() && p.1.is_finite() && p.2.is_finite())
+                    .collect();
+                band.sort_by(|a, b| a.0.total_cmp(&b.0));
+                band
+            })
+            .unwrap_or_default(),
+        _ => Vec::new(),
+    };
+    let band_low: Vec<f64> = band.iter().map(|p| p.1).collect();
+    let band_high: Vec<f64> = band.iter().map(|p| p.2).collect();
     let train_points = points(train);
     let test_points = test.map(points).unwrap_or_default();
 
@@ -85,6 +107,8 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
                 xs.extend(t.x.as_deref());
                 ys.push(&t.observed);
             }
+            ys.push(&band_low);
+            ys.push(&band_high);
             let (x_low, x_high) = extent(xs);
             let (y_low, y_high) = extent(ys);
             (
@@ -143,6 +167,27 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
         ),
     });
 
+    if !band.is_empty() {
+        if let Some(iv) = &results.intervals {
+            entries.push((
+                Swatch::Line {
+                    colour,
+                    dashed: true,
+                    width: 1,
+                },
+                format!(
+                    "{} interval at the test rows, level {}",
+                    if iv.method == "cv+" {
+                        "CV+"
+                    } else {
+                        &iv.method
+                    },
+                    iv.level
+                ),
+            ));
+        }
+    }
+
     let (x_words, y_words) = match one_feature {
         Some((feature, _)) => (feature.to_string(), target.clone()),
         None => (
@@ -176,6 +221,16 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
             let pixels: Vec<(i32, i32)> = curve.iter().map(at).collect();
             polyline(root, &pixels, colour.stroke_width(3), false)?;
         }
+        for side in [&band_low, &band_high] {
+            if side.len() > 1 {
+                let pixels: Vec<(i32, i32)> = band
+                    .iter()
+                    .zip(side.iter())
+                    .map(|(p, &y)| at(&(p.0, y)))
+                    .collect();
+                polyline(root, &pixels, colour.stroke_width(1), true)?;
+            }
+        }
         for p in test_points
             .iter()
             .filter(|p| p.0.is_finite() && p.1.is_finite())
@@ -195,10 +250,23 @@ pub(crate) fn render(results: &Results) -> Result<Figure, FigureError> {
         ),
         _ => " There is no locked test set (holdout = 0).".to_string(),
     };
+    let band_words =
+        match &results.intervals {
+            Some(iv) if !band.is_empty() => {
+                format!(
+            " The dashed lines join the ends of the {} prediction intervals (level {}) at the \
+             locked test rows.",
+            if iv.method == "cv+" { "CV+" } else { &iv.method },
+            iv.level
+        )
+            }
+            _ => String::new(),
+        };
     let caption = match one_feature {
         Some((feature, _)) => format!(
             "{target} against {feature}: training rows (grey rings), locked test rows (ink \
-             dots), and the kept setting, {}, refitted on all training rows (line).{test_words}",
+             dots), and the kept setting, {}, refitted on all training rows (line).{test_words}\
+             {band_words}",
             results.chosen
         ),
         None => format!(
