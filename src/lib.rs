@@ -15,6 +15,7 @@ pub mod commands;
 pub(crate) mod data;
 pub(crate) mod digests;
 pub mod error;
+pub(crate) mod evidence;
 pub(crate) mod execute;
 pub(crate) mod intervals;
 pub(crate) mod metrics;

@@ -15,10 +15,14 @@ use crate::spec::{Metric, Rule, SplitMethod};
 
 mod classification;
 pub(crate) mod intervals;
+mod selection;
 pub use classification::{
     AbsentClasses, CalibrationBin, Classification, TestEvidence, CALIBRATION_BINS,
 };
 pub use intervals::{IntervalTest, Intervals};
+pub use selection::{
+    Duplicates, Leakage, Nested, Paired, PairedComparison, SharedGroups, TargetCopy, TestInterval,
+};
 
 pub const SCHEMA: &str = "heldout-results/1";
 
@@ -38,6 +42,23 @@ pub struct Results {
     pub chosen: String,
     pub choice: ChoiceSummary,
     pub test_score: Option<f64>,
+    /// The locked test score's 95% interval (absent for r2 and auc, or
+    /// without a test set).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub test_interval: Option<TestInterval>,
+    /// `[choose] peek = true`: every setting was scored on the test set, so
+    /// the kept setting's test score is no longer unbiased.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub peek: bool,
+    /// Fold-wise differences between the kept setting and its rivals.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub paired: Option<Paired>,
+    /// The leakage inspection (always run; empty lists when clean).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub leakage: Option<Leakage>,
+    /// `[choose] nested = true`: the whole selection rerun in outer folds.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub nested: Option<Nested>,
     #[serde(rename = "final")]
     pub final_fit: FinalFit,
     /// Class targets only: classes, folds lacking a class, and the kept
@@ -132,6 +153,13 @@ pub struct CandidateResult {
     pub cv_se: f64,
     #[serde(deserialize_with = "lenient::numbers")]
     pub fold_scores: Vec<f64>,
+    /// Score on the locked test set: only with `[choose] peek = true`.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "lenient::optional_number"
+    )]
+    pub test_score: Option<f64>,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -286,6 +314,7 @@ pub(crate) fn assemble(
                 cv_score: score.cv_score,
                 cv_se: score.cv_se,
                 fold_scores: score.fold_scores.clone(),
+                test_score: None,
             });
             scores.push(score);
             locate.push((c, s));
@@ -304,6 +333,12 @@ pub(crate) fn assemble(
             .count(),
         None => 1,
     };
+    let evidence = crate::evidence::gather(plan, fits, &scores, &locate, chosen, best);
+    if let Some(test_scores) = &evidence.test_scores {
+        for (candidate, score) in candidates.iter_mut().zip(test_scores) {
+            candidate.test_score = Some(*score);
+        }
+    }
     let (c, s) = locate[chosen];
     let chosen_fit = &fits[c].full[s];
     let chosen_features = plan.candidates[c].features.as_slice();
@@ -405,6 +440,11 @@ pub(crate) fn assemble(
             eligible,
         },
         test_score,
+        test_interval: evidence.test_interval,
+        peek: evidence.test_scores.is_some(),
+        paired: evidence.paired,
+        leakage: Some(evidence.leakage),
+        nested: None,
         final_fit: FinalFit {
             id: scores[chosen].id.clone(),
             test_score,
@@ -484,17 +524,17 @@ pub mod lenient {
         Ok(or_nan(Option::deserialize(d)?))
     }
 
-    pub(crate) fn numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
-        let values: Vec<Option<f64>> = Vec::deserialize(d)?;
-        Ok(values.into_iter().map(or_nan).collect())
-    }
-
-    /// An optional number: called only when the key is present, so `null`
-    /// (a non-finite number written by serde_json) reads as NaN.
+    /// A number that may be absent (`None`, with `#[serde(default)]`) or
+    /// `null` (NaN): called only when the key is present.
     pub(crate) fn optional_number<'de, D: Deserializer<'de>>(
         d: D,
     ) -> Result<Option<f64>, D::Error> {
         Ok(Some(or_nan(Option::deserialize(d)?)))
+    }
+
+    pub(crate) fn numbers<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
+        let values: Vec<Option<f64>> = Vec::deserialize(d)?;
+        Ok(values.into_iter().map(or_nan).collect())
     }
 
     pub(crate) fn optional_numbers<'de, D: Deserializer<'de>>(

@@ -208,13 +208,38 @@ fn evaluate_spec(
             plan.table.path.display()
         );
     }
+    check_leakage(&plan, spec_path)?;
     evaluate(plan, spec_path, policy, shard, show_progress)
+}
+
+/// Warns of every leakage finding before anything is fitted, or stops with
+/// bad input under `[choose] leakage = "error"` (docs/reports.md, "Leakage").
+fn check_leakage(plan: &ExperimentPlan, spec_path: &Path) -> anyhow::Result<()> {
+    let findings = crate::evidence::leakage::describe(&crate::evidence::leakage::of_plan(plan));
+    if findings.is_empty() {
+        return Ok(());
+    }
+    if plan.spec.spec.choose.leakage == crate::spec::LeakagePolicy::Error {
+        return Err(crate::error::DataError::Table {
+            path: plan.table.path.clone(),
+            message: format!(
+                "leakage ([choose] leakage = \"error\" in {}): {}",
+                spec_path.display(),
+                findings.join("; ")
+            ),
+        }
+        .into());
+    }
+    for finding in findings {
+        eprintln!("warning: {}: leakage: {finding}", spec_path.display());
+    }
+    Ok(())
 }
 
 /// Fits (through the cache policy) and renders a planned spec, or only fills
 /// the cache for a shard (then returns `Ok(Err(summary))`).
 fn evaluate(
-    plan: ExperimentPlan,
+    mut plan: ExperimentPlan,
     spec_path: &Path,
     policy: CachePolicy<'_>,
     shard: Option<Shard>,
@@ -231,9 +256,46 @@ fn evaluate(
     let Some(fits) = fits else {
         return Ok(Err(summary));
     };
-    let mut evaluation = finish(plan, spec_path, &fits, summary, None)?;
+    let (nested, nested_summary) = nested_selection(&mut plan, policy, show_progress)?;
+    let mut summary = summary;
+    summary.absorb(nested_summary);
+    let mut evaluation = finish(plan, spec_path, &fits, summary, None, nested)?;
     evaluation.fits = fits;
     Ok(Ok(evaluation))
+}
+
+/// `[choose] nested = true`: the whole selection rerun in outer folds,
+/// through the same cache (docs/reports.md, "Nested cross-validation").
+fn nested_selection(
+    plan: &mut ExperimentPlan,
+    policy: CachePolicy<'_>,
+    show_progress: bool,
+) -> anyhow::Result<(Option<results::Nested>, Summary)> {
+    use crate::evidence::nested::{self, NestedError};
+    if !plan.spec.spec.choose.nested {
+        return Ok((None, Summary::default()));
+    }
+    let spec_path = plan.spec.path.clone();
+    let spec_key = |key: &str, message: String| crate::error::DataError::SpecKey {
+        path: spec_path.clone(),
+        key: key.to_string(),
+        message,
+    };
+    let assignments = match nested::assignments(plan) {
+        Ok(a) => a,
+        Err(e @ NestedError::Method(_)) => {
+            return Err(spec_key("choose.nested", e.to_string()).into())
+        }
+        Err(e) => return Err(spec_key("split", e.to_string()).into()),
+    };
+    let total = nested::task_count(plan, &assignments);
+    let (nested, summary) = with_progress("nested", total, "fits", show_progress, |done| {
+        nested::run(plan, assignments, policy, done).map_err(|e| match e {
+            NestedError::Execute(e) => anyhow::Error::from(e),
+            other => spec_key("split", other.to_string()).into(),
+        })
+    })?;
+    Ok((Some(nested), summary))
 }
 
 /// Runs `work`, which calls `done(cached)` once per finished unit of
@@ -264,12 +326,19 @@ fn finish(
     fits: &[CandidateFits],
     summary: Summary,
     simulation: Option<crate::simulate::SimulationOutput>,
+    nested: Option<results::Nested>,
 ) -> anyhow::Result<Evaluation> {
     let mut results = results::assemble(&plan, fits)?;
     if simulation.is_none() {
         results.intervals = results::intervals::assess(&plan, fits, &results)?;
     }
     results.simulation = simulation;
+    let kept_cv = results
+        .candidates
+        .iter()
+        .find(|c| c.id == results.chosen)
+        .map_or(f64::NAN, |c| c.cv_score);
+    results.nested = nested.map(|n| crate::evidence::nested::with_kept_cv(n, kept_cv));
     let regenerate = regenerate_command(spec_path);
     let spec_text = report::spec_as_read(&plan.spec.spec);
     let inputs = report::ReportInputs {

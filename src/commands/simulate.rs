@@ -42,13 +42,20 @@ pub(super) fn evaluate(
     let Some(outcomes) = outcomes else {
         return Ok(Err(summary));
     };
-    let simulated = simulate::summarise(plan, outcomes);
+    let mut simulated = simulate::summarise(plan, outcomes);
+    // Nested cross-validation, when asked for, runs on replicate 1 as the
+    // report's table sections do.
+    let (nested, nested_summary) =
+        super::nested_selection(&mut simulated.plan, policy, show_progress)?;
+    let mut summary = summary;
+    summary.absorb(nested_summary);
     Ok(Ok(super::finish(
         simulated.plan,
         spec_path,
         &simulated.fits,
         summary,
         Some(simulated.output),
+        nested,
     )?))
 }
 

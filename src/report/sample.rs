@@ -28,6 +28,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             cv_score: cv,
             cv_se: se,
             fold_scores: vec![cv; 5],
+            test_score: None,
         })
         .collect();
     let best = candidates
@@ -110,6 +111,11 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
         chosen,
         choice,
         test_score: Some(1.0),
+        test_interval: None,
+        peek: false,
+        paired: None,
+        leakage: None,
+        nested: None,
         classification: None,
         intervals: None,
         simulation: None,

@@ -16,6 +16,13 @@ pub(crate) fn render(results: &Results) -> String {
         .max(9);
     let metric = results.metric.name();
     let mut out = String::new();
+    if results.peek {
+        let _ = writeln!(
+            out,
+            "NOTE: [choose] peek = true scored every setting on the locked test set, so the kept \
+             setting's test score is no longer an unbiased estimate of its error"
+        );
+    }
     let _ = writeln!(
         out,
         "{:<id_width$}  {:>8}  {:>10}  {:>10}  {:>9}",
@@ -49,12 +56,23 @@ pub(crate) fn render(results: &Results) -> String {
     let _ = write!(out, "kept {} by the {rule}", results.chosen);
     match results.test_score {
         Some(score) => {
-            let _ = writeln!(
+            let _ = write!(
                 out,
                 "; test {metric} on {} locked rows: {}",
                 results.rows.test,
                 format_number(score)
             );
+            match &results.test_interval {
+                Some(i) => {
+                    let _ = writeln!(
+                        out,
+                        " (95% interval {} to {})",
+                        format_number(i.low),
+                        format_number(i.high)
+                    );
+                }
+                None => out.push('\n'),
+            }
         }
         None => out.push_str("; no locked test set\n"),
     }

@@ -163,6 +163,34 @@ pub(crate) struct ChooseSpec {
     pub(crate) metric: Option<Metric>,
     #[serde(default)]
     pub(crate) rule: Rule,
+    /// Score every setting on the locked test set, not only the kept one.
+    /// The test score is then no longer an unbiased estimate (the report
+    /// and the summary say so).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub(crate) peek: bool,
+    /// What a leakage finding does: `warn` (default) or `error` (exit 2).
+    #[serde(default, skip_serializing_if = "LeakagePolicy::is_warn")]
+    pub(crate) leakage: LeakagePolicy,
+    /// Nested cross-validation: outer folds each rerun the whole selection.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub(crate) nested: bool,
+}
+
+/// What a leakage finding does (docs/reports.md, "Leakage").
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq, Eq, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum LeakagePolicy {
+    /// Warn on stderr and in the report.
+    #[default]
+    Warn,
+    /// Stop with exit code 2, naming the rows.
+    Error,
+}
+
+impl LeakagePolicy {
+    fn is_warn(&self) -> bool {
+        *self == LeakagePolicy::Warn
+    }
 }
 
 /// Scoring metric: `mse`, `rmse`, `mae`, `r2` for regression targets;

@@ -11,6 +11,7 @@ mod completions;
 mod cv_reference;
 mod demo;
 mod fuzz;
+mod honest;
 mod hostile;
 mod intervals;
 mod json;

@@ -834,6 +834,7 @@ mod tests {
             cv_score: 0.0,
             cv_se: 0.0,
             fold_scores: vec![],
+            test_score: None,
         };
         let styles = family_styles(&[
             candidate("polynomial/degree=1"),
