@@ -14,7 +14,8 @@ use crate::split::Assignment;
 /// Adds, for each candidate, an indicator column for every feature with a
 /// missing cell among the rows used for fitting, and rebinds the family to
 /// them. A family that takes a fixed number of features (a smoother of one
-/// feature, a surface of two) keeps its features and gets the medians only.
+/// feature, a surface of two) or expands each feature into a basis
+/// (polynomial, spline) keeps its features and gets the medians only.
 /// Fails, naming the column and the fold, when some training fold holds no
 /// value of a feature to take a median of.
 pub(super) fn bind_indicators(
@@ -47,7 +48,7 @@ pub(super) fn bind_indicators(
         }
     }
     for (candidate, family_spec) in candidates.iter_mut().zip(&spec.families) {
-        if family_spec.def.feature_count.is_some() {
+        if family_spec.def.feature_count.is_some() || family_spec.def.expands_features {
             continue;
         }
         let indicators: Vec<String> = candidate

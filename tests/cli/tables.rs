@@ -124,3 +124,59 @@ fn semicolons_and_decimal_commas_read_the_same_numbers() {
     // The digest is of the file's bytes, so it differs.
     assert_ne!(base["data"]["digest"], again["data"]["digest"]);
 }
+
+/// `heldout new` on a bakery-like invented table with a row number, a
+/// column computed from the target, "NA" cells and semicolons: the spec
+/// leaves the first two out with their reasons, imputes, and runs.
+#[test]
+fn the_scaffold_leaves_out_row_numbers_and_leaks_imputes_and_runs() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("id;outdoor_c;rain_mm;sales;sales_k\n");
+    for i in 0..40u32 {
+        let outdoor = f64::from((i * 7) % 23) - 3.0;
+        let rain = f64::from((i * 5) % 11);
+        let sales = 400.0 - 6.0 * outdoor + 2.5 * rain + f64::from((i * 13) % 17);
+        let outdoor_cell = if i % 9 == 4 {
+            "NA".to_string()
+        } else {
+            format!("{outdoor:.1}").replace('.', ",")
+        };
+        text.push_str(&format!(
+            "{i};{outdoor_cell};{};{};{}\n",
+            format!("{rain:.1}").replace('.', ","),
+            format!("{sales:.1}").replace('.', ","),
+            format!("{:.4}", sales / 1000.0).replace('.', ",")
+        ));
+    }
+    std::fs::write(dir.path().join("bakery.csv"), text).unwrap();
+    let output = util::heldout()
+        .current_dir(dir.path())
+        .args([
+            "new",
+            "--table",
+            "bakery.csv",
+            "--target",
+            "sales",
+            "--output",
+            "spec.toml",
+        ])
+        .output()
+        .unwrap();
+    util::assert_success(&output);
+    let spec = std::fs::read_to_string(dir.path().join("spec.toml")).unwrap();
+    assert!(
+        spec.contains("features = [\"outdoor_c\", \"rain_mm\"]\n"),
+        "{spec}"
+    );
+    assert!(spec.contains("key = \"id\"\n"), "{spec}");
+    assert!(
+        spec.contains("sales_k (the target is almost exactly a function of it"),
+        "{spec}"
+    );
+    assert!(spec.contains("delimiter = \";\"\n"), "{spec}");
+    assert!(spec.contains("decimal = \",\"\n"), "{spec}");
+    assert!(spec.contains("missing = \"impute\"\n"), "{spec}");
+    let results = util::run_results(dir.path(), "bakery");
+    assert_eq!(results["data"]["missing"][0]["column"], "outdoor_c");
+    assert_eq!(results["data"]["missing"][0]["handling"], "impute");
+}
