@@ -1,7 +1,7 @@
 //! Loading the data table: a CSV file with a header, read into numeric
 //! columns for the target and features plus text columns for row identity
 //! (key), groups and fold labels. How cells are written (delimiter, decimal
-//! mark, missing-value markers) is in [`format`]; filling missing cells
+//! mark, missing-value markers) is in [`format`](mod@format); filling missing cells
 //! inside each training fold is in [`missing`].
 //!
 //! Every problem is reported with the file, the line (as a text editor counts
