@@ -1,6 +1,8 @@
 //! Loading the data table: a CSV file with a header, read into numeric
 //! columns for the target and features plus text columns for row identity
-//! (key), groups and fold labels.
+//! (key), groups and fold labels. How cells are written (delimiter, decimal
+//! mark, missing-value markers) is in [`format`](mod@format); filling missing cells
+//! inside each training fold is in [`missing`].
 //!
 //! Every problem is reported with the file, the line (as a text editor counts
 //! it, header = line 1), the column and the offending text.
@@ -11,6 +13,11 @@ use std::path::{Path, PathBuf};
 use crate::error::DataError;
 use crate::spec::MissingPolicy;
 
+pub(crate) mod format;
+pub(crate) mod missing;
+
+pub(crate) use format::TableFormat;
+
 /// Which columns to read and how.
 #[derive(Debug, Clone)]
 pub(crate) struct TableRequest {
@@ -19,6 +26,11 @@ pub(crate) struct TableRequest {
     /// Columns read as text (key, group, fold labels).
     pub(crate) text: Vec<String>,
     pub(crate) missing: MissingPolicy,
+    /// Under `missing = "impute"`: the numeric columns whose missing cells
+    /// are kept (as NaN) to be filled per training fold. A missing cell in
+    /// any other used column drops its row.
+    pub(crate) imputed: Vec<String>,
+    pub(crate) format: TableFormat,
 }
 
 /// A loaded table: only the requested columns, rows in file order.
@@ -35,8 +47,12 @@ pub(crate) struct Table {
     /// 1-based position of each kept row among the file's data rows, counted
     /// before any rows are dropped; the default row identity for splits.
     pub(crate) row_numbers: Vec<u64>,
-    /// Rows dropped under `missing = "drop-rows"`.
+    /// Rows dropped under `missing = "drop-rows"` (or, under `"impute"`, for
+    /// a missing cell in a column that is not imputed).
     pub(crate) dropped: usize,
+    /// Missing cells of each used column that had any, over every data row
+    /// of the file (dropped rows included).
+    pub(crate) missing_cells: BTreeMap<String, usize>,
     /// The file does not end with a line break: it may have been cut short
     /// inside its last value.
     pub(crate) unterminated: bool,
@@ -118,6 +134,7 @@ pub(crate) fn load(
 
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
+        .delimiter(request.format.delimiter)
         .flexible(false)
         .from_reader(bytes.as_slice());
     let header = reader
@@ -139,8 +156,24 @@ pub(crate) fn load(
         }
     }
 
+    let used = request.format.delimiter;
+    let guessed = format::guess_delimiter(&bytes, used);
     let position = |name: &str| -> Result<usize, DataError> {
         header.iter().position(|h| h == name).ok_or_else(|| {
+            // The header split by another delimiter gives more columns: the
+            // spec's delimiter is most likely wrong, and that is the message.
+            if let Some((delimiter, count)) = guessed {
+                return table_error(format!(
+                    "no column named \"{name}\": read with {} the header has {} column{}, \
+                     but it seems to be separated by {} ({count} columns); set \
+                     `delimiter = \"{}\"` in [data]",
+                    format::delimiter_words(used),
+                    header.len(),
+                    if header.len() == 1 { "" } else { "s" },
+                    format::delimiter_words(delimiter),
+                    format::delimiter_in_spec(delimiter),
+                ));
+            }
             let allowed: Vec<&str> = header.iter().map(String::as_str).collect();
             let hint = crate::spec::closest(name, &allowed)
                 .map(|w| format!(" (did you mean \"{w}\"?)"))
@@ -188,6 +221,14 @@ pub(crate) fn load(
     let mut row_numbers = Vec::new();
     let mut dropped = 0;
     let mut data_rows: u64 = 0;
+    let format = &request.format;
+    let impute = request.missing == MissingPolicy::Impute;
+    let imputed: Vec<bool> = numeric_at
+        .iter()
+        .map(|(name, _)| impute && request.imputed.contains(name))
+        .collect();
+    let mut missing_numeric = vec![0usize; numeric_at.len()];
+    let mut missing_text = vec![0usize; text_at.len()];
 
     // Byte records: only the cells that are used are checked as UTF-8.
     let mut record = csv::ByteRecord::new();
@@ -225,23 +266,42 @@ pub(crate) fn load(
 
         let mut values = Vec::with_capacity(numeric_at.len());
         let mut has_missing = false;
-        for (name, at) in &numeric_at {
+        for (j, (name, at)) in numeric_at.iter().enumerate() {
             let raw = cell_text(&record, *at).map_err(|m| cell_error(name, m))?;
             let trimmed = raw.trim();
-            if trimmed.is_empty() {
-                if request.missing == MissingPolicy::DropRows {
-                    has_missing = true;
-                    continue;
+            if format.is_missing(trimmed) {
+                missing_numeric[j] += 1;
+                match request.missing {
+                    MissingPolicy::Impute if imputed[j] => values.push(f64::NAN),
+                    MissingPolicy::DropRows | MissingPolicy::Impute => has_missing = true,
+                    MissingPolicy::Error => {
+                        let what = if trimmed.is_empty() {
+                            "the cell is empty".to_string()
+                        } else {
+                            format!(
+                                "the cell holds \"{}\", a missing-value marker",
+                                shorten(raw)
+                            )
+                        };
+                        return Err(cell_error(
+                            name,
+                            format!(
+                                "{what}; fill it, or set `missing = \"drop-rows\"` or \
+                                 `missing = \"impute\"` in [data]"
+                            ),
+                        ));
+                    }
                 }
-                return Err(cell_error(
-                    name,
-                    "the cell is empty; fill it, or set `missing = \"drop-rows\"` in [data]".into(),
-                ));
+                continue;
             }
-            let value: f64 = trimmed.parse().map_err(|_| {
+            let value: f64 = format.parse_number(trimmed).ok_or_else(|| {
                 cell_error(
                     name,
-                    format!("cannot read \"{}\" as a number", shorten(raw)),
+                    format!(
+                        "cannot read \"{}\" as a number{}",
+                        shorten(raw),
+                        format.decimal_hint(trimmed)
+                    ),
                 )
             })?;
             if !value.is_finite() {
@@ -263,12 +323,16 @@ pub(crate) fn load(
             values.push(value);
         }
         let mut texts = Vec::with_capacity(text_at.len());
-        for (name, at) in &text_at {
+        for (j, (name, at)) in text_at.iter().enumerate() {
             let raw = cell_text(&record, *at)
                 .map_err(|m| cell_error(name, m))?
                 .trim();
+            // Text columns (labels, keys, groups, folds, times) take their
+            // cells as written: only an empty cell is missing ("NA" may be
+            // a region's name).
             if raw.is_empty() {
-                if request.missing == MissingPolicy::DropRows {
+                missing_text[j] += 1;
+                if request.missing != MissingPolicy::Error {
                     has_missing = true;
                     continue;
                 }
@@ -309,6 +373,13 @@ pub(crate) fn load(
             "all {dropped} rows have an empty cell in a used column; none are left"
         )));
     }
+    let missing_cells = numeric_at
+        .iter()
+        .zip(&missing_numeric)
+        .chain(text_at.iter().zip(&missing_text))
+        .filter(|(_, &count)| count > 0)
+        .map(|((name, _), &count)| (name.clone(), count))
+        .collect();
     Ok(Table {
         path: shown.to_path_buf(),
         digest,
@@ -317,6 +388,7 @@ pub(crate) fn load(
         lines,
         row_numbers,
         dropped,
+        missing_cells,
         unterminated,
     })
 }
@@ -336,6 +408,8 @@ mod tests {
             numeric: vec!["y".into(), "x".into()],
             text: vec![],
             missing: MissingPolicy::Error,
+            imputed: vec![],
+            format: TableFormat::default(),
         }
     }
 
@@ -418,12 +492,88 @@ mod tests {
 
     #[test]
     fn nan_and_infinity_are_rejected() {
+        // "NaN" is a missing-value marker by default; without the markers
+        // it is read as a number and refused as not finite.
+        let mut req = request();
+        req.format.markers = vec![];
         for bad in ["NaN", "inf", "-Infinity"] {
+            let err = load_text(&format!("x,y\n1,{bad}\n"), &req)
+                .unwrap_err()
+                .to_string();
+            assert!(err.contains("not a finite number"), "{err}");
+        }
+        for bad in ["inf", "-Infinity"] {
             let err = load_text(&format!("x,y\n1,{bad}\n"), &request())
                 .unwrap_err()
                 .to_string();
             assert!(err.contains("not a finite number"), "{err}");
         }
+    }
+
+    #[test]
+    fn markers_are_missing_cells_counted_per_column() {
+        let text = "x,y,g\n1,2,a\nNA,4,b\n5,null,\n7,N/A,NA\n9,10,c\n";
+        let mut req = request();
+        req.text = vec!["g".into()];
+        // Under "error", a marker names itself and both ways out.
+        let err = load_text(text, &req).unwrap_err().to_string();
+        assert_eq!(
+            err,
+            "t.csv: line 3, column \"x\": the cell holds \"NA\", a missing-value marker; \
+             fill it, or set `missing = \"drop-rows\"` or `missing = \"impute\"` in [data]"
+        );
+        // Under "drop-rows", every row with a missing cell goes; the text
+        // column's "NA" is a label, only its empty cell is missing.
+        req.missing = MissingPolicy::DropRows;
+        let table = load_text(text, &req).unwrap();
+        assert_eq!(table.column("x"), &[1.0, 9.0]);
+        assert_eq!(table.text_column("g"), &["a", "c"]);
+        assert_eq!(table.dropped, 3);
+        let counts: Vec<(&str, usize)> = table
+            .missing_cells
+            .iter()
+            .map(|(k, v)| (k.as_str(), *v))
+            .collect();
+        assert_eq!(counts, [("g", 1), ("x", 1), ("y", 2)]);
+        // Under "impute", cells of imputed columns stay as NaN; a missing
+        // cell elsewhere (the target y, the text column) drops the row.
+        req.missing = MissingPolicy::Impute;
+        req.imputed = vec!["x".into()];
+        let table = load_text(text, &req).unwrap();
+        assert_eq!(table.len(), 3);
+        assert_eq!(table.column("x")[0], 1.0);
+        assert!(table.column("x")[1].is_nan());
+        assert_eq!(table.column("y"), &[2.0, 4.0, 10.0]);
+        assert_eq!(table.dropped, 2);
+    }
+
+    #[test]
+    fn a_wrong_delimiter_is_named_without_echoing_the_header() {
+        let err = load_text("x;y\n1;2\n", &request()).unwrap_err().to_string();
+        assert_eq!(
+            err,
+            "t.csv: no column named \"y\": read with commas the header has 1 column, but it \
+             seems to be separated by semicolons (2 columns); set `delimiter = \";\"` in [data]"
+        );
+        let mut req = request();
+        req.format.delimiter = b'\t';
+        let table = load_text(
+            "x\ty\n1,5\t2\n",
+            &TableRequest {
+                format: TableFormat {
+                    decimal_comma: true,
+                    ..req.format.clone()
+                },
+                ..req.clone()
+            },
+        )
+        .unwrap();
+        assert_eq!(table.column("x"), &[1.5]);
+        let err = load_text("x,y\n1,2\n", &req).unwrap_err().to_string();
+        assert!(
+            err.contains("separated by commas (2 columns); set `delimiter = \",\"`"),
+            "{err}"
+        );
     }
 
     #[test]

@@ -134,10 +134,18 @@ fn task_data(plan: &ExperimentPlan, task: Task) -> TaskData {
         }
         TaskRows::Full => (a.train.clone(), a.test.clone()),
     };
+    let mut x_train = plan.design(candidate, &train);
+    let mut x_eval = plan.design(candidate, &eval);
+    if plan.spec.data().missing == crate::spec::MissingPolicy::Impute {
+        // Medians of this task's training rows only; the plan checked that
+        // every training fold has a value of each gappy feature.
+        crate::data::missing::fill_with_training_medians(&mut x_train, &mut x_eval)
+            .expect("the plan checked that every training fold has values");
+    }
     TaskData {
-        x_train: plan.design(candidate, &train),
+        x_train,
         y_train: plan.target_of(&train),
-        x_eval: plan.design(candidate, &eval),
+        x_eval,
     }
 }
 
@@ -458,3 +466,6 @@ pub(crate) fn run(
     }
     Ok((keep.then_some(fits), summary))
 }
+
+#[cfg(test)]
+mod impute_tests;

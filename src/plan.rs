@@ -15,6 +15,8 @@ use crate::models::{Family, Setting};
 use crate::spec::{FamilySpec, LoadedSpec, Metric, SplitMethod, Task, DEFAULT_FOLDS};
 use crate::split::{self, Assignment, FoldScheme, Identities};
 
+mod impute;
+
 /// One candidate of the spec, ready to fit.
 #[derive(Clone)]
 pub(crate) struct CandidatePlan {
@@ -184,20 +186,32 @@ pub(crate) fn resolve_reporting(
             text.push(name.clone());
         }
     }
+    // Under `missing = "impute"` every numeric column but the target may
+    // keep missing cells, to be filled inside each training fold.
+    let imputed = numeric
+        .iter()
+        .filter(|name| *name != &data_spec.target)
+        .cloned()
+        .collect();
     let request = TableRequest {
         numeric,
         text,
         missing: data_spec.missing,
+        imputed,
+        format: data::TableFormat::of(&data_spec),
     };
     let resolved = data_path(&spec)?;
     let target_name = &data_spec.target;
-    let table = match data::load(&resolved, &resolved, &request, on_read) {
+    let mut table = match data::load(&resolved, &resolved, &request, on_read) {
         // Text labels in a target of undeclared task: read it again as text.
         Err(DataError::Cell {
             column, message, ..
         }) if declared.is_none()
             && &column == target_name
-            && message.starts_with("cannot read") =>
+            && message.starts_with("cannot read")
+            // A number in the other decimal convention is a format mistake,
+            // not a label: its message says how to declare the format.
+            && !message.contains("decimal") =>
         {
             let mut as_text = request.clone();
             as_text.numeric.retain(|name| name != target_name);
@@ -211,8 +225,9 @@ pub(crate) fn resolve_reporting(
         key: key.to_string(),
         message,
     };
+    let table_path = table.path.clone();
     let table_error = |message: String| DataError::Table {
-        path: table.path.clone(),
+        path: table_path.clone(),
         message,
     };
     // A named metric declares the kind of target it scores.
@@ -319,8 +334,12 @@ pub(crate) fn resolve_reporting(
         }
     }
 
-    let candidates: Vec<CandidatePlan> =
+    let mut candidates: Vec<CandidatePlan> =
         spec.families.iter().map(CandidatePlan::from_spec).collect();
+    if data_spec.missing == crate::spec::MissingPolicy::Impute {
+        impute::bind_indicators(&spec, &mut table, &assignment, &mut candidates)
+            .map_err(table_error)?;
+    }
 
     // A feature with no spread over the fitting rows breaks these fits; say so
     // now, naming the column, rather than once per fold.

@@ -114,6 +114,22 @@ pub struct DataSummary {
     /// inside its last value (written only when true).
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub unterminated: bool,
+    /// Each used column with missing cells: how many and what was done
+    /// (written only when some column has any).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub missing: Vec<MissingColumn>,
+}
+
+/// The missing cells of one used column and what was done with them.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct MissingColumn {
+    pub column: String,
+    /// Missing cells over every data row of the file.
+    pub cells: usize,
+    /// `"drop-rows"`: their rows were dropped; `"impute"`: filled with the
+    /// median of each fit's training rows, with an indicator column for the
+    /// families that take any number of features.
+    pub handling: String,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -421,6 +437,7 @@ pub(crate) fn assemble(
             group: data.group.clone(),
             order: data.order.clone(),
             unterminated: plan.table.unterminated,
+            missing: missing_columns(plan),
         },
         split: SplitSummary {
             method: spec.split.method,
@@ -570,6 +587,27 @@ pub fn to_json(results: &Results) -> String {
     let mut text = serde_json::to_string_pretty(results).expect("results always serialise");
     text.push('\n');
     text
+}
+
+/// [`DataSummary::missing`]: every used column with missing cells, in name
+/// order. Under `impute` only feature cells are filled; a missing target (or
+/// key, group, fold or time) drops its row.
+fn missing_columns(plan: &ExperimentPlan) -> Vec<MissingColumn> {
+    let data = plan.spec.data();
+    plan.table
+        .missing_cells
+        .iter()
+        .map(|(column, &cells)| {
+            let filled = data.missing == crate::spec::MissingPolicy::Impute
+                && plan.table.numeric.contains_key(column)
+                && column != &data.target;
+            MissingColumn {
+                column: column.clone(),
+                cells,
+                handling: if filled { "impute" } else { "drop-rows" }.to_string(),
+            }
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -14,6 +14,7 @@ use nalgebra::DMatrix;
 
 use crate::cache::Cache;
 use crate::cli::PredictArgs;
+use crate::data::missing;
 use crate::data::{self, Table, TableRequest};
 use crate::error::{SpecError, UsageError};
 use crate::execute::CachePolicy;
@@ -54,24 +55,52 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     let candidate = &plan.candidates[c];
 
     let key = plan.spec.data().key.clone();
+    let data_spec = plan.spec.data();
+    // Indicator columns of missing cells are derived, not read.
+    let read: Vec<String> = candidate
+        .features
+        .iter()
+        .filter(|f| missing::indicated_feature(f).is_none())
+        .cloned()
+        .collect();
     let new = data::load(
         &args.table,
         &args.table,
         &TableRequest {
-            numeric: candidate.features.clone(),
+            numeric: read.clone(),
             text: key.iter().cloned().collect(),
-            missing: MissingPolicy::Error,
+            missing: match data_spec.missing {
+                MissingPolicy::Impute => MissingPolicy::Impute,
+                _ => MissingPolicy::Error,
+            },
+            imputed: read,
+            format: data::TableFormat::of(data_spec),
         },
         &|_, _| {},
     )?;
-    let x_new = DMatrix::from_fn(new.len(), candidate.features.len(), |i, j| {
-        new.column(&candidate.features[j])[i]
+    let new_columns: Vec<Vec<f64>> = candidate
+        .features
+        .iter()
+        .map(|f| match missing::indicated_feature(f) {
+            Some(feature) => missing::indicator(new.column(feature)),
+            None => new.column(f).to_vec(),
+        })
+        .collect();
+    let mut x_new = DMatrix::from_fn(new.len(), candidate.features.len(), |i, j| {
+        new_columns[j][i]
     });
     let train = &plan.assignment.train;
+    let mut x_train = plan.design(candidate, train);
+    if data_spec.missing == MissingPolicy::Impute {
+        // The medians of the rows the kept fit was made on, as for the test set.
+        missing::fill_with_training_medians(&mut x_train, &mut x_new).map_err(|j| {
+            anyhow::anyhow!("column {} has no training value", candidate.features[j])
+        })?;
+    }
     let fits = candidate
         .family
         .fit_classes(
-            &plan.design(candidate, train),
+            &x_train,
             &plan.target_of(train),
             &x_new,
             plan.full_fit.final_fit,

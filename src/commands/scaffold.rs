@@ -27,9 +27,10 @@ use crate::report::scaffold::{LeftOut, LeftOutBecause, Scaffold};
 #[derive(Debug)]
 struct ColumnProfile {
     name: String,
-    /// Every non-empty cell is a finite number.
+    /// Every cell that is not missing is a finite number.
     numeric: bool,
-    /// Empty or whitespace-only cells.
+    /// Missing cells: empty, whitespace-only, or a default missing-value
+    /// marker ("NA", "NaN", …) in a column that is otherwise numeric.
     empty: usize,
     /// Distinct non-empty cell texts.
     distinct: usize,
@@ -37,9 +38,16 @@ struct ColumnProfile {
     values: Vec<f64>,
 }
 
+/// How the table writes its cells, as the scaffold saw them.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+struct Written {
+    delimiter: u8,
+    decimal_comma: bool,
+}
+
 /// Writes a spec for `--table` predicting `--target`.
 pub(crate) fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
-    let profiles = profile(&args.table)?;
+    let (profiles, written) = profile(&args.table)?;
     let rows = profiles.first().map_or(0, |p| p.values.len());
     let target = find_target(&profiles, &args.target, &args.table)?;
     let spec_dir = match &args.output {
@@ -48,7 +56,10 @@ pub(crate) fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
     };
     let table_in_spec = relative_path(&spec_dir, &args.table)?;
     let name = args.name.clone().unwrap_or_else(|| name_from(&args.table));
-    let scaffold = propose(&profiles, target, rows, name, table_in_spec)?;
+    let mut scaffold = propose(&profiles, target, rows, name, table_in_spec)?;
+    scaffold.delimiter = (written.delimiter != b',')
+        .then(|| crate::data::format::delimiter_in_spec(written.delimiter).to_string());
+    scaffold.decimal_comma = written.decimal_comma;
     let text = crate::report::scaffold::render(&scaffold)
         .context("internal error: cannot render the scaffold")?;
 
@@ -87,8 +98,11 @@ pub(crate) fn scaffold(args: &NewArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Reads the table and profiles every column.
-fn profile(table: &Path) -> Result<Vec<ColumnProfile>, DataError> {
+/// Reads the table and profiles every column. The delimiter is the one that
+/// splits the header into the most columns; a table separated by other than
+/// commas whose cells read as numbers only with a decimal comma is taken to
+/// write decimal commas.
+fn profile(table: &Path) -> Result<(Vec<ColumnProfile>, Written), DataError> {
     let bytes = std::fs::read(table).map_err(|error| DataError::Read {
         path: table.to_path_buf(),
         error,
@@ -97,8 +111,25 @@ fn profile(table: &Path) -> Result<Vec<ColumnProfile>, DataError> {
         path: table.to_path_buf(),
         message,
     };
+    let delimiter = crate::data::format::guess_delimiter(&bytes, b',').map_or(b',', |(d, _)| d);
+    let first_rows: String = String::from_utf8_lossy(&bytes[..bytes.len().min(1 << 16)]).into();
+    // A decimal comma: some cell like "3,5" between other delimiters and none
+    // like "3.5".
+    let decimal_comma = delimiter != b','
+        && first_rows.split([delimiter as char, '\n']).any(|cell| {
+            cell.trim().contains(',') && cell.trim().replacen(',', ".", 1).parse::<f64>().is_ok()
+        })
+        && !first_rows
+            .split([delimiter as char, '\n'])
+            .any(|cell| cell.trim().contains('.') && cell.trim().parse::<f64>().is_ok());
+    let format = crate::data::TableFormat {
+        delimiter,
+        decimal_comma,
+        ..crate::data::TableFormat::default()
+    };
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
+        .delimiter(delimiter)
         .from_reader(bytes.as_slice());
     let header = reader
         .headers()
@@ -118,17 +149,29 @@ fn profile(table: &Path) -> Result<Vec<ColumnProfile>, DataError> {
         })
         .collect();
     let mut seen: Vec<BTreeSet<String>> = vec![BTreeSet::new(); profiles.len()];
+    // Markers count as missing only in a column whose other cells are numbers.
+    let mut markers = vec![0usize; profiles.len()];
     for record in reader.records() {
         let record = record.map_err(|e| table_error(format!("cannot read a row: {e}")))?;
-        for ((cell, column), seen) in record.iter().zip(&mut profiles).zip(&mut seen) {
+        for (((cell, column), seen), markers) in record
+            .iter()
+            .zip(&mut profiles)
+            .zip(&mut seen)
+            .zip(&mut markers)
+        {
             let cell = cell.trim();
             if cell.is_empty() {
                 column.empty += 1;
                 column.values.push(f64::NAN);
                 continue;
             }
-            match cell.parse::<f64>() {
-                Ok(value) if value.is_finite() => column.values.push(value),
+            if format.is_missing(cell) {
+                *markers += 1;
+                column.values.push(f64::NAN);
+                continue;
+            }
+            match format.parse_number(cell) {
+                Some(value) if value.is_finite() => column.values.push(value),
                 _ => {
                     column.numeric = false;
                     column.values.push(f64::NAN);
@@ -137,13 +180,27 @@ fn profile(table: &Path) -> Result<Vec<ColumnProfile>, DataError> {
             seen.insert(cell.to_string());
         }
     }
+    for (column, markers) in profiles.iter_mut().zip(markers) {
+        if column.numeric {
+            column.empty += markers;
+        } else if markers > 0 {
+            // "NA" is a label of a text column.
+            column.distinct += 1;
+        }
+    }
     for (column, seen) in profiles.iter_mut().zip(seen) {
-        column.distinct = seen.len();
+        column.distinct += seen.len();
     }
     if profiles[0].values.is_empty() {
         return Err(table_error("the table has a header but no rows".into()));
     }
-    Ok(profiles)
+    Ok((
+        profiles,
+        Written {
+            delimiter,
+            decimal_comma,
+        },
+    ))
 }
 
 /// The target's index: a column of numbers, or of class labels (text that
@@ -260,6 +317,53 @@ fn correlation(a: &[f64], b: &[f64]) -> f64 {
     }
 }
 
+/// Whether a column whose every value is distinct names rows rather than
+/// measuring them: text, or whole numbers rising (or falling) down the file
+/// (a row number or a serial id). Such a column as a feature lets a fit
+/// learn the order of the file instead of the data.
+fn names_rows(p: &ColumnProfile) -> bool {
+    !p.numeric
+        || (p.values.iter().all(|v| v.fract() == 0.0)
+            && (p.values.windows(2).all(|w| w[0] < w[1])
+                || p.values.windows(2).all(|w| w[0] > w[1])))
+}
+
+/// Whether `feature` predicts `target` almost exactly: |correlation| above
+/// 0.99, or the same ordering (the target a monotone function of it) over
+/// at least three distinct values. Such a column is most often computed from
+/// the target, or recorded after it: a leak, not a predictor.
+fn gives_away(feature: &[f64], target: &[f64]) -> bool {
+    if correlation(feature, target).abs() > 0.99 {
+        return true;
+    }
+    let mut pairs: Vec<(f64, f64)> = feature
+        .iter()
+        .zip(target)
+        .filter(|(x, y)| !x.is_nan() && !y.is_nan())
+        .map(|(x, y)| (*x, *y))
+        .collect();
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
+    let mut distinct: Vec<f64> = pairs.iter().map(|p| p.0).collect();
+    distinct.dedup();
+    if distinct.len() < 3 {
+        return false;
+    }
+    // Each step to a larger feature value moves the target the same way, and
+    // equal feature values share one target.
+    let steps: Vec<std::cmp::Ordering> = pairs
+        .windows(2)
+        .filter_map(|w| {
+            if w[0].0 == w[1].0 {
+                (w[0].1 != w[1].1).then_some(std::cmp::Ordering::Equal)
+            } else {
+                Some(w[1].1.total_cmp(&w[0].1))
+            }
+        })
+        .collect();
+    use std::cmp::Ordering::{Greater, Less};
+    steps.iter().all(|s| *s == Greater) || steps.iter().all(|s| *s == Less)
+}
+
 /// Column names that suggest a time order.
 fn looks_like_time(name: &str) -> bool {
     let name = name.to_lowercase();
@@ -295,7 +399,7 @@ fn propose(
     let key = profiles
         .iter()
         .enumerate()
-        .find(|(i, p)| *i != target && !p.numeric && p.empty == 0 && p.distinct == rows)
+        .find(|(i, p)| *i != target && p.empty == 0 && p.distinct == rows && names_rows(p))
         .map(|(i, _)| i);
     let mut features = Vec::new();
     let mut left_out = Vec::new();
@@ -303,12 +407,16 @@ fn propose(
         if i == target || Some(i) == key {
             continue;
         }
-        let because = if !p.numeric {
+        let because = if p.empty == 0 && p.distinct == rows && names_rows(p) {
+            LeftOutBecause::RowNames
+        } else if !p.numeric {
             LeftOutBecause::Text
         } else if looks_like_time(&p.name) {
             LeftOutBecause::Time
         } else if p.distinct < 2 {
             LeftOutBecause::Constant
+        } else if !classification && gives_away(&p.values, &target_profile.values) {
+            LeftOutBecause::GivesAwayTarget
         } else {
             features.push(i);
             continue;
@@ -340,6 +448,11 @@ fn propose(
         .chain(std::iter::once(&target))
         .map(|&i| profiles[i].empty)
         .sum();
+    let missing_features: Vec<String> = features
+        .iter()
+        .filter(|&&i| profiles[i].empty > 0)
+        .map(|&i| profiles[i].name.clone())
+        .collect();
 
     let holdout = if rows >= 50 { 0.2 } else { 0.0 };
     let fit_rows = rows - (holdout * rows as f64).round() as usize;
@@ -384,6 +497,9 @@ fn propose(
             .find(|p| looks_like_time(&p.name))
             .map(|p| p.name.clone()),
         empty_cells,
+        missing_features,
+        delimiter: None,
+        decimal_comma: false,
         holdout,
         folds,
         main_feature: main_profile.name.clone(),
@@ -433,8 +549,14 @@ mod tests {
     #[test]
     fn proposals_follow_the_columns_and_the_row_count() {
         let rows = 12;
-        let x: Vec<f64> = (0..rows).map(f64::from).collect();
-        let y: Vec<f64> = x.iter().map(|v| v * v).collect();
+        // Distinct values in no order, and a target that is no function of
+        // them (|r| = 0.968, numpy 2.4.6).
+        let x: Vec<f64> = (0..rows).map(|i| f64::from((i * 5) % 12) + 0.5).collect();
+        let y: Vec<f64> = x
+            .iter()
+            .enumerate()
+            .map(|(i, v)| v * v + [0.0, 3.0, -2.0][i % 3])
+            .collect();
         let mut id = column("id", &x);
         id.numeric = false;
         let profiles = [
@@ -469,6 +591,52 @@ mod tests {
 
         let only_target = [column("flat", &[1.0; 12]), column("y", &y)];
         assert!(propose(&only_target, 1, 12, "n".into(), "t.csv".into()).is_err());
+    }
+
+    #[test]
+    fn row_numbers_and_columns_that_give_the_target_away_are_left_out() {
+        let rows = 12;
+        let x: Vec<f64> = (0..rows).map(|i| f64::from((i * 5) % 12)).collect();
+        // y rises with x but not exactly: |r| = 0.962 (numpy 2.4.6), orders differ.
+        let y: Vec<f64> = x
+            .iter()
+            .enumerate()
+            .map(|(i, v)| 2.0 * v + [0.25, 3.0, -2.0][i % 3])
+            .collect();
+        let row_number: Vec<f64> = (0..rows).map(f64::from).collect();
+        let thousands: Vec<f64> = y.iter().map(|v| v / 1000.0).collect();
+        // exp(y) is a monotone function of y with |r| below 0.99.
+        let growth: Vec<f64> = y.iter().map(|v| (v / 4.0).exp()).collect();
+        assert!(correlation(&growth, &y).abs() < 0.99);
+        let profiles = [
+            column("row", &row_number),
+            column("x", &x),
+            column("y_thousands", &thousands),
+            column("growth", &growth),
+            column("y", &y),
+        ];
+        let s = propose(&profiles, 4, 12, "n".into(), "t.csv".into()).unwrap();
+        assert_eq!(s.features, ["x"]);
+        assert_eq!(s.key.as_deref(), Some("row"));
+        let left_out: Vec<(&str, LeftOutBecause)> = s
+            .left_out
+            .iter()
+            .map(|c| (c.name.as_str(), c.because))
+            .collect();
+        assert_eq!(
+            left_out,
+            [
+                ("y_thousands", LeftOutBecause::GivesAwayTarget),
+                ("growth", LeftOutBecause::GivesAwayTarget)
+            ]
+        );
+        // Decimals on every row are measurements, not row names.
+        let halves: Vec<f64> = row_number.iter().map(|v| v + 0.5).collect();
+        assert!(!names_rows(&column("h", &halves)));
+        let mut shuffled = row_number.clone();
+        shuffled.swap(2, 7);
+        assert!(!names_rows(&column("s", &shuffled)));
+        assert!(!gives_away(&x, &y));
     }
 
     #[test]

@@ -354,6 +354,7 @@ mod tests {
             row_numbers: (1..=rows as u64).collect(),
             dropped: 0,
             unterminated: false,
+            missing_cells: BTreeMap::new(),
         };
         let features = vec!["x".to_string()];
         for seed in 0..200 {

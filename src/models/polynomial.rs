@@ -49,7 +49,8 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
 .about(
     "Polynomials of one or more features, one Householder QR per fold for the whole degree grid.",
 )
-.grid("degree = [1, 2, 3, 4, 5, 6, 8, 10]");
+.grid("degree = [1, 2, 3, 4, 5, 6, 8, 10]")
+.expanding_features();
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Polynomial {

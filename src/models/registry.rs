@@ -44,6 +44,10 @@ pub(crate) struct FamilyDef {
     pub(crate) keys: &'static [KeyDef],
     /// `Some(n)`: the family takes exactly n features.
     pub(crate) feature_count: Option<usize>,
+    /// The family expands each feature into a basis of its own (powers,
+    /// spline columns), which a 0/1 column cannot carry (its powers repeat
+    /// it): `missing = "impute"` gives it no indicator columns.
+    pub(crate) expands_features: bool,
     /// Version of the fitting algorithm: part of every cache identity, so
     /// bump it whenever the numbers a grid yields may change.
     pub(crate) version: u32,
@@ -229,6 +233,7 @@ impl FamilyDef {
             about: "",
             keys,
             feature_count: None,
+            expands_features: false,
             version: 1,
             default_grid: "",
             build,
@@ -239,6 +244,14 @@ impl FamilyDef {
     /// Predicting these kinds of target (default: numbers only).
     pub(crate) const fn predicts(self, targets: Targets) -> Self {
         FamilyDef { targets, ..self }
+    }
+
+    /// Expanding each feature into a basis (see [`FamilyDef::expands_features`]).
+    pub(crate) const fn expanding_features(self) -> Self {
+        FamilyDef {
+            expands_features: true,
+            ..self
+        }
     }
 
     /// With its one line of help.

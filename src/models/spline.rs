@@ -56,7 +56,8 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
     build,
 )
 .about("Natural cubic regression splines, an additive basis per feature.")
-.grid("df = [1, 2, 3, 4, 6, 8, 12]");
+.grid("df = [1, 2, 3, 4, 6, 8, 12]")
+.expanding_features();
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     let given = settings.real_grid("df", f64::NEG_INFINITY)?;

@@ -86,6 +86,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             group: None,
             order: None,
             unterminated: false,
+            missing: Vec::new(),
         },
         split: SplitSummary {
             method: SplitMethod::Kfold,

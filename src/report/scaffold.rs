@@ -23,6 +23,11 @@ pub(crate) enum LeftOutBecause {
     Time,
     /// It has one value on every row.
     Constant,
+    /// Every row has its own whole number or text: it names rows.
+    RowNames,
+    /// The target is (almost) a function of it: |r| > 0.99 or the same
+    /// ordering; most likely computed from the target.
+    GivesAwayTarget,
 }
 
 /// A column that is not proposed as a feature, and why.
@@ -46,8 +51,14 @@ pub(crate) struct Scaffold {
     pub(crate) left_out: Vec<LeftOut>,
     /// A column named like a time, offered as the order of a time split.
     pub(crate) order: Option<String>,
-    /// Empty cells in the target and the features.
+    /// Missing cells (empty or a marker) in the target and the features.
     pub(crate) empty_cells: usize,
+    /// Features with missing cells: the scaffold imputes them.
+    pub(crate) missing_features: Vec<String>,
+    /// The delimiter as a spec writes it, when not a comma.
+    pub(crate) delimiter: Option<String>,
+    /// The table writes decimal commas.
+    pub(crate) decimal_comma: bool,
     /// The share of rows locked away as the test set (0: none).
     pub(crate) holdout: f64,
     pub(crate) folds: usize,
@@ -93,6 +104,9 @@ struct View<'a> {
     left_out: &'a [LeftOut],
     order: Option<&'a str>,
     empty_cells: usize,
+    missing_features: &'a [String],
+    delimiter: Option<&'a str>,
+    decimal_comma: bool,
     locked_test_set: bool,
     holdout: String,
     folds: usize,
@@ -116,6 +130,9 @@ impl<'a> View<'a> {
             left_out: &s.left_out,
             order: s.order.as_deref(),
             empty_cells: s.empty_cells,
+            missing_features: &s.missing_features,
+            delimiter: s.delimiter.as_deref(),
+            decimal_comma: s.decimal_comma,
             locked_test_set: s.holdout > 0.0,
             holdout: s.holdout.to_string(),
             folds: s.folds,
@@ -145,6 +162,9 @@ mod tests {
             left_out: Vec::new(),
             order: None,
             empty_cells: 0,
+            missing_features: Vec::new(),
+            delimiter: None,
+            decimal_comma: false,
             holdout: 0.0,
             folds: 2,
             main_feature: "x".into(),

@@ -188,6 +188,7 @@ impl SimulationPlan {
             lines: (2..rows as u64 + 2).collect(),
             row_numbers: (1..=rows as u64).collect(),
             dropped: 0,
+            missing_cells: BTreeMap::new(),
             unterminated: false,
         };
         let mut assignment = replicate.assignment.clone();

@@ -3,7 +3,10 @@
 
 use std::collections::BTreeSet;
 
-use super::{limits, DataSpec, FamilySpec, IntervalsSpec, SpecFile, SplitMethod, SplitSpec, Task};
+use super::{
+    limits, DataSpec, FamilySpec, IntervalsSpec, MissingPolicy, SpecFile, SplitMethod, SplitSpec,
+    Task,
+};
 use crate::error::SpecError;
 
 pub(super) fn validate_data(
@@ -21,6 +24,7 @@ pub(super) fn validate_data(
             format!("the target \"{}\" cannot also be a feature", data.target),
         ));
     }
+    validate_format(data, split, invalid)?;
     let ordered = split.method == SplitMethod::Ordered;
     match (&data.order, ordered) {
         (Some(_), false) => {
@@ -42,6 +46,65 @@ pub(super) fn validate_data(
             "data.group",
             "cannot be combined with method = \"ordered\": its blocks follow time, and a group \
              seen at many times would straddle them; remove `group`, or use method = \"kfold\""
+                .into(),
+        ));
+    }
+    Ok(())
+}
+
+/// `delimiter`, `decimal`, `missing_markers` and `missing = "impute"`.
+fn validate_format(
+    data: &DataSpec,
+    split: &SplitSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    if let Some(delimiter) = &data.delimiter {
+        if !crate::data::format::DELIMITERS
+            .iter()
+            .any(|(written, _, _)| written == delimiter)
+        {
+            return Err(invalid(
+                "data.delimiter",
+                format!(
+                    "{delimiter:?} is not a delimiter heldout reads; use \",\", \";\", \"\\t\" or \"|\""
+                ),
+            ));
+        }
+    }
+    match data.decimal.as_deref() {
+        None | Some(".") => {}
+        Some(",") => {
+            if data.delimiter.as_deref().unwrap_or(",") == "," {
+                return Err(invalid(
+                    "data.decimal",
+                    "a decimal comma needs another delimiter between cells; set \
+                     `delimiter = \";\"` (or the one the table uses)"
+                        .into(),
+                ));
+            }
+        }
+        Some(other) => {
+            return Err(invalid(
+                "data.decimal",
+                format!("{other:?} is not a decimal mark; use \".\" or \",\""),
+            ))
+        }
+    }
+    if let Some(markers) = &data.missing_markers {
+        let delimiter = data.delimiter.as_deref().unwrap_or(",");
+        if let Some(marker) = markers.iter().find(|m| m.contains(delimiter)) {
+            return Err(invalid(
+                "data.missing_markers",
+                format!("{marker:?} holds the delimiter {delimiter:?}, so no cell can be it"),
+            ));
+        }
+    }
+    if data.missing == MissingPolicy::Impute && split.method == SplitMethod::LeaveOneOut {
+        return Err(invalid(
+            "data.missing",
+            "\"impute\" fits its medians inside each training fold, and leave-one-out's \
+             shortcuts reuse one fit for every row; use method = \"kfold\", or \
+             `missing = \"drop-rows\"`"
                 .into(),
         ));
     }

@@ -85,6 +85,9 @@ pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
         group: None,
         order: None,
         missing: MissingPolicy::Error,
+        delimiter: None,
+        decimal: None,
+        missing_markers: None,
         task: Some(sim.task.unwrap_or(Task::Regression)),
         positive: None,
     });

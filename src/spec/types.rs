@@ -68,6 +68,16 @@ pub(crate) struct DataSpec {
     pub(crate) order: Option<String>,
     #[serde(default)]
     pub(crate) missing: MissingPolicy,
+    /// The character between cells: `","` (default), `";"`, `"\t"` or `"|"`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) delimiter: Option<String>,
+    /// The decimal mark of numeric cells: `"."` (default) or `","`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) decimal: Option<String>,
+    /// Cell texts that mean "no value" (default: `""`, `"NA"`, `"N/A"`,
+    /// `"NaN"`, `"nan"`, `"null"`, matched exactly after trimming).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) missing_markers: Option<Vec<String>>,
     /// `classification` or `regression`; inferred from the target when absent.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub(crate) task: Option<Task>,
@@ -103,6 +113,9 @@ pub(crate) enum MissingPolicy {
     Error,
     /// Rows with an empty cell in a used column are dropped and counted.
     DropRows,
+    /// Missing feature cells are filled inside each training fold (median,
+    /// plus a 0/1 indicator column); see `data::missing`.
+    Impute,
 }
 
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq, JsonSchema)]

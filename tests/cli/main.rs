@@ -33,4 +33,5 @@ mod spec_as_read;
 mod splines;
 mod split_reference;
 mod svg;
+mod tables;
 mod util;

@@ -6,7 +6,9 @@ use std::path::Path;
 use crate::util;
 
 /// 60 invented rows: a unique text id, an ISO date, two numeric features, a
-/// constant column, and the target with one empty cell (line 11).
+/// constant column, and the target with one empty cell (line 11). The noise
+/// keeps |correlation| of temp and load below 0.99 (0.964), which the
+/// scaffold would take for a leak.
 fn table() -> String {
     let mut text = String::from("site_id,reading_date,temp,wind,unit,load\n");
     for row in 0..60 {
@@ -17,7 +19,7 @@ fn table() -> String {
         } else {
             format!(
                 "{:.3}",
-                40.0 - 1.2 * temp + 0.3 * wind + (row % 3) as f64 * 0.2
+                40.0 - 1.2 * temp + 0.3 * wind + (row * 7 % 5) as f64 * 1.5
             )
         };
         text.push_str(&format!(
