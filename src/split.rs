@@ -265,7 +265,9 @@ pub(crate) fn assign(
     assign_stratified(seed, holdout, scheme, identities, unit_of_row, None)
 }
 
-/// [`assign`], stratified when `strata` gives each unit's stratum (its class,
+/// Assigns rows (`unit_of_row[r]` is the unit, row or group, of row `r`;
+/// `identities` gives each unit's identity text), stratified when `strata`
+/// gives each unit's stratum (its class,
 /// 0-based): the test set takes from each stratum its share of the test rows
 /// (largest remainders), and k-fold deals each stratum's units round-robin in
 /// turn, so every fold holds each stratum's units within one of the exact
