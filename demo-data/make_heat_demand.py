@@ -11,6 +11,7 @@ noted the day's mean outdoor temperature and wind speed. Each row is one such
 reading:
 
     day         1..n, the survey day
+    week        the survey week of the day (days 1-7 are week 1)
     meter_id    the meter read that day ("M0001", ...), unique per row
     substation  the substation that feeds the meter
     outdoor_c   mean outdoor temperature of the day, degrees Celsius
@@ -128,9 +129,14 @@ def make_rows(n_rows, seed):
 
 
 def write_csv(rows, path):
-    lines = ["day,meter_id,substation,outdoor_c,wind_ms,demand_mwh"]
+    # `week` numbers the survey's weeks (days 1-7 are week 1): days of one
+    # week share a weather pattern, so the demo spec keeps them together.
+    lines = ["day,week,meter_id,substation,outdoor_c,wind_ms,demand_mwh"]
     for day, meter_id, substation, outdoor_c, wind_ms, demand in rows:
-        lines.append(f"{day},{meter_id},{substation},{outdoor_c:.1f},{wind_ms:.1f},{demand:.3f}")
+        week = (day - 1) // 7 + 1
+        lines.append(
+            f"{day},{week},{meter_id},{substation},{outdoor_c:.1f},{wind_ms:.1f},{demand:.3f}"
+        )
     with open(path, "w", encoding="utf-8", newline="\n") as handle:
         handle.write("\n".join(lines) + "\n")
 

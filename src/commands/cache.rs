@@ -61,8 +61,9 @@ pub(crate) fn cache(args: &CacheCommandArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// The key of every fit `spec` needs: its tasks, or for a simulation spec
-/// the tasks of every replicate. Nothing is fitted.
+/// The key of every fit `spec` needs: its tasks (with nested
+/// cross-validation's), or for a simulation spec the tasks of every
+/// replicate. Nothing is fitted.
 fn needed_by(spec: &Path, args: &CacheCommandArgs) -> anyhow::Result<Vec<[u8; 32]>> {
     let loaded = super::load_spec(spec, &args.data)?;
     let keys_of = |plan: &ExperimentPlan| {
@@ -80,7 +81,18 @@ fn needed_by(spec: &Path, args: &CacheCommandArgs) -> anyhow::Result<Vec<[u8; 32
         }
         return Ok(keys);
     }
-    Ok(keys_of(&crate::plan::resolve(loaded)?))
+    // The main selection's fits and, with `[choose] nested`, those of every
+    // outer fold.
+    let mut plan = crate::plan::resolve(loaded)?;
+    let layouts = crate::evidence::nested::layouts(&plan)
+        .map_err(|e| anyhow::anyhow!("{}: choose.nested: {e}", spec.display()))?;
+    let mut keys = Vec::new();
+    for (assignment, full_fit) in layouts {
+        plan.assignment = assignment;
+        plan.full_fit = full_fit;
+        keys.extend(keys_of(&plan));
+    }
+    Ok(keys)
 }
 
 /// A byte count as people read it.

@@ -25,40 +25,50 @@ fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
     if loaded.is_simulation() {
         return super::simulate::plan(loaded, &cache);
     }
-    let plan = crate::plan::resolve(loaded)?;
-    let a = &plan.assignment;
-    let folds_per_repeat = a.folds.len() / a.repeats;
-    let tasks = execute::tasks(&plan);
-    let keys = execute::task_keys(&plan, &tasks);
-    let mut candidates = Vec::new();
-    for (index, candidate) in plan.candidates.iter().enumerate() {
-        let mine: Vec<_> = tasks
-            .iter()
-            .zip(&keys)
-            .filter(|(t, _)| t.candidate == index)
-            .collect();
-        let mut cached = 0;
-        let mut work = 0u64;
-        for (task, key) in &mine {
+    let mut plan = crate::plan::resolve(loaded)?;
+    // The main selection, then (with `[choose] nested`) the selection rerun
+    // in every outer fold.
+    let layouts = crate::evidence::nested::layouts(&plan)
+        .map_err(|e| anyhow::anyhow!("{}: choose.nested: {e}", plan.spec.path.display()))?;
+    let nested_folds = layouts.len() - 1;
+    let main = (plan.assignment.clone(), plan.full_fit);
+    let mut counts = vec![(0usize, 0usize, 0u64); plan.candidates.len()];
+    for (assignment, full_fit) in layouts {
+        plan.assignment = assignment;
+        plan.full_fit = full_fit;
+        let a = &plan.assignment;
+        let tasks = execute::tasks(&plan);
+        let keys = execute::task_keys(&plan, &tasks);
+        for (task, key) in tasks.iter().zip(&keys) {
+            let (fits, cached, work) = &mut counts[task.candidate];
+            *fits += 1;
             if cache.contains(key) {
-                cached += 1;
+                *cached += 1;
             } else {
                 let rows = match task.rows {
                     TaskRows::Fold(f) => a.fold_train_len(f),
                     TaskRows::LeaveOneOut => a.train.len() * a.train.len(),
                     TaskRows::Full => a.train.len(),
                 };
-                work += (rows * candidate.settings.len()) as u64;
+                *work += (rows * plan.candidates[task.candidate].settings.len()) as u64;
             }
         }
-        candidates.push(PlanCandidate {
+    }
+    (plan.assignment, plan.full_fit) = main;
+    let a = &plan.assignment;
+    let folds_per_repeat = a.folds.len() / a.repeats;
+    let candidates: Vec<PlanCandidate> = plan
+        .candidates
+        .iter()
+        .zip(&counts)
+        .map(|(candidate, &(fits, cached, work))| PlanCandidate {
             candidate: candidate.stem.clone(),
             family: candidate.family_name.to_string(),
             settings: candidate.settings.len(),
-            fits: FitCounts::new(mine.len(), cached),
+            fits: FitCounts::new(fits, cached),
             work: Some(work),
-        });
-    }
+        })
+        .collect();
     let summary = summary::Plan {
         experiment: plan.spec.spec.experiment.name.clone(),
         kind: "table",
@@ -114,9 +124,14 @@ fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
         );
     }
     let all_work: u64 = summary.candidates.iter().filter_map(|c| c.work).sum();
+    let nested = if nested_folds > 0 {
+        format!(", and the same in each of {nested_folds} outer folds of nested cross-validation")
+    } else {
+        String::new()
+    };
     let _ = writeln!(
         out,
-        "\n{} fits (one per candidate and fold, plus one on all non-test rows): \
+        "\n{} fits (one per candidate and fold, plus one on all non-test rows{nested}): \
          {} cached, {} to compute; work ≈ {all_work} training rows × settings",
         summary.total.fits, summary.total.cached, summary.total.to_fit
     );

@@ -152,6 +152,23 @@ pub(crate) fn task_count(plan: &ExperimentPlan, assignments: &[Assignment]) -> u
         .sum()
 }
 
+/// Every (assignment, full-fit kind) a spec's fits are made under: the
+/// main selection's, then with `[choose] nested` the selection rerun in each
+/// outer fold, whose full fits are evaluated at the outer validation rows
+/// only (as [`run`] runs them). `plan` and `cache` read it to count and to
+/// keep those fits.
+pub(crate) fn layouts(plan: &ExperimentPlan) -> Result<Vec<(Assignment, FullFit)>, NestedError> {
+    let mut layouts = vec![(plan.assignment.clone(), plan.full_fit)];
+    if plan.spec.spec.choose.nested {
+        let outer_fit = FullFit {
+            final_fit: false,
+            training_as_evaluation: false,
+        };
+        layouts.extend(assignments(plan)?.into_iter().map(|a| (a, outer_fit)));
+    }
+    Ok(layouts)
+}
+
 /// Runs the whole selection in every outer fold. `plan` is lent: its
 /// assignment and full-fit kind are swapped for each outer fold and put
 /// back before returning.

@@ -104,7 +104,7 @@ fn predictions_for_the_test_rows_equal_the_reports_final_fit_to_the_bit() {
     for (i, (line, &row)) in body[1..].iter().zip(&rows).enumerate() {
         let fields: Vec<&str> = line.split(',').collect();
         let key = fields[0];
-        assert_eq!(key, lines[row].split(',').nth(1).unwrap());
+        assert_eq!(key, lines[row].split(',').nth(2).unwrap());
         for (text, want) in fields[1..].iter().zip([expected[i], lower[i], upper[i]]) {
             let got: f64 = text.parse().unwrap();
             assert_eq!(got.to_bits(), want.to_bits(), "{key}: {got} vs {want}");
@@ -143,9 +143,9 @@ fn new_rows_outside_the_training_range_are_counted_and_missing_columns_refused()
     let dir = tempfile::tempdir().unwrap();
     demo::copy_demo(dir.path());
     let lines = demo_lines(dir.path());
-    // Columns: day, meter_id, substation, outdoor_c, wind_ms, demand_mwh.
+    // Columns: day, week, meter_id, substation, outdoor_c, wind_ms, demand_mwh.
     let new = format!(
-        "{}\n{}\n900,N1,Lillebakk,99,3,0\n901,N2,Lillebakk,-80,3,0\n",
+        "{}\n{}\n900,129,N1,Lillebakk,99,3,0\n901,129,N2,Lillebakk,-80,3,0\n",
         lines[0], lines[1]
     );
     std::fs::write(dir.path().join("new.csv"), new).unwrap();

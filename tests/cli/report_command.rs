@@ -151,8 +151,8 @@ fn report_refuses_stale_results_and_names_what_changed() {
     let table = dir.path().join("demo-data/heat-demand.csv");
     let data = std::fs::read_to_string(&table).unwrap();
     let edited = data.replacen(
-        "4,M0004,Stormyra,-3.9,3.3,10.007\n",
-        "4,M0004,Stormyra,-3.9,3.3,10.307\n",
+        "4,1,M0004,Stormyra,-3.9,3.3,10.007\n",
+        "4,1,M0004,Stormyra,-3.9,3.3,10.307\n",
         1,
     );
     assert_ne!(edited, data, "the demo table changed: pick another value");

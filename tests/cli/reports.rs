@@ -627,8 +627,8 @@ fn compare_names_the_changed_data_and_the_moved_numbers() {
     let table = b.join("demo-data/heat-demand.csv");
     let text = read(&table);
     let edited = text.replacen(
-        "4,M0004,Stormyra,-3.9,3.3,10.007\n",
-        "4,M0004,Stormyra,-3.9,3.3,10.307\n",
+        "4,1,M0004,Stormyra,-3.9,3.3,10.007\n",
+        "4,1,M0004,Stormyra,-3.9,3.3,10.307\n",
         1,
     );
     assert_ne!(text, edited, "the demo table changed: pick another value");

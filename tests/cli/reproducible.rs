@@ -11,10 +11,15 @@ use tempfile::TempDir;
 
 use crate::{demo, util};
 
-/// Every task of the demo spec: 5 candidates × (30 folds + 1 full fit).
-const DEMO_FITS: usize = 155;
-/// One demo candidate's fits: 10 folds × 3 repeats + 1 full fit.
-const DEMO_FITS_PER_CANDIDATE: usize = 31;
+/// Every task of the demo spec: 5 candidates × 341 (below).
+const DEMO_FITS: usize = 1705;
+/// The main selection's tasks alone: 5 candidates × (30 folds + 1 full fit);
+/// the rest are nested cross-validation's.
+const MAIN_FITS: usize = 155;
+/// One demo candidate's fits: 10 folds × 3 repeats + 1 full fit, and the
+/// same again inside each of the 10 outer folds of nested cross-validation:
+/// 31 + 10 × 31.
+const DEMO_FITS_PER_CANDIDATE: usize = 341;
 /// Every task of the generated spec: 2 candidates × (30 folds + 1 full fit).
 const SYNTHETIC_FITS: usize = 62;
 
@@ -250,6 +255,7 @@ data:
   target: demand_mwh
   features: [outdoor_c, wind_ms]
   key: meter_id
+  group: week
 split:
   holdout: 0.2
   method: kfold
@@ -270,6 +276,7 @@ candidate:
 choose:
   metric: mse
   rule: one-se
+  nested: true
 report:
   formats: [markdown, html]
 intervals:
@@ -574,8 +581,9 @@ fn three_shards_then_assembly_match_a_single_run() {
         let output = child.wait_with_output().unwrap();
         let stderr = util::stderr_of(&output);
         assert!(output.status.success(), "shard {shard}: {stderr}");
-        // 155 tasks dealt round-robin to 3 shards (task i to shard i mod 3):
-        // 52, 52 and 51, none shared.
+        // The main selection's 155 tasks dealt round-robin to 3 shards (task
+        // i to shard i mod 3): 52, 52 and 51, none shared. Shards skip nested
+        // cross-validation; the assembling run computes it.
         let expected = if shard.starts_with('3') { 51 } else { 52 };
         assert!(
             stderr.contains(&format!(
@@ -588,11 +596,14 @@ fn three_shards_then_assembly_match_a_single_run() {
     assert!(!dir.path().join("specs/heat-demand.receipt.toml").exists());
     assert_eq!(
         cache_entries(&dir.path().join(".heldout/cache")).len(),
-        DEMO_FITS
+        MAIN_FITS
     );
 
     let stderr = heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
-    assert_eq!(util::fit_counts(&stderr), (0, DEMO_FITS));
+    assert_eq!(
+        util::fit_counts(&stderr),
+        (DEMO_FITS - MAIN_FITS, MAIN_FITS)
+    );
     assert_eq!(demo_artifacts(dir.path()), expected);
 }
 
@@ -631,7 +642,8 @@ fn plan_counts_cached_and_missing_fits() {
         dir.path(),
         &["run", "--shard", "2/3", "specs/heat-demand.toml"],
     );
-    // Shard 2/3 owns tasks 1, 4, …, 154: 52 of the 155.
+    // Shard 2/3 owns tasks 1, 4, …, 154: 52 of the main selection's 155;
+    // plan counts nested cross-validation's fits as well.
     assert_eq!(plan_summary(dir.path()), (DEMO_FITS, 52, DEMO_FITS - 52));
 
     heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
