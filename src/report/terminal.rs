@@ -4,6 +4,7 @@ use std::fmt::Write;
 
 use super::{format_df, format_number};
 use crate::results::Results;
+use crate::simulate::summary::SimulatedSetting;
 
 /// Renders the terminal summary.
 pub(crate) fn render(results: &Results) -> String {
@@ -93,92 +94,64 @@ pub(crate) fn render_simulation(results: &Results) -> String {
         .unwrap_or(9)
         .max(9);
     let mut out = String::new();
-    if let Some(classes) = &summary.classes {
+    // The table has the same shape for numbers and class labels; four of its
+    // columns differ (a class simulation judges settings by error rate).
+    type Columns = fn(&SimulatedSetting) -> [f64; 4];
+    let (title, names, columns): (String, [&str; 4], Columns) = match &summary.classes {
+        Some(classes) => (
+            format!(
+                "expected error rate at {} test points; Bayes error rate {}",
+                summary.test.count,
+                format_number(classes.bayes_error)
+            ),
+            ["exp. brier", "exp. err", "± mc se", "train err"],
+            |s| {
+                let rate = |v: Option<f64>| v.unwrap_or(f64::NAN);
+                [
+                    s.expected_mse,
+                    rate(s.expected_error_rate),
+                    rate(s.expected_error_rate_se),
+                    rate(s.train_error_rate),
+                ]
+            },
+        ),
+        None => (
+            format!(
+                "expected error at {} test points; noise σ² = {}",
+                summary.test.count,
+                format_number(summary.noise)
+            ),
+            ["sum", "exp. mse", "± mc se", "train mse"],
+            |s| [s.decomposition_sum, s.expected_mse, s.mc_se, s.train_mse],
+        ),
+    };
+    let _ = writeln!(
+        out,
+        "\nsimulation: {} replicates of {} rows; {title}",
+        summary.replicates, summary.train_size,
+    );
+    let [c1, c2, c3, c4] = names;
+    let _ = writeln!(
+        out,
+        "{:<id_width$}  {:>8}  {:>9}  {:>9}  {c1:>9}  {c2:>9}  {c3:>9}  {c4:>9}  {:>8}",
+        "candidate", "eff. df", "bias²", "variance", "cv chose",
+    );
+    for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
+        let mark = if s.id == summary.oracle {
+            "  <- oracle"
+        } else {
+            ""
+        };
+        let [v1, v2, v3, v4] = columns(s).map(format_number);
         let _ = writeln!(
             out,
-            "\nsimulation: {} replicates of {} rows; expected error rate at {} test points; \
-             Bayes error rate {}",
-            summary.replicates,
-            summary.train_size,
-            summary.test.count,
-            format_number(classes.bayes_error)
+            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {v1:>9}  {v2:>9}  {v3:>9}  {v4:>9}  {:>8}{mark}",
+            s.id,
+            format_df(s.effective_df),
+            format_number(s.bias_sq),
+            format_number(s.variance),
+            choice.count,
         );
-        let _ = writeln!(
-            out,
-            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}",
-            "candidate",
-            "eff. df",
-            "bias²",
-            "variance",
-            "exp. brier",
-            "exp. err",
-            "± mc se",
-            "train err",
-            "cv chose",
-        );
-        for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
-            let mark = if s.id == summary.oracle {
-                "  <- oracle"
-            } else {
-                ""
-            };
-            let rate = |v: Option<f64>| format_number(v.unwrap_or(f64::NAN));
-            let _ = writeln!(
-                out,
-                "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
-                s.id,
-                format_df(s.effective_df),
-                format_number(s.bias_sq),
-                format_number(s.variance),
-                format_number(s.expected_mse),
-                rate(s.expected_error_rate),
-                rate(s.expected_error_rate_se),
-                rate(s.train_error_rate),
-                choice.count,
-            );
-        }
-    } else {
-        let _ = writeln!(
-            out,
-            "\nsimulation: {} replicates of {} rows; expected error at {} test points; noise σ² = {}",
-            summary.replicates,
-            summary.train_size,
-            summary.test.count,
-            format_number(summary.noise)
-        );
-        let _ = writeln!(
-            out,
-            "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}",
-            "candidate",
-            "eff. df",
-            "bias²",
-            "variance",
-            "sum",
-            "exp. mse",
-            "± mc se",
-            "train mse",
-            "cv chose",
-        );
-        for (s, choice) in sim.simulation.iter().zip(&summary.cv.choices) {
-            let mark = if s.id == summary.oracle {
-                "  <- oracle"
-            } else {
-                ""
-            };
-            let _ = writeln!(
-                out,
-                "{:<id_width$}  {:>8}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>9}  {:>8}{mark}",
-                s.id,
-                format_df(s.effective_df),
-                format_number(s.bias_sq),
-                format_number(s.variance),
-                format_number(s.decomposition_sum),
-                format_number(s.expected_mse),
-                format_number(s.mc_se),
-                format_number(s.train_mse),
-                choice.count,
-            );
-        }
     }
     let _ = writeln!(
         out,
