@@ -97,6 +97,8 @@ fn bayes_error_of_two_normal_classes_matches_the_normal_cdf() {
             (number(s, "decomposition_sum") - number(s, "expected_mse")).abs()
                 < 4.0 * gap_se + 1e-12
         );
+        // The floor is a mean of p(1 − p), which lies in (0, ¼] for
+        // 0 < p < 1 (identity), and here p is never exactly ½ everywhere.
         assert!(number(s, "noise") > 0.0 && number(s, "noise") < 0.25);
     }
     // The oracle has the lowest expected error rate, and the choice table
