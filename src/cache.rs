@@ -12,33 +12,54 @@
 //! title or an added candidate leaves every other entry valid. Changing the
 //! recipe changes `FORMAT`, so old entries are never read as new ones.
 //!
-//! An entry is `blake3(key ‖ payload) ‖ key ‖ payload`: it carries the full
-//! key it was written under. A read checks both the digest and that the
-//! stored key is the key asked for, so an entry copied, renamed or swapped
-//! into another entry's place is reported, ignored and recomputed like a
-//! damaged one; no content of an entry can make a read fail otherwise.
-//! Temporary files that a killed run left behind are swept at the start of
-//! the next run ([`Cache::sweep_orphans`]).
-//! Writes go to a unique temporary file that is renamed into place, so
-//! concurrent runs sharing a folder never see half an entry, and a run killed
-//! part-way leaves only whole entries behind.
+//! Entries are bundled into pack files (`packs/<digest>.pack`, see [`pack`]):
+//! a run gathers the entries it computes and writes them as one pack every
+//! [`BUNDLE_ENTRIES`] entries, [`BUNDLE_BYTES`] bytes or [`BUNDLE_AGE`],
+//! whichever comes first, and once more when it ends, so a run killed
+//! part-way keeps all but its last moments of work. Each entry is
+//! `blake3(key ‖ payload) ‖ key ‖ length ‖ payload`: it carries the full key
+//! it was written under. A read checks both the digest and that the stored
+//! key is the key asked for, so an entry copied, renamed or swapped into
+//! another entry's place is reported, ignored and recomputed like a damaged
+//! one; no content of a pack can make a read fail otherwise. A pack is written
+//! to a unique temporary file and renamed into place, so concurrent runs
+//! sharing a folder never see half a pack; temporary files that a killed run
+//! left behind are swept at the start of the next run
+//! ([`Cache::sweep_orphans`]).
+//!
+//! Entries of the earlier one-file-per-entry layout (`<2 hex>/<64 hex>.fit`,
+//! `digest ‖ key ‖ payload`, same keys) are still read, listed and pruned.
 
-use std::io::Write as _;
+mod pack;
+
+use std::collections::{BTreeMap, HashMap};
+use std::fs::File;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{Arc, Mutex, MutexGuard};
+use std::time::{Duration, Instant};
 
 use crate::error::CacheError;
 
-/// Version of the entry format and key recipe; bump to orphan old entries.
+/// Version of the key recipe; bump to orphan old entries.
 /// v2: explicit task identities instead of a debug rendering of the family.
 /// v3: entries carry the key they were written under.
 const FORMAT: &str = "heldout fit cache v3";
 
-/// Bytes before the payload: the digest, then the key.
-const HEADER: usize = 64;
+/// Bytes before the payload of a loose (one-file) entry: digest, key.
+const LOOSE_HEADER: usize = 64;
+
+/// A pack is written once this many entries wait…
+const BUNDLE_ENTRIES: usize = 512;
+/// …or their bytes reach this…
+const BUNDLE_BYTES: usize = 16 << 20;
+/// …or the oldest has waited this long.
+const BUNDLE_AGE: Duration = Duration::from_millis(500);
+
+/// The folder of pack files inside a cache folder.
+const PACKS: &str = "packs";
 
 /// A 32-byte cache key.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub(crate) struct CacheKey(pub [u8; 32]);
 
 impl CacheKey {
@@ -82,47 +103,166 @@ pub(crate) enum Lookup {
     Corrupt(String),
 }
 
-/// One stored entry: its key and its size on disk.
+/// One stored entry: its key and its size on disk (all its copies).
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct Entry {
     pub(crate) key: CacheKey,
     pub(crate) bytes: u64,
 }
 
-/// A cache folder.
+/// What [`Cache::retain`] removed.
+#[derive(Debug, Default, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct Pruned {
+    pub(crate) entries: usize,
+    pub(crate) bytes: u64,
+    /// Pack files that were not whole packs, removed.
+    pub(crate) damaged: usize,
+}
+
+/// A cache folder. Clones share the entries waiting to be written.
 #[derive(Debug, Clone)]
 pub(crate) struct Cache {
     root: PathBuf,
+    shared: Arc<Shared>,
 }
 
-static TEMPORARY_COUNTER: AtomicU64 = AtomicU64::new(0);
+/// One open pack of the index.
+#[derive(Debug)]
+struct OpenPack {
+    path: PathBuf,
+    file: Arc<File>,
+}
+
+/// Where the copies of one key live: pack number and record.
+type Locations = HashMap<[u8; 32], Vec<(usize, pack::Record)>>;
+
+/// The packs on disk when first looked at, plus those this process wrote.
+#[derive(Debug, Default)]
+struct Index {
+    packs: Vec<OpenPack>,
+    locations: Locations,
+    /// Pack files that are not whole packs, with why.
+    damaged: Vec<(PathBuf, String)>,
+    /// Whether the folder holds shelves of loose entries at all.
+    loose: bool,
+}
+
+#[derive(Debug, Default)]
+struct State {
+    index: Option<Index>,
+    /// Framed entries computed but not yet in a pack, by key.
+    waiting: BTreeMap<[u8; 32], Vec<u8>>,
+    waiting_bytes: usize,
+    oldest: Option<Instant>,
+}
+
+#[derive(Debug)]
+struct Shared {
+    root: PathBuf,
+    state: Mutex<State>,
+}
+
+impl Drop for Shared {
+    fn drop(&mut self) {
+        // A run that failed part-way still keeps the fits it computed;
+        // callers that finish normally have flushed and seen any error.
+        let state = self.state.get_mut().unwrap_or_else(|p| p.into_inner());
+        let _ = write_waiting(&self.root, state);
+    }
+}
 
 impl Cache {
     pub(crate) fn new(root: impl Into<PathBuf>) -> Self {
-        Cache { root: root.into() }
+        let root = root.into();
+        Cache {
+            shared: Arc::new(Shared {
+                root: root.clone(),
+                state: Mutex::new(State::default()),
+            }),
+            root,
+        }
     }
 
     pub(crate) fn root(&self) -> &Path {
         &self.root
     }
 
-    fn path_of(&self, key: &CacheKey) -> PathBuf {
+    fn state(&self) -> MutexGuard<'_, State> {
+        // A panic elsewhere while holding the lock leaves whole values only.
+        self.shared.state.lock().unwrap_or_else(|p| p.into_inner())
+    }
+
+    fn loose_path(&self, key: &CacheKey) -> PathBuf {
         let hex = key.hex();
         self.root.join(&hex[..2]).join(format!("{hex}.fit"))
     }
 
     /// Whether an entry exists (without reading it).
     pub(crate) fn contains(&self, key: &CacheKey) -> bool {
-        self.path_of(key).is_file()
+        let mut state = self.state();
+        if state.waiting.contains_key(&key.0) {
+            return true;
+        }
+        let index = index_of(&self.root, &mut state);
+        index.locations.contains_key(&key.0) || (index.loose && self.loose_path(key).is_file())
     }
 
-    /// Reads and checks an entry.
+    /// Reads and checks an entry. Of several copies (the same fit written
+    /// by two runs), the first that passes its checks is used.
     pub(crate) fn get(&self, key: &CacheKey) -> Lookup {
-        let path = self.path_of(key);
+        let (copies, loose) = {
+            let mut state = self.state();
+            if let Some(framed) = state.waiting.get(&key.0) {
+                return Lookup::Hit(framed[pack::ENTRY_HEADER..].to_vec());
+            }
+            let index = index_of(&self.root, &mut state);
+            let copies: Vec<(Arc<File>, PathBuf, pack::Record)> = index
+                .locations
+                .get(&key.0)
+                .into_iter()
+                .flatten()
+                .map(|(p, record)| {
+                    let open = &index.packs[*p];
+                    (Arc::clone(&open.file), open.path.clone(), *record)
+                })
+                .collect();
+            (copies, index.loose)
+        };
+        let mut problem = None;
+        for (file, path, record) in copies {
+            let checked = pack::read(&file, &record)
+                .map_err(|e| e.to_string())
+                .and_then(|framed| pack::unframe(&key.0, framed));
+            match checked {
+                Ok(payload) => return Lookup::Hit(payload),
+                Err(why) => {
+                    problem.get_or_insert(format!(
+                        "{} (entry {}…): {why}",
+                        path.display(),
+                        &key.hex()[..12]
+                    ));
+                }
+            }
+        }
+        if loose {
+            match self.get_loose(key) {
+                Lookup::Miss => {}
+                found @ Lookup::Hit(_) => return found,
+                Lookup::Corrupt(why) => {
+                    problem.get_or_insert(why);
+                }
+            }
+        }
+        problem.map_or(Lookup::Miss, Lookup::Corrupt)
+    }
+
+    /// Reads an entry of the one-file-per-entry layout.
+    fn get_loose(&self, key: &CacheKey) -> Lookup {
+        let path = self.loose_path(key);
         let Ok(bytes) = std::fs::read(&path) else {
             return Lookup::Miss;
         };
-        if bytes.len() < HEADER {
+        if bytes.len() < LOOSE_HEADER {
             return Lookup::Corrupt(format!("{}: truncated entry", path.display()));
         }
         let (stored, keyed) = bytes.split_at(32);
@@ -141,13 +281,12 @@ impl Cache {
                     [..12]
             ));
         }
-        // The payload moved to the front of the buffer read, not copied.
         let mut bytes = bytes;
-        bytes.drain(..HEADER);
+        bytes.drain(..LOOSE_HEADER);
         Lookup::Hit(bytes)
     }
 
-    /// Removes temporary files (`.<key>.<pid>.<n>.tmp`) last written before
+    /// Removes temporary files (`.<name>.<pid>.<n>.tmp`) last written before
     /// `before`: what a killed run left behind. A concurrent run's file in
     /// flight is younger than the calling run, so it is spared. Returns how
     /// many were removed; a folder that cannot be read is skipped.
@@ -179,9 +318,40 @@ impl Cache {
         removed
     }
 
-    /// Every entry file in the folder (`<2 hex>/<64 hex>.fit`), in key order;
-    /// files of any other name are not entries and are never listed.
+    /// Every entry in the folder (packs and loose files, read afresh), in
+    /// key order, each key once with the bytes of all its copies.
     pub(crate) fn entries(&self) -> Vec<Entry> {
+        let mut state = self.state();
+        state.index = None;
+        let index = index_of(&self.root, &mut state);
+        let mut bytes: BTreeMap<[u8; 32], u64> = BTreeMap::new();
+        for (key, copies) in &index.locations {
+            *bytes.entry(*key).or_default() += copies.iter().map(|(_, r)| r.length).sum::<u64>();
+        }
+        if index.loose {
+            for (key, size) in self.loose_entries() {
+                *bytes.entry(key.0).or_default() += size;
+            }
+        }
+        bytes
+            .into_iter()
+            .map(|(key, bytes)| Entry {
+                key: CacheKey(key),
+                bytes,
+            })
+            .collect()
+    }
+
+    /// How many pack files the folder holds, and how many of them are not
+    /// whole packs (as last read by [`Cache::entries`]).
+    pub(crate) fn pack_files(&self) -> (usize, usize) {
+        let mut state = self.state();
+        let index = index_of(&self.root, &mut state);
+        (index.packs.len(), index.damaged.len())
+    }
+
+    /// Entries of the one-file-per-entry layout with their sizes.
+    fn loose_entries(&self) -> Vec<(CacheKey, u64)> {
         let mut entries = Vec::new();
         let Ok(folders) = std::fs::read_dir(&self.root) else {
             return entries;
@@ -198,64 +368,196 @@ impl Cache {
                 let Ok(hash) = blake3::Hash::from_hex(hex) else {
                     continue;
                 };
+                let key = CacheKey(*hash.as_bytes());
                 let Ok(metadata) = file.metadata() else {
                     continue;
                 };
-                if metadata.is_file() && self.path_of(&CacheKey(*hash.as_bytes())) == file.path() {
-                    entries.push(Entry {
-                        key: CacheKey(*hash.as_bytes()),
-                        bytes: metadata.len(),
-                    });
+                if metadata.is_file() && self.loose_path(&key) == file.path() {
+                    entries.push((key, metadata.len()));
                 }
             }
         }
-        entries.sort_by_key(|entry| entry.key.0);
         entries
     }
 
-    /// Removes the entry stored under `key`; false when it was not there
-    /// (another process removed it first) or cannot be removed.
-    pub(crate) fn remove(&self, key: &CacheKey) -> bool {
-        std::fs::remove_file(self.path_of(key)).is_ok()
+    /// Keeps only the entries whose key `keep` accepts: each pack holding
+    /// others is rewritten without them (a new pack, then the old one
+    /// removed), loose entries are removed, and pack files that are not
+    /// whole packs are removed. Entries waiting to be written are written
+    /// first. A concurrent reader of a rewritten pack finds its entries in
+    /// the new pack on its next run, or recomputes them.
+    pub(crate) fn retain(&self, keep: impl Fn(&[u8; 32]) -> bool) -> Result<Pruned, CacheError> {
+        self.flush()?;
+        let mut state = self.state();
+        state.index = None;
+        let index = index_of(&self.root, &mut state);
+        let io = |path: &Path| {
+            let path = path.to_path_buf();
+            move |error| CacheError::Io { path, error }
+        };
+        let mut pruned = Pruned::default();
+        let mut by_pack: Vec<Vec<pack::Record>> = vec![Vec::new(); index.packs.len()];
+        for copies in index.locations.values() {
+            for (p, record) in copies {
+                by_pack[*p].push(*record);
+            }
+        }
+        let packs_folder = self.root.join(PACKS);
+        for (open, mut records) in index.packs.iter().zip(by_pack) {
+            if records.iter().all(|r| keep(&r.key)) {
+                continue;
+            }
+            records.sort_by_key(|r| r.offset);
+            let mut kept = Vec::new();
+            for record in &records {
+                if keep(&record.key) {
+                    let framed = pack::read(&open.file, record).map_err(io(&open.path))?;
+                    kept.push((record.key, framed));
+                } else {
+                    pruned.entries += 1;
+                    pruned.bytes += record.length;
+                }
+            }
+            if !kept.is_empty() {
+                pack::write(&packs_folder, kept.iter().map(|(k, f)| (k, f.as_slice())))
+                    .map_err(io(&packs_folder))?;
+            }
+            match std::fs::remove_file(&open.path) {
+                Ok(()) => {}
+                // Another pruner removed it first.
+                Err(e) if e.kind() == std::io::ErrorKind::NotFound => {}
+                Err(e) => return Err(io(&open.path)(e)),
+            }
+        }
+        for (path, _) in &index.damaged {
+            if std::fs::remove_file(path).is_ok() {
+                pruned.damaged += 1;
+            }
+        }
+        if index.loose {
+            for (key, size) in self.loose_entries() {
+                if !keep(&key.0) && std::fs::remove_file(self.loose_path(&key)).is_ok() {
+                    pruned.entries += 1;
+                    pruned.bytes += size;
+                }
+            }
+        }
+        state.index = None;
+        Ok(pruned)
     }
 
     /// Where an entry lives, for messages about its content.
     pub(crate) fn describe(&self, key: &CacheKey) -> String {
-        self.path_of(key).display().to_string()
+        let mut state = self.state();
+        let index = index_of(&self.root, &mut state);
+        match index.locations.get(&key.0).and_then(|c| c.first()) {
+            Some((p, _)) => format!(
+                "{} (entry {}…)",
+                index.packs[*p].path.display(),
+                &key.hex()[..12]
+            ),
+            None => self.loose_path(key).display().to_string(),
+        }
     }
 
-    /// Stores an entry atomically.
+    /// Stores an entry. It waits with others and is written as part of a
+    /// pack (see the module notes); [`Cache::flush`] writes what waits.
     pub(crate) fn put(&self, key: &CacheKey, payload: &[u8]) -> Result<(), CacheError> {
-        let path = self.path_of(key);
-        let dir = path.parent().expect("entries live in a sub-folder");
-        let io = |error| CacheError::Io {
-            path: dir.to_path_buf(),
-            error,
-        };
-        std::fs::create_dir_all(dir).map_err(io)?;
-        // digest(key ‖ payload) ‖ key ‖ payload, written in parts: the
-        // payload of a large fit is never copied to frame it.
-        let mut hasher = blake3::Hasher::new();
-        hasher.update(&key.0);
-        hasher.update(payload);
-        let temporary = dir.join(format!(
-            ".{}.{}.{}.tmp",
-            key.hex(),
-            std::process::id(),
-            TEMPORARY_COUNTER.fetch_add(1, Ordering::Relaxed)
-        ));
-        let write = || -> std::io::Result<()> {
-            let mut file = std::io::BufWriter::new(std::fs::File::create(&temporary)?);
-            file.write_all(hasher.finalize().as_bytes())?;
-            file.write_all(&key.0)?;
-            file.write_all(payload)?;
-            file.into_inner().map_err(|e| e.into_error())?;
-            Ok(())
-        };
-        write().map_err(io)?;
-        std::fs::rename(&temporary, &path).map_err(io)?;
+        let framed = pack::frame(&key.0, payload);
+        let mut state = self.state();
+        state.waiting_bytes += framed.len();
+        if let Some(replaced) = state.waiting.insert(key.0, framed) {
+            state.waiting_bytes -= replaced.len();
+        }
+        let oldest = *state.oldest.get_or_insert_with(Instant::now);
+        if state.waiting.len() >= BUNDLE_ENTRIES
+            || state.waiting_bytes >= BUNDLE_BYTES
+            || oldest.elapsed() >= BUNDLE_AGE
+        {
+            write_waiting(&self.root, &mut state)?;
+        }
         Ok(())
     }
+
+    /// Writes the entries that wait as one pack.
+    pub(crate) fn flush(&self) -> Result<(), CacheError> {
+        write_waiting(&self.root, &mut self.state())
+    }
+}
+
+/// The index, read from disk on first use.
+fn index_of<'s>(root: &Path, state: &'s mut State) -> &'s mut Index {
+    state.index.get_or_insert_with(|| read_index(root))
+}
+
+/// Reads every pack's index in file-name order, and notes whether loose
+/// entries may exist. Unreadable folders and files read as empty.
+fn read_index(root: &Path) -> Index {
+    let mut index = Index::default();
+    let mut names: Vec<PathBuf> = std::fs::read_dir(root.join(PACKS))
+        .into_iter()
+        .flatten()
+        .flatten()
+        .map(|entry| entry.path())
+        .filter(|path| path.extension().is_some_and(|e| e == "pack"))
+        .collect();
+    names.sort();
+    for path in names {
+        match pack::open(&path) {
+            Ok(Ok((file, records))) => add_pack(&mut index, path, file, records),
+            Ok(Err(why)) => index.damaged.push((path, why)),
+            Err(_) => {}
+        }
+    }
+    index.loose = std::fs::read_dir(root)
+        .into_iter()
+        .flatten()
+        .flatten()
+        .any(|entry| {
+            let name = entry.file_name();
+            let name = name.to_string_lossy();
+            name.len() == 2 && name.bytes().all(|b| b.is_ascii_hexdigit())
+        });
+    index
+}
+
+fn add_pack(index: &mut Index, path: PathBuf, file: File, records: Vec<pack::Record>) {
+    let number = index.packs.len();
+    for record in records {
+        index
+            .locations
+            .entry(record.key)
+            .or_default()
+            .push((number, record));
+    }
+    index.packs.push(OpenPack {
+        path,
+        file: Arc::new(file),
+    });
+}
+
+/// Writes the waiting entries as one pack and adds it to the index.
+fn write_waiting(root: &Path, state: &mut State) -> Result<(), CacheError> {
+    if state.waiting.is_empty() {
+        return Ok(());
+    }
+    let folder = root.join(PACKS);
+    let waiting = std::mem::take(&mut state.waiting);
+    state.waiting_bytes = 0;
+    state.oldest = None;
+    let (path, records) = pack::write(&folder, waiting.iter().map(|(k, f)| (k, f.as_slice())))
+        .map_err(|error| CacheError::Io {
+            path: folder.clone(),
+            error,
+        })?;
+    if let Some(index) = state.index.as_mut() {
+        let file = File::open(&path).map_err(|error| CacheError::Io {
+            path: path.clone(),
+            error,
+        })?;
+        add_pack(index, path, file, records);
+    }
+    Ok(())
 }
 
 #[cfg(test)]
@@ -265,43 +567,105 @@ mod tests {
 
     const PAYLOAD: &[u8] = b"any bytes \x00\xff";
 
+    /// The pack files of a cache folder, sorted.
+    fn packs(root: &Path) -> Vec<PathBuf> {
+        let mut found: Vec<PathBuf> = std::fs::read_dir(root.join(PACKS))
+            .into_iter()
+            .flatten()
+            .flatten()
+            .map(|e| e.path())
+            .collect();
+        found.sort();
+        found
+    }
+
+    /// An entry in the one-file-per-entry layout of earlier versions.
+    fn write_loose(cache: &Cache, key: &CacheKey, payload: &[u8]) -> PathBuf {
+        let path = cache.loose_path(key);
+        std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+        let mut keyed = key.0.to_vec();
+        keyed.extend_from_slice(payload);
+        let mut bytes = blake3::hash(&keyed).as_bytes().to_vec();
+        bytes.extend_from_slice(&keyed);
+        std::fs::write(&path, bytes).unwrap();
+        path
+    }
+
     #[test]
-    fn entries_round_trip_bit_for_bit() {
+    fn entries_round_trip_bit_for_bit_before_and_after_their_pack_is_written() {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::new(dir.path());
         let key = CacheKey([7; 32]);
         assert!(matches!(cache.get(&key), Lookup::Miss));
         cache.put(&key, PAYLOAD).unwrap();
-        match cache.get(&key) {
-            Lookup::Hit(read) => assert_eq!(read, PAYLOAD),
-            other => panic!("{other:?}"),
+        assert!(packs(dir.path()).is_empty(), "one entry waits");
+        assert!(matches!(cache.get(&key), Lookup::Hit(read) if read == PAYLOAD));
+        cache.flush().unwrap();
+        assert_eq!(packs(dir.path()).len(), 1);
+        // Another process (a fresh cache on the folder) reads it from the pack.
+        let other = Cache::new(dir.path());
+        assert!(other.contains(&key));
+        assert!(matches!(other.get(&key), Lookup::Hit(read) if read == PAYLOAD));
+    }
+
+    #[test]
+    fn many_entries_go_into_few_packs_and_a_dropped_cache_writes_what_waits() {
+        let dir = tempfile::tempdir().unwrap();
+        let count = 2 * BUNDLE_ENTRIES + 3;
+        {
+            let cache = Cache::new(dir.path());
+            for i in 0..count {
+                let key = CacheKey(*blake3::hash(&i.to_le_bytes()).as_bytes());
+                cache.put(&key, &i.to_le_bytes()).unwrap();
+            }
+            // Written without being asked, every BUNDLE_ENTRIES entries (or
+            // sooner, on a slow machine, by age).
+            assert!(packs(dir.path()).len() >= 2);
+        }
+        let written = packs(dir.path()).len();
+        assert!((3..=count / 2).contains(&written), "{written} packs");
+        let cache = Cache::new(dir.path());
+        assert_eq!(cache.entries().len(), count);
+        for i in 0..count {
+            let key = CacheKey(*blake3::hash(&i.to_le_bytes()).as_bytes());
+            assert!(matches!(cache.get(&key), Lookup::Hit(read) if read == i.to_le_bytes()));
         }
     }
 
     #[test]
-    fn a_tampered_entry_is_reported_not_used() {
+    fn a_tampered_entry_is_reported_not_used_and_a_good_copy_wins() {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::new(dir.path());
         let key = CacheKey([9; 32]);
         cache.put(&key, PAYLOAD).unwrap();
-        let path = cache.path_of(&key);
+        cache.flush().unwrap();
+        let path = packs(dir.path()).remove(0);
         let mut bytes = std::fs::read(&path).unwrap();
-        let last = bytes.len() - 1;
-        bytes[last] ^= 1;
+        // The last byte of the one payload: the entry fails its digest.
+        let at = pack::MAGIC.len() + pack::ENTRY_HEADER + PAYLOAD.len() - 1;
+        bytes[at] ^= 1;
         std::fs::write(&path, bytes).unwrap();
-        assert!(matches!(cache.get(&key), Lookup::Corrupt(_)));
+        let fresh = Cache::new(dir.path());
+        match fresh.get(&key) {
+            Lookup::Corrupt(why) => assert!(why.contains("does not match its digest"), "{why}"),
+            other => panic!("{other:?}"),
+        }
+        // Recomputed and written again: the new copy is used, quietly.
+        fresh.put(&key, PAYLOAD).unwrap();
+        fresh.flush().unwrap();
+        assert!(matches!(Cache::new(dir.path()).get(&key), Lookup::Hit(read) if read == PAYLOAD));
     }
 
     #[test]
-    fn an_entry_read_under_another_key_is_refused() {
-        // Two valid entries swapped on disk: each is whole and matches its
-        // own digest, but was written under the other key.
+    fn loose_entries_of_the_earlier_layout_are_read_and_checked() {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::new(dir.path());
         let (a, b) = (CacheKey([1; 32]), CacheKey([2; 32]));
-        cache.put(&a, b"fits of a").unwrap();
-        cache.put(&b, b"fits of b").unwrap();
-        let (path_a, path_b) = (cache.path_of(&a), cache.path_of(&b));
+        let path_a = write_loose(&cache, &a, b"fits of a");
+        let path_b = write_loose(&cache, &b, b"fits of b");
+        assert!(matches!(cache.get(&a), Lookup::Hit(read) if read == b"fits of a"));
+        // Two valid entries swapped on disk: each is whole and matches its
+        // own digest, but was written under the other key.
         let bytes_a = std::fs::read(&path_a).unwrap();
         std::fs::copy(&path_b, &path_a).unwrap();
         std::fs::write(&path_b, bytes_a).unwrap();
@@ -311,18 +675,28 @@ mod tests {
                 other => panic!("{other:?}"),
             }
         }
+        assert_eq!(cache.entries().len(), 2);
     }
 
     #[test]
-    fn any_bytes_in_an_entry_give_a_hit_a_miss_or_corrupt_never_a_panic() {
+    fn any_bytes_in_a_loose_entry_or_a_pack_give_a_hit_a_miss_or_corrupt_never_a_panic() {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::new(dir.path());
         let key = CacheKey([3; 32]);
-        let path = cache.path_of(&key);
+        let path = cache.loose_path(&key);
         std::fs::create_dir_all(path.parent().unwrap()).unwrap();
         for length in [0, 1, 31, 32, 63, 64, 65, 200] {
             std::fs::write(&path, vec![0xA5; length]).unwrap();
             assert!(matches!(cache.get(&key), Lookup::Corrupt(_)), "{length}");
+        }
+        std::fs::remove_file(&path).unwrap();
+        std::fs::create_dir_all(dir.path().join(PACKS)).unwrap();
+        let bogus = dir.path().join(PACKS).join("bogus.pack");
+        for length in [0, 16, 100, 5000] {
+            std::fs::write(&bogus, vec![0x5A; length]).unwrap();
+            let fresh = Cache::new(dir.path());
+            assert!(matches!(fresh.get(&key), Lookup::Miss), "{length}");
+            assert_eq!(fresh.pack_files(), (0, 1));
         }
     }
 
@@ -331,9 +705,9 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::new(dir.path());
         cache.put(&CacheKey([4; 32]), b"kept").unwrap();
-        let folder = dir.path().join("04");
-        let orphan = folder.join(".0404.999.0.tmp");
-        std::fs::write(&orphan, b"half an entry").unwrap();
+        cache.flush().unwrap();
+        let orphan = dir.path().join(PACKS).join(".pack.999.0.tmp");
+        std::fs::write(&orphan, b"half a pack").unwrap();
         let after_orphan = std::time::SystemTime::now() + std::time::Duration::from_secs(1);
         let young = std::time::SystemTime::UNIX_EPOCH;
         assert_eq!(cache.sweep_orphans(young), 0, "a younger run spares it");
@@ -341,6 +715,33 @@ mod tests {
         assert_eq!(cache.sweep_orphans(after_orphan), 1);
         assert!(!orphan.exists());
         assert!(matches!(cache.get(&CacheKey([4; 32])), Lookup::Hit(_)));
+    }
+
+    #[test]
+    fn retain_rewrites_packs_without_the_entries_no_one_needs() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::new(dir.path());
+        for i in 0..4u8 {
+            cache.put(&CacheKey([i; 32]), &[i; 100]).unwrap();
+        }
+        cache.flush().unwrap();
+        cache.put(&CacheKey([9; 32]), b"alone").unwrap();
+        cache.flush().unwrap();
+        let loose = write_loose(&cache, &CacheKey([10; 32]), b"old layout");
+        assert_eq!(cache.entries().len(), 6);
+        let keep = |key: &[u8; 32]| key[0] == 1 || key[0] == 2;
+        let pruned = cache.retain(keep).unwrap();
+        assert_eq!(pruned.entries, 4);
+        assert!(!loose.exists());
+        // One pack rewritten with the two kept entries, the other removed.
+        assert_eq!(packs(dir.path()).len(), 1);
+        let fresh = Cache::new(dir.path());
+        let kept: Vec<u8> = fresh.entries().iter().map(|e| e.key.0[0]).collect();
+        assert_eq!(kept, vec![1, 2]);
+        assert!(matches!(fresh.get(&CacheKey([2; 32])), Lookup::Hit(read) if read == [2; 100]));
+        assert!(matches!(fresh.get(&CacheKey([0; 32])), Lookup::Miss));
+        // Nothing more to remove.
+        assert_eq!(fresh.retain(keep).unwrap(), Pruned::default());
     }
 
     #[test]

@@ -14,11 +14,18 @@ pub(crate) fn cache(args: &CacheCommandArgs) -> anyhow::Result<()> {
     let cache = Cache::new(&args.cache.cache);
     let entries = cache.entries();
     let bytes: u64 = entries.iter().map(|e| e.bytes).sum();
+    let (packs, damaged) = cache.pack_files();
     println!(
-        "{}: {} entries, {}",
+        "{}: {} entries in {} pack file(s), {}{}",
         cache.root().display(),
         entries.len(),
-        size(bytes)
+        packs,
+        size(bytes),
+        if damaged > 0 {
+            format!("; {damaged} damaged pack file(s), removed by --keep-only")
+        } else {
+            String::new()
+        }
     );
     if args.keep_only.is_empty() {
         return Ok(());
@@ -44,11 +51,12 @@ pub(crate) fn cache(args: &CacheCommandArgs) -> anyhow::Result<()> {
         );
         return Ok(());
     }
-    let removed = unneeded.iter().filter(|e| cache.remove(&e.key)).count();
+    cache.retain(|key| needed.contains(key))?;
     let swept =
         cache.sweep_orphans(std::time::SystemTime::now() - std::time::Duration::from_secs(60));
     println!(
-        "removed {removed} of {} entries ({}), kept {}{}",
+        "removed {} of {} entries ({}), kept {}{}",
+        unneeded.len(),
         entries.len(),
         size(freed),
         entries.len() - unneeded.len(),

@@ -46,8 +46,9 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
         policy,
         None,
         super::progress_wanted(args.quiet),
-    )?
-    .map_err(|_| anyhow::anyhow!("predict never shards"))?;
+    );
+    cache.flush()?;
+    let evaluation = evaluation?.map_err(|_| anyhow::anyhow!("predict never shards"))?;
     let plan = &evaluation.plan;
     let chosen = &evaluation.results.chosen;
     let (c, setting) = crate::results::intervals::locate(plan, chosen)

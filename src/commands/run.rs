@@ -77,8 +77,11 @@ fn run_one(
         policy,
         shard,
         super::progress_wanted(args.quiet),
-    )?;
-    let evaluation = match evaluation {
+    );
+    // The fits computed are written before anything that depends on them,
+    // and before an error ends the run: a rerun reuses them either way.
+    cache.flush()?;
+    let evaluation = match evaluation? {
         Ok(evaluation) => evaluation,
         Err(summary) => {
             let shard = shard.expect("only shards skip assembly");

@@ -225,13 +225,9 @@ fn swapped_cache_entries_are_recomputed_and_outputs_equal_a_cold_run() {
     let (dir, output) = run_with(SPEC, &table(), &[]);
     util::assert_success(&output);
     let cold = std::fs::read(dir.path().join("out/hostile/results.json")).unwrap();
-    let mut entries: Vec<_> = walk(&dir.path().join("cache"));
-    entries.sort();
-    assert!(entries.len() >= 2, "{entries:?}");
-    let (a, b) = (&entries[0], &entries[1]);
-    let bytes_a = std::fs::read(a).unwrap();
-    std::fs::copy(b, a).unwrap();
-    std::fs::write(b, bytes_a).unwrap();
+    let packs = util::cache_packs(&dir.path().join("cache"));
+    assert!(!packs.is_empty());
+    swap_first_two_entries(&packs[0]);
     // A verification told to trust this cache fails, naming the entry.
     let output = util::run_in(
         dir.path(),
@@ -260,18 +256,33 @@ fn swapped_cache_entries_are_recomputed_and_outputs_equal_a_cold_run() {
     assert_eq!(cold, warm);
 }
 
-/// Every file below `folder`.
-fn walk(folder: &Path) -> Vec<std::path::PathBuf> {
-    let mut files = Vec::new();
-    for entry in std::fs::read_dir(folder).into_iter().flatten().flatten() {
-        let path = entry.path();
-        if path.is_dir() {
-            files.extend(walk(&path));
-        } else {
-            files.push(path);
-        }
+/// Rewrites a pack so that its index sends the first two keys to each
+/// other's entries: both entries stay whole and match their own digests, and
+/// the index matches its digest, but each sits under the other's key (the
+/// layout in docs/reproducibility.md).
+fn swap_first_two_entries(pack: &Path) {
+    let bytes = std::fs::read(pack).unwrap();
+    let records = util::pack_records(&bytes);
+    assert!(records.len() >= 2, "{} entries", records.len());
+    let body = |i: usize| {
+        let (_, offset, length) = records[i];
+        &bytes[offset as usize..(offset + length) as usize]
+    };
+    let order: Vec<usize> = [1, 0].into_iter().chain(2..records.len()).collect();
+    let mut out = bytes[..16].to_vec();
+    let mut index = (records.len() as u64).to_le_bytes().to_vec();
+    for (slot, &from) in order.iter().enumerate() {
+        index.extend_from_slice(&records[slot].0);
+        index.extend_from_slice(&(out.len() as u64).to_le_bytes());
+        index.extend_from_slice(&(body(from).len() as u64).to_le_bytes());
+        out.extend_from_slice(body(from));
     }
-    files
+    let index_offset = out.len() as u64;
+    out.extend_from_slice(&index);
+    out.extend_from_slice(&index_offset.to_le_bytes());
+    out.extend_from_slice(blake3::hash(&index).as_bytes());
+    out.extend_from_slice(&bytes[..16]);
+    std::fs::write(pack, out).unwrap();
 }
 
 /// Replaces the first occurrence of `from` in the file at `path`.

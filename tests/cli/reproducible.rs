@@ -104,37 +104,21 @@ fn demo_baseline() -> (TempDir, Artifacts) {
     (dir, found)
 }
 
-/// All `*.fit` entries under a cache folder, sorted.
-fn cache_entries(cache: &Path) -> Vec<PathBuf> {
-    let mut found = Vec::new();
-    let Ok(shelves) = std::fs::read_dir(cache) else {
-        return found;
-    };
-    for shelf in shelves {
-        let shelf = shelf.unwrap().path();
-        if !shelf.is_dir() {
-            continue;
-        }
-        for entry in std::fs::read_dir(&shelf).unwrap() {
-            let path = entry.unwrap().path();
-            if path.extension().is_some_and(|e| e == "fit") {
-                found.push(path);
-            }
-        }
-    }
-    found.sort();
-    found
-}
-
-/// Anything in a cache folder that is not a whole entry (left-over temporaries).
+/// Anything in a cache folder that is not a whole pack (left-over
+/// temporaries, or files of another layout).
 fn cache_strays(cache: &Path) -> Vec<PathBuf> {
     let mut found = Vec::new();
-    for shelf in std::fs::read_dir(cache).unwrap() {
-        for entry in std::fs::read_dir(shelf.unwrap().path()).unwrap() {
-            let path = entry.unwrap().path();
-            if path.extension().is_none_or(|e| e != "fit") {
-                found.push(path);
+    for item in std::fs::read_dir(cache).unwrap() {
+        let path = item.unwrap().path();
+        if path.file_name().is_some_and(|n| n == "packs") {
+            for file in std::fs::read_dir(&path).unwrap() {
+                let file = file.unwrap().path();
+                if file.extension().is_none_or(|e| e != "pack") {
+                    found.push(file);
+                }
             }
+        } else {
+            found.push(path);
         }
     }
     found
@@ -239,7 +223,7 @@ fn working_directory_does_not_change_a_byte() {
     assert_eq!(demo_artifacts(dir.path()), baseline);
     // The default cache is relative to the working directory.
     assert_eq!(
-        cache_entries(&specs.join(".heldout/cache")).len(),
+        util::cache_entry_count(&specs.join(".heldout/cache")),
         DEMO_FITS
     );
 }
@@ -406,24 +390,27 @@ fn verify_ignores_a_tampered_cache_and_run_repairs_it() {
     heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
     let before = demo_artifacts(dir.path());
 
-    let entries = cache_entries(&dir.path().join(".heldout/cache"));
-    assert_eq!(entries.len(), DEMO_FITS);
-    let victim = &entries[entries.len() / 2];
+    let cache = dir.path().join(".heldout/cache");
+    assert_eq!(util::cache_entry_count(&cache), DEMO_FITS);
+    // The last payload byte of one entry in the middle of a pack.
+    let packs = util::cache_packs(&cache);
+    let victim = &packs[packs.len() / 2];
     let mut bytes = std::fs::read(victim).unwrap();
-    let near_end = bytes.len() - 3;
-    bytes[near_end] ^= 0x10;
+    let records = util::pack_records(&bytes);
+    let (key, offset, length) = records[records.len() / 2];
+    bytes[(offset + length) as usize - 1] ^= 0x10;
     std::fs::write(victim, &bytes).unwrap();
 
     let (status, stdout, stderr) = heldout(dir.path(), &["verify", "specs/heat-demand.toml"]);
     assert_eq!(status.code(), Some(0), "{stdout}{stderr}");
 
     let stderr = heldout_ok(dir.path(), &["run", "specs/heat-demand.toml"]);
-    let name = victim.file_name().unwrap().to_string_lossy();
+    let name = blake3::Hash::from_bytes(key).to_hex()[..12].to_string();
     let warning = stderr
         .lines()
         .find(|l| l.starts_with("warning:"))
         .unwrap_or_else(|| panic!("no warning about the tampered entry:\n{stderr}"));
-    assert!(warning.contains(name.as_ref()), "{warning}");
+    assert!(warning.contains(&name), "{warning}");
     assert_eq!(util::fit_counts(&stderr), (1, DEMO_FITS - 1));
     assert_eq!(demo_artifacts(dir.path()), before);
 
@@ -466,7 +453,7 @@ fn run_killed_part_way_then_rerun_matches_an_uninterrupted_run() {
             .unwrap();
         let spawned = Instant::now();
         std::thread::sleep(delay);
-        while cache_entries(&cache).is_empty() && child.try_wait().unwrap().is_none() {
+        while util::cache_packs(&cache).is_empty() && child.try_wait().unwrap().is_none() {
             std::thread::sleep(Duration::from_millis(2));
         }
         if child.try_wait().unwrap().is_none() {
@@ -474,7 +461,7 @@ fn run_killed_part_way_then_rerun_matches_an_uninterrupted_run() {
         }
         let status = child.wait().unwrap();
         let killed_after = spawned.elapsed();
-        let left = cache_entries(&cache).len();
+        let left = util::cache_entry_count(&cache);
         if status.success() || left == SYNTHETIC_FITS {
             // Too late to interrupt the fitting: try again, sooner.
             delay /= 2;
@@ -542,7 +529,7 @@ fn concurrent_runs_on_one_cache_agree() {
         synthetic_artifacts(&trees[0]),
         synthetic_artifacts(&trees[1])
     );
-    assert_eq!(cache_entries(&cache).len(), SYNTHETIC_FITS);
+    assert_eq!(util::cache_entry_count(&cache), SYNTHETIC_FITS);
     assert_eq!(cache_strays(&cache), Vec::<PathBuf>::new());
 
     // Whatever the interleaving, the entries are whole and the same bytes result.
@@ -595,7 +582,7 @@ fn three_shards_then_assembly_match_a_single_run() {
     assert!(!dir.path().join("out").exists(), "shards write no outputs");
     assert!(!dir.path().join("specs/heat-demand.receipt.toml").exists());
     assert_eq!(
-        cache_entries(&dir.path().join(".heldout/cache")).len(),
+        util::cache_entry_count(&dir.path().join(".heldout/cache")),
         MAIN_FITS
     );
 

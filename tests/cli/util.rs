@@ -235,3 +235,55 @@ mod skip_reporting {
         );
     }
 }
+
+/// How many entries the cache folder holds, as `heldout cache` counts them
+/// (each key once, packs and loose entries alike).
+pub fn cache_entry_count(cache: &Path) -> usize {
+    let output = heldout()
+        .args(["cache", "--cache"])
+        .arg(cache)
+        .output()
+        .unwrap();
+    assert_success(&output);
+    let stdout = stdout_of(&output);
+    let first = stdout.lines().next().unwrap_or_default().to_string();
+    first
+        .rsplit_once(": ")
+        .and_then(|(_, rest)| rest.split(' ').next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or_else(|| panic!("no entry count in {stdout}"))
+}
+
+/// The pack files of a cache folder (`packs/*.pack`), sorted.
+pub fn cache_packs(cache: &Path) -> Vec<PathBuf> {
+    let mut found: Vec<PathBuf> = std::fs::read_dir(cache.join("packs"))
+        .into_iter()
+        .flatten()
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.extension().is_some_and(|e| e == "pack"))
+        .collect();
+    found.sort();
+    found
+}
+
+/// The entries of a pack as (key, offset, length), read from its index by
+/// the layout docs/reproducibility.md describes: 16 bytes of marker, the
+/// entries, the index (count, then key ‖ offset ‖ length per entry), and a
+/// trailer of index offset ‖ index digest ‖ marker.
+pub fn pack_records(bytes: &[u8]) -> Vec<([u8; 32], u64, u64)> {
+    let number = |at: usize| u64::from_le_bytes(bytes[at..at + 8].try_into().unwrap());
+    let trailer = bytes.len() - 56;
+    let index = number(trailer) as usize;
+    let count = number(index) as usize;
+    (0..count)
+        .map(|i| {
+            let at = index + 8 + 48 * i;
+            (
+                bytes[at..at + 32].try_into().unwrap(),
+                number(at + 32),
+                number(at + 40),
+            )
+        })
+        .collect()
+}
