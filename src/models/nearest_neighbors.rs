@@ -19,8 +19,9 @@
 //! included, so the averages agree to the bit.
 
 use nalgebra::DMatrix;
+use rayon::prelude::*;
 
-use super::kd_tree::{by_distance_then_row, squared_distance, KdTree};
+use super::kd_tree::{by_distance_then_row, squared_distance, KdTree, LEAF_SIZE};
 use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets};
 use super::{
     mean_and_sd, neighbour_vote, require_spread, Family, FitRequest, LeaveOneOut, Setting,
@@ -108,7 +109,7 @@ impl Standardised {
             sorted.sort_unstable_by(by_distance_then_row);
             s.sorted = Some(sorted);
         } else if s.dims <= TREE_MAX_DIMS {
-            s.tree = Some(KdTree::build(&s.points, s.dims));
+            s.tree = Some(KdTree::build(&s.points, s.dims, LEAF_SIZE));
         }
         s
     }
@@ -200,7 +201,9 @@ impl Standardised {
         scratch.sort_unstable_by(by_distance_then_row);
     }
 
-    /// Prefix sums of the targets of the `k_max` nearest training rows of `query`.
+    /// Prefix sums of the targets of the `k_max` nearest training rows of
+    /// `query` (for tests that compare the three searches).
+    #[cfg(test)]
     fn neighbour_prefix_sums(
         &self,
         query: &[f64],
@@ -208,21 +211,7 @@ impl Standardised {
         k_max: usize,
         scratch: &mut Vec<(f64, usize)>,
     ) -> Vec<f64> {
-        self.neighbour_prefix_sums_without(query, y, k_max, None, scratch)
-    }
-
-    /// As [`Self::neighbour_prefix_sums`], with training row `skip` left out
-    /// (leave-one-out): removing one row does not change the order of the
-    /// others, so this equals a search on the other rows.
-    fn neighbour_prefix_sums_without(
-        &self,
-        query: &[f64],
-        y: &[f64],
-        k_max: usize,
-        skip: Option<usize>,
-        scratch: &mut Vec<(f64, usize)>,
-    ) -> Vec<f64> {
-        self.ordered_neighbours(query, k_max, skip, scratch);
+        self.ordered_neighbours(query, k_max, None, scratch);
         let mut sums = Vec::with_capacity(k_max + 1);
         sums.push(0.0);
         let mut total = 0.0;
@@ -231,6 +220,83 @@ impl Standardised {
             sums.push(total);
         }
         sums
+    }
+
+    /// Calls `answer(query number, query, scratch, out)` for every query of
+    /// `queries` (row-major, `dims` per row), which appends `width` numbers
+    /// per setting to `out[s]`; returns per setting the answers in query
+    /// order. Queries go in blocks, in parallel, in the order of a k-d tree
+    /// over the queries themselves, so that consecutive queries visit the
+    /// same part of the training tree while it is in cache. Each answer
+    /// depends on its query alone, so neither the order nor the blocks can
+    /// change a number.
+    fn answer_all(
+        &self,
+        queries: &[f64],
+        settings: usize,
+        width: usize,
+        answer: impl Fn(usize, &[f64], &mut Vec<(f64, usize)>, &mut [Vec<f64>]) + Sync,
+    ) -> Vec<Vec<f64>> {
+        const BLOCK: usize = 512;
+        let dims = self.dims;
+        let count = queries.len() / dims;
+        let order: Vec<usize> = if count > BLOCK {
+            KdTree::build(queries, dims, LEAF_SIZE).into_order()
+        } else {
+            (0..count).collect()
+        };
+        let blocks: Vec<Vec<Vec<f64>>> = order
+            .par_chunks(BLOCK)
+            .map(|rows| {
+                let mut scratch = Vec::new();
+                let mut out = vec![Vec::with_capacity(rows.len() * width); settings];
+                for &r in rows {
+                    answer(
+                        r,
+                        &queries[r * dims..(r + 1) * dims],
+                        &mut scratch,
+                        &mut out,
+                    );
+                }
+                out
+            })
+            .collect();
+        let mut result = vec![vec![0.0; count * width]; settings];
+        for (rows, block) in order.chunks(BLOCK).zip(blocks) {
+            for (all, part) in result.iter_mut().zip(block) {
+                for (&r, values) in rows.iter().zip(part.chunks_exact(width)) {
+                    all[r * width..(r + 1) * width].copy_from_slice(values);
+                }
+            }
+        }
+        result
+    }
+
+    /// Per setting, the mean target of the `k` nearest training rows of
+    /// every query (leaving out training row `skip(query number)`, if any).
+    /// The targets are summed nearest first, so each mean is the prefix sum
+    /// up to `k` divided by `k`, for the whole grid from one search.
+    fn means(
+        &self,
+        queries: &[f64],
+        y: &[f64],
+        ks: &[usize],
+        skip: impl Fn(usize) -> Option<usize> + Sync,
+    ) -> Vec<Vec<f64>> {
+        let k_max = ks.iter().copied().max().unwrap_or(1);
+        let mut ascending: Vec<(usize, usize)> = ks.iter().copied().zip(0..).collect();
+        ascending.sort_unstable();
+        self.answer_all(queries, ks.len(), 1, |r, query, scratch, out| {
+            self.ordered_neighbours(query, k_max, skip(r), scratch);
+            let (mut taken, mut total) = (0, 0.0);
+            for &(k, s) in &ascending {
+                while taken < k {
+                    total += y[scratch[taken].1];
+                    taken += 1;
+                }
+                out[s].push(total / k as f64);
+            }
+        })
     }
 }
 
@@ -259,24 +325,10 @@ impl NearestNeighbors {
 
     /// Leave-one-out predictions: each training row's neighbours among the others.
     fn loo_by_exclusion(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> LeaveOneOut {
-        let n = x_train.nrows();
         let k_max = self.k_max();
         // Each row's k_max neighbours come from the other rows.
         let space = self.space(x_train, k_max + 1)?;
-        let mut scratch = Vec::with_capacity(n);
-        let sums: Vec<Vec<f64>> = space
-            .points
-            .chunks_exact(space.dims)
-            .enumerate()
-            .map(|(i, q)| {
-                space.neighbour_prefix_sums_without(q, y_train, k_max, Some(i), &mut scratch)
-            })
-            .collect();
-        Ok(self
-            .ks
-            .iter()
-            .map(|&k| sums.iter().map(|s| s[k] / k as f64).collect())
-            .collect())
+        Ok(space.means(&space.points, y_train, &self.ks, Some))
     }
 }
 
@@ -298,18 +350,16 @@ impl Family for NearestNeighbors {
         let space = self.space(x_train, k_max)?;
         if request.classes > 0 {
             // A class target: the k nearest rows vote (neighbour_vote.rs).
-            let mut scratch = Vec::with_capacity(n);
-            let mut vote_all = |queries: &[f64]| -> Vec<Vec<f64>> {
-                let mut out = vec![Vec::new(); self.ks.len()];
-                for q in queries.chunks_exact(space.dims) {
-                    space.ordered_neighbours(q, k_max, None, &mut scratch);
+            let width = request.classes + 1;
+            let vote_all = |queries: &[f64]| -> Vec<Vec<f64>> {
+                space.answer_all(queries, self.ks.len(), width, |_, q, scratch, out| {
+                    space.ordered_neighbours(q, k_max, None, scratch);
                     let classes: Vec<usize> = scratch
                         .iter()
                         .map(|&(_, row)| y_train[row] as usize)
                         .collect();
-                    neighbour_vote::vote(&classes, &self.ks, request.classes, &mut out);
-                }
-                out
+                    neighbour_vote::vote(&classes, &self.ks, request.classes, out);
+                })
             };
             let mut train = if final_fit {
                 vote_all(&space.points)
@@ -330,25 +380,20 @@ impl Family for NearestNeighbors {
                 })
                 .collect());
         }
-        let mut scratch = Vec::with_capacity(n);
-        let mut predict_all = |queries: &[f64]| -> Vec<Vec<f64>> {
-            queries
-                .chunks_exact(space.dims)
-                .map(|q| space.neighbour_prefix_sums(q, y_train, k_max, &mut scratch))
-                .collect()
-        };
-        let train_sums = if final_fit {
-            predict_all(&space.points)
+        let mut train = if final_fit {
+            space.means(&space.points, y_train, &self.ks, |_| None)
         } else {
-            Vec::new()
+            vec![Vec::new(); self.ks.len()]
         };
-        let eval_sums = predict_all(&space.transform(x_eval));
+        let eval = space.means(&space.transform(x_eval), y_train, &self.ks, |_| None);
         Ok(self
             .ks
             .iter()
-            .map(|&k| SettingFit {
-                train_pred: train_sums.iter().map(|s| s[k] / k as f64).collect(),
-                eval_pred: eval_sums.iter().map(|s| s[k] / k as f64).collect(),
+            .zip(eval)
+            .enumerate()
+            .map(|(s, (&k, eval_pred))| SettingFit {
+                train_pred: std::mem::take(&mut train[s]),
+                eval_pred,
                 effective_df: n as f64 / k as f64,
                 coefficients: None,
             })
@@ -486,14 +531,33 @@ mod tree_tests {
                     );
                 }
             }
-            for (i, q) in tree.points.chunks_exact(dims).enumerate().step_by(7) {
-                for k in [1, 4, 25] {
-                    assert_eq!(
-                        tree.neighbour_prefix_sums_without(q, &y, k, Some(i), &mut a),
-                        scan.neighbour_prefix_sums_without(q, &y, k, Some(i), &mut b),
-                        "dims {dims}, left-out row {i}, k {k}"
-                    );
-                }
+            // Leave-one-out: every row's neighbours among the others.
+            let ks = [1, 4, 25];
+            assert_eq!(
+                tree.means(&tree.points, &y, &ks, Some),
+                scan.means(&scan.points, &y, &ks, Some),
+                "dims {dims}, leave-one-out"
+            );
+        }
+    }
+
+    #[test]
+    fn queries_in_blocks_and_tree_order_give_each_query_its_own_answer() {
+        // More queries than one block, so they are reordered and split:
+        // every answer must still be its own query's prefix sum over k.
+        let (n, dims) = (700, 3);
+        let x = tied_rows(n, dims);
+        let y: Vec<f64> = (0..n).map(|i| (i as f64 * 1.3).cos() * 5.0).collect();
+        let space = Standardised::fit(&x);
+        let queries = DMatrix::from_fn(1500, dims, |i, j| ((i * 17 + j * 5) % 23) as f64 * 0.2);
+        let queries = space.transform(&queries);
+        let ks = [7, 1, 40];
+        let means = space.means(&queries, &y, &ks, |_| None);
+        let mut scratch = Vec::new();
+        for (r, q) in queries.chunks_exact(dims).enumerate() {
+            let sums = space.neighbour_prefix_sums(q, &y, 40, &mut scratch);
+            for (s, &k) in ks.iter().enumerate() {
+                assert_eq!(means[s][r], sums[k] / k as f64, "query {r}, k {k}");
             }
         }
     }
