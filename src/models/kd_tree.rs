@@ -23,7 +23,6 @@
 //!   sum (in the same dimension order) the bound stays at or below.
 
 use std::cmp::Ordering;
-use std::collections::BinaryHeap;
 
 /// Rows per leaf of the trees the neighbour search builds.
 ///
@@ -31,7 +30,8 @@ use std::collections::BinaryHeap;
 /// seconds of one thread, same results to the bit): W2 (20 000 rows, 2
 /// features, k up to 89, 10 folds) 0.62 / 0.57 / 0.44 / 0.47 s with leaves
 /// of 8 / 12 / 24 / 48 rows; 250 000 rows, 4 features, k up to 100:
-/// 13.7 / 12.4 / 12.8 / 13.5 s with 16 / 32 / 48 / 96. Large k visits many
+/// 13.7 / 12.4 / 12.8 / 13.5 s with 16 / 32 / 48 / 96 (with the heap search
+/// this file used before the buffer of 2k candidates). Large k visits many
 /// leaves anyway, and a longer leaf scan is cheaper than more nodes.
 pub(crate) const LEAF_SIZE: usize = 32;
 
@@ -68,30 +68,6 @@ pub(crate) struct KdTree {
     /// Per node, per dimension, the smallest then the largest coordinate of
     /// its rows (`2 · dims` values per node, in node order).
     bounds: Vec<f64>,
-}
-
-/// A candidate in the search heap; the largest (distance, row) on top.
-#[derive(Clone, Copy)]
-struct Candidate(f64, usize);
-
-impl PartialEq for Candidate {
-    fn eq(&self, other: &Self) -> bool {
-        self.cmp(other) == Ordering::Equal
-    }
-}
-
-impl Eq for Candidate {}
-
-impl PartialOrd for Candidate {
-    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
-        Some(self.cmp(other))
-    }
-}
-
-impl Ord for Candidate {
-    fn cmp(&self, other: &Self) -> Ordering {
-        by_distance_then_row(&(self.0, self.1), &(other.0, other.1))
-    }
 }
 
 impl KdTree {
@@ -200,38 +176,28 @@ impl KdTree {
         if self.nodes.is_empty() || k == 0 {
             return;
         }
-        let mut heap: BinaryHeap<Candidate> = BinaryHeap::with_capacity(k + 1);
-        self.visit(0, query, k, skip, &mut heap);
-        found.extend(heap.into_sorted_vec().into_iter().map(|c| (c.0, c.1)));
+        let mut search = Search {
+            k,
+            found: std::mem::take(found),
+            bound: f64::INFINITY,
+        };
+        search.found.reserve(2 * k);
+        self.visit(0, query, skip, &mut search);
+        search.keep_nearest();
+        *found = search.found;
+        found.sort_unstable_by(by_distance_then_row);
     }
 
     /// Depth-first search of node `index`, nearer child first.
-    fn visit(
-        &self,
-        index: usize,
-        query: &[f64],
-        k: usize,
-        skip: Option<usize>,
-        heap: &mut BinaryHeap<Candidate>,
-    ) {
+    fn visit(&self, index: usize, query: &[f64], skip: Option<usize>, search: &mut Search) {
         let node = &self.nodes[index];
         match node.children {
             None => {
                 let rows = &self.order[node.start..node.end];
                 let stretch = &self.ordered_points[node.start * self.dims..node.end * self.dims];
                 for (&row, p) in rows.iter().zip(stretch.chunks_exact(self.dims)) {
-                    if Some(row) == skip {
-                        continue;
-                    }
-                    let candidate = Candidate(squared_distance(p, query), row);
-                    if heap.len() < k {
-                        heap.push(candidate);
-                    } else if let Some(mut worst) = heap.peek_mut() {
-                        // Replacing the top sifts once, where pop and push
-                        // would sift twice.
-                        if candidate < *worst {
-                            *worst = candidate;
-                        }
+                    if Some(row) != skip {
+                        search.offer(squared_distance(p, query), row);
                     }
                 }
             }
@@ -245,13 +211,55 @@ impl KdTree {
                     }
                 };
                 for (child, bound) in [near, far] {
-                    let pruned =
-                        heap.len() == k && heap.peek().is_some_and(|worst| bound > worst.0);
-                    if !pruned {
-                        self.visit(child, query, k, skip, heap);
+                    // Strictly farther than k rows already found: no row
+                    // inside can be among the k nearest, nor tie with one.
+                    if bound <= search.bound {
+                        self.visit(child, query, skip, search);
                     }
                 }
             }
+        }
+    }
+}
+
+/// The rows found so far by one search: up to 2k candidates, thinned to
+/// the k nearest whenever the buffer fills (a selection, O(k), so each
+/// candidate costs O(1) amortised where a heap costs O(log k)). `bound` is
+/// the k-th smallest distance at the last thinning (infinite before k
+/// rows are found): a row farther than it cannot be among the k nearest,
+/// while a row at exactly that distance may still win the tie by its row
+/// number and is kept.
+struct Search {
+    k: usize,
+    found: Vec<(f64, usize)>,
+    bound: f64,
+}
+
+impl Search {
+    #[inline]
+    fn offer(&mut self, distance: f64, row: usize) {
+        if distance > self.bound {
+            return;
+        }
+        self.found.push((distance, row));
+        if self.found.len() == self.k && self.bound == f64::INFINITY {
+            self.bound = self
+                .found
+                .iter()
+                .map(|c| c.0)
+                .fold(f64::NEG_INFINITY, f64::max);
+        } else if self.found.len() >= 2 * self.k {
+            self.keep_nearest();
+        }
+    }
+
+    /// Keeps the k nearest by (distance, row) and tightens the bound.
+    fn keep_nearest(&mut self) {
+        if self.found.len() > self.k {
+            self.found
+                .select_nth_unstable_by(self.k - 1, by_distance_then_row);
+            self.found.truncate(self.k);
+            self.bound = self.found[self.k - 1].0;
         }
     }
 }
