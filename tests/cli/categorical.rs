@@ -227,3 +227,71 @@ fn predict_refuses_a_level_the_kept_fit_never_saw() {
         "{stderr}"
     );
 }
+
+#[test]
+fn predict_gives_the_final_fits_test_predictions_to_the_bit() {
+    // The fixture with a locked test set, every fourth temperature missing
+    // (imputed) and the interaction of temperature and shop: new rows equal
+    // to the test rows get the report's test predictions, bit for bit.
+    let dir = tempfile::tempdir().unwrap();
+    let (_, table) = copy_fixture(dir.path());
+    let mut lines: Vec<String> = table.lines().map(str::to_string).collect();
+    for (i, line) in lines.iter_mut().enumerate().skip(1) {
+        if i % 4 == 2 {
+            let mut cells: Vec<&str> = line.split(',').collect();
+            cells[1] = "";
+            *line = cells.join(",");
+        }
+    }
+    let table = lines.join("\n") + "\n";
+    std::fs::write(dir.path().join("data.csv"), &table).unwrap();
+    std::fs::write(dir.path().join("new.csv"), &table).unwrap();
+    std::fs::write(
+        dir.path().join("spec.toml"),
+        "[experiment]\nname = \"held\"\nseed = 5\n\n[data]\ntable = \"data.csv\"\n\
+         target = \"loaves\"\nfeatures = [\"temp_c\", \"weekday\", \"shop\"]\nkey = \"day\"\n\
+         missing = \"impute\"\n\n[split]\nholdout = 0.25\nmethod = \"kfold\"\nfolds = 4\n\n\
+         [[candidate]]\nfamily = \"linear\"\ninteractions = [[\"temp_c\", \"shop\"]]\n\n\
+         [choose]\nmetric = \"mse\"\nrule = \"lowest\"\n",
+    )
+    .unwrap();
+    let results = util::run_results(dir.path(), "held");
+    let test = &results["final"]["predictions"]["test"];
+    let predicted = util::run_in(
+        dir.path(),
+        &[
+            "predict",
+            "spec.toml",
+            "--table",
+            "new.csv",
+            "--cache",
+            "cache",
+            "--quiet",
+        ],
+    );
+    util::assert_success(&predicted);
+    let stdout = util::stdout_of(&predicted);
+    let by_day: std::collections::BTreeMap<String, f64> = stdout
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| {
+            let (day, value) = l.split_once(',').unwrap();
+            (day.to_string(), value.parse().unwrap())
+        })
+        .collect();
+    let folds = util::run_in(dir.path(), &["folds", "spec.toml"]);
+    let mut test_days: Vec<u64> = util::stdout_of(&folds)
+        .lines()
+        .filter(|l| l.ends_with(",1,test"))
+        .map(|l| l.split(',').nth(1).unwrap().parse().unwrap())
+        .collect();
+    test_days.sort_unstable();
+    let want = test["predicted"].as_array().unwrap();
+    assert_eq!(want.len(), test_days.len());
+    assert_eq!(want.len(), 16);
+    for (day, want) in test_days.iter().zip(want) {
+        let got = by_day[&day.to_string()];
+        assert_eq!(got.to_bits(), want.as_f64().unwrap().to_bits(), "day {day}");
+    }
+}
