@@ -13,6 +13,7 @@ use std::path::{Path, PathBuf};
 use crate::error::DataError;
 use crate::spec::MissingPolicy;
 
+pub(crate) mod encode;
 pub(crate) mod format;
 pub(crate) mod missing;
 
@@ -25,6 +26,10 @@ pub(crate) struct TableRequest {
     pub(crate) numeric: Vec<String>,
     /// Columns read as text (key, group, fold labels).
     pub(crate) text: Vec<String>,
+    /// Categorical feature columns: read as labels (missing-value markers
+    /// recognised), kept as level codes in `Table::numeric` with their
+    /// levels in `Table::levels` ([`encode`]).
+    pub(crate) categorical: Vec<String>,
     pub(crate) missing: MissingPolicy,
     /// Under `missing = "impute"`: the numeric columns whose missing cells
     /// are kept (as NaN) to be filled per training fold. A missing cell in
@@ -42,6 +47,9 @@ pub(crate) struct Table {
     pub(crate) digest: String,
     pub(crate) numeric: BTreeMap<String, Vec<f64>>,
     pub(crate) text: BTreeMap<String, Vec<String>>,
+    /// The levels of each categorical column, in byte order; its cells are
+    /// their indices, in `numeric`.
+    pub(crate) levels: BTreeMap<String, Vec<String>>,
     /// File line of each kept row (header = 1).
     pub(crate) lines: Vec<u64>,
     /// 1-based position of each kept row among the file's data rows, counted
@@ -207,6 +215,14 @@ pub(crate) fn load(
         .map(|name| Ok((name.clone(), position(name)?)))
         .collect::<Result<_, DataError>>()?;
 
+    let categorical_at: Vec<(String, usize)> = request
+        .categorical
+        .iter()
+        .map(|name| Ok((name.clone(), position(name)?)))
+        .collect::<Result<_, DataError>>()?;
+    let mut labels: Vec<Vec<String>> = vec![Vec::new(); categorical_at.len()];
+    let mut missing_categorical = vec![0usize; categorical_at.len()];
+
     let mut numeric: BTreeMap<String, Vec<f64>> = request
         .numeric
         .iter()
@@ -340,9 +356,43 @@ pub(crate) fn load(
             }
             texts.push(raw.to_string());
         }
+        let mut categories = Vec::with_capacity(categorical_at.len());
+        for (j, (name, at)) in categorical_at.iter().enumerate() {
+            let raw = cell_text(&record, *at)
+                .map_err(|m| cell_error(name, m))?
+                .trim();
+            if !format.is_missing(raw) {
+                categories.push(raw.to_string());
+                continue;
+            }
+            missing_categorical[j] += 1;
+            match request.missing {
+                // A level of its own, the same in every fit.
+                MissingPolicy::Impute => categories.push(encode::MISSING_LEVEL.to_string()),
+                MissingPolicy::DropRows => has_missing = true,
+                MissingPolicy::Error => {
+                    return Err(cell_error(
+                        name,
+                        format!(
+                            "the cell {} a missing-value marker; fill it, or set \
+                             `missing = \"drop-rows\"` or `missing = \"impute\"` (a level \
+                             named \"missing\") in [data]",
+                            if raw.is_empty() {
+                                "is empty,".to_string()
+                            } else {
+                                format!("holds \"{}\",", shorten(raw))
+                            }
+                        ),
+                    ))
+                }
+            }
+        }
         if has_missing {
             dropped += 1;
             continue;
+        }
+        for (column, label) in labels.iter_mut().zip(categories) {
+            column.push(label);
         }
         for ((name, _), value) in numeric_at.iter().zip(values) {
             numeric.get_mut(name).expect("requested column").push(value);
@@ -373,10 +423,17 @@ pub(crate) fn load(
             "all {dropped} rows have an empty cell in a used column; none are left"
         )));
     }
+    let mut levels = BTreeMap::new();
+    for ((name, _), column) in categorical_at.iter().zip(labels) {
+        let (names, codes) = encode::codes(&column);
+        numeric.insert(name.clone(), codes);
+        levels.insert(name.clone(), names);
+    }
     let missing_cells = numeric_at
         .iter()
         .zip(&missing_numeric)
         .chain(text_at.iter().zip(&missing_text))
+        .chain(categorical_at.iter().zip(&missing_categorical))
         .filter(|(_, &count)| count > 0)
         .map(|((name, _), &count)| (name.clone(), count))
         .collect();
@@ -385,6 +442,7 @@ pub(crate) fn load(
         digest,
         numeric,
         text,
+        levels,
         lines,
         row_numbers,
         dropped,
@@ -407,6 +465,7 @@ mod tests {
         TableRequest {
             numeric: vec!["y".into(), "x".into()],
             text: vec![],
+            categorical: vec![],
             missing: MissingPolicy::Error,
             imputed: vec![],
             format: TableFormat::default(),

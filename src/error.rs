@@ -138,6 +138,8 @@ pub enum FitError {
          setting: please report it with the data"
     )]
     NoConvergence { setting: String, what: &'static str },
+    #[error("{message}")]
+    Encoding { message: String },
     #[error(
         "{setting}: the fit can reach effective df only in ({lowest}, {highest}) on this fold \
          ({rows} training rows); choose df inside that range"

@@ -138,14 +138,17 @@ pub(crate) fn fold_grids_at(
         .par_iter()
         .map(|&f| {
             let train = a.fold_train(f);
+            let mut x_train = plan.design(candidate, &train);
+            let mut x_at = x_eval.clone();
+            if plan.spec.data().missing == crate::spec::MissingPolicy::Impute {
+                // As the fold's own task does (`execute::task_data`): the
+                // medians of the fold's training rows fill both.
+                crate::data::missing::fill_with_training_medians(&mut x_train, &mut x_at)
+                    .expect("the plan checked that every training fold has values");
+            }
             candidate
                 .family
-                .fit_path(
-                    &plan.design(candidate, &train),
-                    &plan.target_of(&train),
-                    x_eval,
-                    false,
-                )
+                .fit_path(&x_train, &plan.target_of(&train), &x_at, false)
                 .map(|fits| fits.into_iter().map(|fit| fit.eval_pred).collect())
                 .map_err(|cause| FitFailure {
                     candidate: candidate.stem.clone(),

@@ -15,6 +15,7 @@ use crate::models::{Family, Setting};
 use crate::spec::{FamilySpec, LoadedSpec, Metric, SplitMethod, Task, DEFAULT_FOLDS};
 use crate::split::{self, Assignment, FoldScheme, Identities};
 
+pub(crate) mod encode;
 mod impute;
 
 /// One candidate of the spec, ready to fit.
@@ -186,6 +187,13 @@ pub(crate) fn resolve_reporting(
             text.push(name.clone());
         }
     }
+    // Features declared categorical are read as labels from the start.
+    let categorical: Vec<String> = numeric
+        .iter()
+        .filter(|name| data_spec.categorical.contains(name) && *name != &data_spec.target)
+        .cloned()
+        .collect();
+    numeric.retain(|name| !categorical.contains(name));
     // Under `missing = "impute"` every numeric column but the target may
     // keep missing cells, to be filled inside each training fold.
     let imputed = numeric
@@ -193,33 +201,66 @@ pub(crate) fn resolve_reporting(
         .filter(|name| *name != &data_spec.target)
         .cloned()
         .collect();
-    let request = TableRequest {
+    let mut request = TableRequest {
         numeric,
         text,
+        categorical,
         missing: data_spec.missing,
         imputed,
         format: data::TableFormat::of(&data_spec),
     };
     let resolved = data_path(&spec)?;
     let target_name = &data_spec.target;
-    let mut table = match data::load(&resolved, &resolved, &request, on_read) {
-        // Text labels in a target of undeclared task: read it again as text.
-        Err(DataError::Cell {
-            column, message, ..
-        }) if declared.is_none()
-            && &column == target_name
-            && message.starts_with("cannot read")
-            // A number in the other decimal convention is a format mistake,
-            // not a label: its message says how to declare the format.
-            && !message.contains("decimal") =>
-        {
-            let mut as_text = request.clone();
-            as_text.numeric.retain(|name| name != target_name);
-            as_text.text.push(target_name.clone());
-            data::load(&resolved, &resolved, &as_text, &|_, _| {})?
+    // A cell that does not read as a number turns the target into labels
+    // (when its task is not declared) and a feature into a categorical one;
+    // each turn reads the table again, so there are at most as many reads
+    // as used columns. `turned` keeps the error that turned each feature.
+    let mut turned: Vec<(String, DataError)> = Vec::new();
+    let mut table = loop {
+        match data::load(&resolved, &resolved, &request, on_read) {
+            Err(DataError::Cell {
+                path,
+                line,
+                column,
+                message,
+            }) if message.starts_with("cannot read")
+                // A number in the other decimal convention is a format
+                // mistake, not a label: its message says how to declare
+                // the format.
+                && !message.contains("decimal")
+                && (&column != target_name || declared.is_none()) =>
+            {
+                request.numeric.retain(|name| name != &column);
+                request.imputed.retain(|name| name != &column);
+                if &column == target_name {
+                    request.text.push(column);
+                } else {
+                    request.categorical.push(column.clone());
+                    let error = DataError::Cell {
+                        path,
+                        line,
+                        column: column.clone(),
+                        message,
+                    };
+                    turned.push((column, error));
+                }
+            }
+            other => break other?,
         }
-        other => other?,
     };
+    // A column of numbers with a stray word is a mistake in the table, not
+    // a category: its first word is the error.
+    for (column, error) in turned {
+        let codes = table.column(&column);
+        let levels = &table.levels[&column];
+        let numbers = codes
+            .iter()
+            .filter(|&&c| request.format.parse_number(&levels[c as usize]).is_some())
+            .count();
+        if 2 * numbers > codes.len() {
+            return Err(error);
+        }
+    }
     let spec_error = |key: &str, message: String| DataError::SpecKey {
         path: spec.path.clone(),
         key: key.to_string(),
@@ -340,11 +381,17 @@ pub(crate) fn resolve_reporting(
         impute::bind_indicators(&spec, &mut table, &assignment, &mut candidates)
             .map_err(table_error)?;
     }
+    encode::bind(&spec, &table, &mut candidates)
+        .map_err(|(key, message)| spec_error(&key, message))?;
 
     // A feature with no spread over the fitting rows breaks these fits; say so
     // now, naming the column, rather than once per fold.
     for candidate in candidates.iter().filter(|c| c.family.needs_spread()) {
-        for feature in &candidate.features {
+        for feature in candidate
+            .features
+            .iter()
+            .filter(|f| !table.levels.contains_key(*f))
+        {
             let column = table.column(feature);
             let first = column[assignment.train[0]];
             if assignment.train.iter().all(|&r| column[r] == first) {
@@ -363,6 +410,18 @@ pub(crate) fn resolve_reporting(
         .iter()
         .map(|(name, values)| (name.clone(), crate::digests::digest_values(values)))
         .collect();
+    for (name, levels) in &table.levels {
+        // The labels as well as the codes: a renamed level changes the
+        // names of the encoded columns.
+        let mut hasher = blake3::Hasher::new();
+        hasher.update(b"categorical");
+        for level in levels {
+            hasher.update(&(level.len() as u64).to_le_bytes());
+            hasher.update(level.as_bytes());
+        }
+        hasher.update(&crate::digests::digest_values(table.column(name)));
+        column_digests.insert(name.clone(), *hasher.finalize().as_bytes());
+    }
     if let Some(classes) = &task.classes {
         // Class indices, marked as classes and with the class count, so a fit
         // of a 0/1 column as classes never shares a cache entry with its fit

@@ -13,6 +13,7 @@ use crate::execute::CandidateFits;
 use crate::plan::ExperimentPlan;
 use crate::spec::{Metric, Rule, SplitMethod};
 
+mod categorical;
 mod classification;
 pub(crate) mod intervals;
 mod selection;
@@ -118,6 +119,11 @@ pub struct DataSummary {
     /// (written only when some column has any).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub missing: Vec<MissingColumn>,
+    /// Each categorical feature column: its levels and the rows predicted
+    /// with a level their fit's training rows never held (written only when
+    /// some feature is categorical; `results/categorical.rs`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub categorical: Vec<categorical::CategoricalColumn>,
 }
 
 /// The missing cells of one used column and what was done with them.
@@ -128,7 +134,8 @@ pub struct MissingColumn {
     pub cells: usize,
     /// `"drop-rows"`: their rows were dropped; `"impute"`: filled with the
     /// median of each fit's training rows, with an indicator column for the
-    /// families that take any number of features.
+    /// families that take any number of features; `"level"`: a categorical
+    /// column's cells read as the level "missing".
     pub handling: String,
 }
 
@@ -438,6 +445,7 @@ pub(crate) fn assemble(
             order: data.order.clone(),
             unterminated: plan.table.unterminated,
             missing: missing_columns(plan),
+            categorical: categorical::columns(plan),
         },
         split: SplitSummary {
             method: spec.split.method,
@@ -601,10 +609,15 @@ fn missing_columns(plan: &ExperimentPlan) -> Vec<MissingColumn> {
             let filled = data.missing == crate::spec::MissingPolicy::Impute
                 && plan.table.numeric.contains_key(column)
                 && column != &data.target;
+            let handling = match (filled, plan.table.levels.contains_key(column)) {
+                (true, true) => "level",
+                (true, false) => "impute",
+                (false, _) => "drop-rows",
+            };
             MissingColumn {
                 column: column.clone(),
                 cells,
-                handling: if filled { "impute" } else { "drop-rows" }.to_string(),
+                handling: handling.to_string(),
             }
         })
         .collect()

@@ -58,18 +58,19 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     let key = plan.spec.data().key.clone();
     let data_spec = plan.spec.data();
     // Indicator columns of missing cells are derived, not read.
-    let read: Vec<String> = candidate
+    let (categorical, read): (Vec<String>, Vec<String>) = candidate
         .features
         .iter()
         .filter(|f| missing::indicated_feature(f).is_none())
         .cloned()
-        .collect();
-    let new = data::load(
+        .partition(|f| plan.table.levels.contains_key(f));
+    let mut new = data::load(
         &args.table,
         &args.table,
         &TableRequest {
             numeric: read.clone(),
             text: key.iter().cloned().collect(),
+            categorical,
             missing: match data_spec.missing {
                 MissingPolicy::Impute => MissingPolicy::Impute,
                 _ => MissingPolicy::Error,
@@ -79,6 +80,7 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
         },
         &|_, _| {},
     )?;
+    crate::plan::encode::recode_new_rows(plan, &mut new, &args.table)?;
     let new_columns: Vec<Vec<f64>> = candidate
         .features
         .iter()
@@ -180,7 +182,13 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
 /// One warning per feature with new values outside the range the fit saw.
 fn extrapolation(plan: &ExperimentPlan, candidate: &CandidatePlan, new: &Table) -> Vec<String> {
     let mut warnings = Vec::new();
-    for feature in &candidate.features {
+    // A categorical feature's levels were checked against the training rows;
+    // an indicator of missing cells is 0 or 1 by construction.
+    for feature in candidate
+        .features
+        .iter()
+        .filter(|f| !plan.table.levels.contains_key(*f) && missing::indicated_feature(f).is_none())
+    {
         let seen = plan.table.column(feature);
         let (low, high) = plan
             .assignment

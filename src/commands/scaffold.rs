@@ -34,6 +34,9 @@ struct ColumnProfile {
     empty: usize,
     /// Distinct non-empty cell texts.
     distinct: usize,
+    /// Every cell that is not missing is an ISO 8601 date (`2026-01-31`,
+    /// perhaps with a time after it), and there is at least one.
+    iso_dates: bool,
     /// The values, for numeric columns (NaN where empty).
     values: Vec<f64>,
 }
@@ -145,6 +148,7 @@ fn profile(table: &Path) -> Result<(Vec<ColumnProfile>, Written), DataError> {
             numeric: true,
             empty: 0,
             distinct: 0,
+            iso_dates: true,
             values: Vec::new(),
         })
         .collect();
@@ -170,6 +174,7 @@ fn profile(table: &Path) -> Result<(Vec<ColumnProfile>, Written), DataError> {
                 column.values.push(f64::NAN);
                 continue;
             }
+            column.iso_dates &= is_iso_date(cell);
             match format.parse_number(cell) {
                 Some(value) if value.is_finite() => column.values.push(value),
                 _ => {
@@ -190,6 +195,7 @@ fn profile(table: &Path) -> Result<(Vec<ColumnProfile>, Written), DataError> {
     }
     for (column, seen) in profiles.iter_mut().zip(seen) {
         column.distinct += seen.len();
+        column.iso_dates &= !seen.is_empty();
     }
     if profiles[0].values.is_empty() {
         return Err(table_error("the table has a header but no rows".into()));
@@ -364,6 +370,24 @@ fn gives_away(feature: &[f64], target: &[f64]) -> bool {
     steps.iter().all(|s| *s == Greater) || steps.iter().all(|s| *s == Less)
 }
 
+/// Whether `cell` is an ISO 8601 calendar date, `YYYY-MM-DD`, alone or
+/// followed by a time (`T` or a space, then anything).
+fn is_iso_date(cell: &str) -> bool {
+    let bytes = cell.as_bytes();
+    let digits = |range: std::ops::Range<usize>| bytes[range].iter().all(u8::is_ascii_digit);
+    bytes.len() >= 10
+        && digits(0..4)
+        && bytes[4] == b'-'
+        && digits(5..7)
+        && bytes[7] == b'-'
+        && digits(8..10)
+        && (bytes.len() == 10 || matches!(bytes[10], b'T' | b' '))
+}
+
+/// The most levels a text column may have to be proposed as a categorical
+/// feature (one indicator column per level but one).
+const MAX_PROPOSED_LEVELS: usize = 20;
+
 /// Column names that suggest a time order.
 fn looks_like_time(name: &str) -> bool {
     let name = name.to_lowercase();
@@ -372,6 +396,11 @@ fn looks_like_time(name: &str) -> bool {
     ]
     .iter()
     .any(|word| name.contains(word))
+}
+
+/// A text column of ISO dates: offered as the order of a time split.
+fn is_date(p: &ColumnProfile) -> bool {
+    !p.numeric && p.iso_dates
 }
 
 /// What to propose for the table: the target and features, the split, and
@@ -399,7 +428,9 @@ fn propose(
     let key = profiles
         .iter()
         .enumerate()
-        .find(|(i, p)| *i != target && p.empty == 0 && p.distinct == rows && names_rows(p))
+        .find(|(i, p)| {
+            *i != target && p.empty == 0 && p.distinct == rows && names_rows(p) && !is_date(p)
+        })
         .map(|(i, _)| i);
     let mut features = Vec::new();
     let mut left_out = Vec::new();
@@ -407,8 +438,14 @@ fn propose(
         if i == target || Some(i) == key {
             continue;
         }
-        let because = if p.empty == 0 && p.distinct == rows && names_rows(p) {
+        let because = if is_date(p) {
+            LeftOutBecause::Time
+        } else if p.empty == 0 && p.distinct == rows && names_rows(p) {
             LeftOutBecause::RowNames
+        } else if !p.numeric && (2..=MAX_PROPOSED_LEVELS).contains(&p.distinct) {
+            // Text of few levels: a categorical feature (docs/spec.md).
+            features.push(i);
+            continue;
         } else if !p.numeric {
             LeftOutBecause::Text
         } else if looks_like_time(&p.name) {
@@ -434,10 +471,16 @@ fn propose(
         ))
         .into());
     }
-    // The one-feature candidates use the feature most correlated with the
-    // target (ties: the first in the header).
+    // The one-feature candidates use the numeric feature most correlated
+    // with the target (ties: the first in the header); with none, there are
+    // no one-feature candidates.
     let strength = |i: usize| correlation(&profiles[i].values, &target_profile.values).abs();
-    let main = features
+    let numeric_features: Vec<usize> = features
+        .iter()
+        .copied()
+        .filter(|&i| profiles[i].numeric)
+        .collect();
+    let main = numeric_features
         .iter()
         .map(|&i| (strength(i), i))
         .max_by(|a, b| a.0.total_cmp(&b.0).then(b.1.cmp(&a.1)))
@@ -469,14 +512,14 @@ fn propose(
     let mut polynomial_degrees: Vec<usize> = (1..=6)
         .filter(|&d| d < main_profile.distinct && d + 1 < fold_train_rows)
         .collect();
-    if polynomial_degrees.len() < 2 {
+    if polynomial_degrees.len() < 2 || numeric_features.is_empty() {
         polynomial_degrees.clear();
     }
     let mut spline_dfs: Vec<f64> = [2.5, 3.0, 4.0, 6.0, 9.0, 14.0]
         .into_iter()
         .filter(|&df| df < main_profile.distinct as f64 && df < fold_train_rows as f64)
         .collect();
-    if spline_dfs.len() < 3 {
+    if spline_dfs.len() < 3 || numeric_features.is_empty() {
         spline_dfs.clear();
     }
     let neighbours_k: Vec<usize> = [1, 2, 5, 10, 20, 50, 100]
@@ -490,11 +533,17 @@ fn propose(
         target: target_profile.name.clone(),
         seed,
         features: features.iter().map(|&i| profiles[i].name.clone()).collect(),
+        categorical: features
+            .iter()
+            .filter(|&&i| !profiles[i].numeric)
+            .map(|&i| profiles[i].name.clone())
+            .collect(),
         key: key.map(|i| profiles[i].name.clone()),
         left_out,
         order: profiles
             .iter()
-            .find(|p| looks_like_time(&p.name))
+            .find(|p| is_date(p))
+            .or_else(|| profiles.iter().find(|p| looks_like_time(&p.name)))
             .map(|p| p.name.clone()),
         empty_cells,
         missing_features,
@@ -542,7 +591,24 @@ mod tests {
             numeric: true,
             empty: 0,
             distinct: distinct.len(),
+            iso_dates: false,
             values: values.to_vec(),
+        }
+    }
+
+    #[test]
+    fn iso_dates_are_told_from_other_text() {
+        for date in ["2026-01-31", "2026-12-03T18:00", "2026-12-03 18:00:00"] {
+            assert!(is_iso_date(date), "{date}");
+        }
+        for other in [
+            "2026-1-31",
+            "31.01.2026",
+            "2026-01-31x",
+            "20260131",
+            "harbour",
+        ] {
+            assert!(!is_iso_date(other), "{other}");
         }
     }
 

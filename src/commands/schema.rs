@@ -90,8 +90,12 @@ mod tests {
                 .map(String::as_str)
                 .collect();
             keys.sort_unstable();
+            // `interactions` only where the family takes indicator columns.
+            let linear_type =
+                def.categorical == crate::models::registry::CategoricalUse::Indicators;
             let mut expected: Vec<&str> = ["family", "label", "features"]
                 .into_iter()
+                .chain(linear_type.then_some("interactions"))
                 .chain(def.keys.iter().map(|k| k.name))
                 .collect();
             expected.sort_unstable();

@@ -25,7 +25,8 @@ pub(crate) struct Rows<'a> {
     pub(crate) assignment: &'a Assignment,
 }
 
-/// Inspects a plan's rows over its declared features (those read as numbers)
+/// Inspects a plan's rows over its declared features (those read as numbers,
+/// not categorical level codes)
 /// and its group column.
 pub(crate) fn of_plan(plan: &crate::plan::ExperimentPlan) -> Leakage {
     let data = plan.spec.data();
@@ -33,7 +34,7 @@ pub(crate) fn of_plan(plan: &crate::plan::ExperimentPlan) -> Leakage {
     let features: Vec<String> = data
         .features
         .iter()
-        .filter(|f| plan.table.numeric.contains_key(*f))
+        .filter(|f| plan.table.numeric.contains_key(*f) && !plan.table.levels.contains_key(*f))
         .cloned()
         .collect();
     inspect(&Rows {
@@ -436,6 +437,7 @@ mod tests {
             digest: String::new(),
             numeric: BTreeMap::from([("x".to_string(), x)]),
             text: BTreeMap::new(),
+            levels: BTreeMap::new(),
             lines: (2..rows as u64 + 2).collect(),
             row_numbers: (1..=rows as u64).collect(),
             dropped: 0,

@@ -23,7 +23,9 @@
 
 use nalgebra::{Cholesky, DMatrix, DVector, Dyn};
 
-use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets};
+use super::registry::{
+    CategoricalUse, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets,
+};
 use super::{require_spread, Family, FitRequest, Setting, SettingFit};
 use crate::error::FitError;
 use crate::metrics::ClassPrediction;
@@ -50,7 +52,8 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
 )
 .about("Gaussian class densities with a shared (linear) or per-class (quadratic) covariance.")
 .grid("shape = [\"linear\", \"quadratic\"]")
-.predicts(Targets::Classes);
+.predicts(Targets::Classes)
+.takes_categorical(CategoricalUse::Indicators);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Discriminant {

@@ -30,7 +30,7 @@
 
 use nalgebra::DMatrix;
 
-use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
+use super::registry::{CategoricalUse, FamilyDef, SettingProblem, Settings, PENALTY};
 use super::standardise::{centre, cross_products, predict, Standardiser};
 use super::{Family, FitRequest, Setting, SettingFit};
 use crate::error::FitError;
@@ -53,7 +53,8 @@ pub(crate) struct Lasso {
 /// The registry entry of `lasso` (see `registry`).
 pub(crate) const FAMILY: FamilyDef = FamilyDef::new("lasso", &[PENALTY], build)
     .about("L1-penalised least squares on standardised features, by coordinate descent with warm starts.")
-    .grid("penalty = [0.001, 0.01, 0.1, 1]");
+    .grid("penalty = [0.001, 0.01, 0.1, 1]")
+    .takes_categorical(CategoricalUse::Indicators);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Lasso {

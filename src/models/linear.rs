@@ -11,7 +11,7 @@ use super::double_double::DoubleDouble;
 use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
-use super::registry::{FamilyDef, SettingProblem, Settings, INTERCEPT};
+use super::registry::{CategoricalUse, FamilyDef, SettingProblem, Settings, INTERCEPT};
 use super::{
     leave_one_out_rows, loo_from_leverage, mean_and_sd, require_spread, Family, FitRequest,
     LeaveOneOut, Setting, SettingFit,
@@ -28,7 +28,8 @@ pub(crate) struct Linear {
 /// The registry entry of `linear` (see `registry`).
 pub(crate) const FAMILY: FamilyDef = FamilyDef::new("linear", &[INTERCEPT], build)
     .about("Ordinary least squares on the features as given.")
-    .grid("");
+    .grid("")
+    .takes_categorical(CategoricalUse::Indicators);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Linear {

@@ -27,7 +27,9 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets, PENALTY};
+use super::registry::{
+    CategoricalUse, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets, PENALTY,
+};
 use super::{mean_and_sd, require_spread, Family, FitRequest, Setting, SettingFit};
 use crate::error::FitError;
 use crate::metrics::ClassPrediction;
@@ -76,7 +78,8 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
      standardised features or `degree` grid of powers of each feature.",
 )
 .grid("degree = [1, 2, 3]")
-.predicts(Targets::Classes);
+.predicts(Targets::Classes)
+.takes_categorical(CategoricalUse::Indicators);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     let given = |key: &str| settings.values().iter().any(|(k, _)| *k == key);

@@ -22,7 +22,9 @@ use nalgebra::DMatrix;
 use rayon::prelude::*;
 
 use super::kd_tree::{by_distance_then_row, squared_distance, KdTree, LEAF_SIZE};
-use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets};
+use super::registry::{
+    CategoricalUse, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets,
+};
 use super::{
     mean_and_sd, neighbour_vote, require_spread, Family, FitRequest, LeaveOneOut, Setting,
     SettingFit,
@@ -62,7 +64,8 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
      target, their majority vote.",
 )
 .grid("k = [1, 3, 5, 10, 20, 40]")
-.predicts(Targets::Both);
+.predicts(Targets::Both)
+.takes_categorical(CategoricalUse::EveryLevel);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(NearestNeighbors {

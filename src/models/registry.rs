@@ -59,7 +59,32 @@ pub(crate) struct FamilyDef {
     pub(crate) build: BuildFn,
     /// The kinds of target the family predicts.
     pub(crate) targets: Targets,
+    /// How the family takes a categorical feature (`plan::encode`).
+    pub(crate) categorical: CategoricalUse,
+    /// For a family that expands each feature into a basis: binds it to
+    /// features whose last `plain` columns enter once, as they are (0/1
+    /// indicators and interaction columns, whose powers would repeat them).
+    pub(crate) build_plain: Option<PlainBuildFn>,
 }
+
+/// How a family takes a categorical feature (docs/spec.md, "Categorical
+/// features").
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum CategoricalUse {
+    /// It cannot: a family of a fixed number of numeric features.
+    Refused,
+    /// Linear-type: a 0/1 column per training level but the most frequent
+    /// (the reference); interactions allowed.
+    Indicators,
+    /// A 0/1 column per training level, treated like any numeric column
+    /// (nearest neighbours: no level is singled out as the reference).
+    EveryLevel,
+}
+
+/// How a family with [`FamilyDef::build_plain`] binds: settings, features,
+/// and how many trailing features enter plainly.
+pub(crate) type PlainBuildFn =
+    fn(&Settings, Vec<String>, usize) -> Result<Box<dyn Family>, SettingProblem>;
 
 /// The kinds of target a family predicts.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -238,6 +263,16 @@ impl FamilyDef {
             default_grid: "",
             build,
             targets: Targets::Numbers,
+            categorical: CategoricalUse::Refused,
+            build_plain: None,
+        }
+    }
+
+    /// Taking categorical features the way `used` says.
+    pub(crate) const fn takes_categorical(self, categorical: CategoricalUse) -> Self {
+        FamilyDef {
+            categorical,
+            ..self
         }
     }
 

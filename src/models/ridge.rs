@@ -61,7 +61,7 @@
 
 use nalgebra::DMatrix;
 
-use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY};
+use super::registry::{CategoricalUse, FamilyDef, SettingProblem, Settings, PENALTY};
 use super::standardise::{centre, cross_products, predict, Standardiser};
 use super::{leave_one_out_rows, Family, FitRequest, LeaveOneOut, Setting, SettingFit};
 use crate::error::FitError;
@@ -95,7 +95,8 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new("ridge", &[PENALTY], build)
     )
     .grid("penalty = [0.01, 0.1, 1, 10, 100]")
     // 2: one Gram matrix and its eigendecomposition instead of an SVD of Z.
-    .version(2);
+    .version(2)
+    .takes_categorical(CategoricalUse::Indicators);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Ridge {

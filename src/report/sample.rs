@@ -87,6 +87,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             order: None,
             unterminated: false,
             missing: Vec::new(),
+            categorical: Vec::new(),
         },
         split: SplitSummary {
             method: SplitMethod::Kfold,

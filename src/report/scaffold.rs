@@ -46,10 +46,13 @@ pub(crate) struct Scaffold {
     pub(crate) target: String,
     pub(crate) seed: u32,
     pub(crate) features: Vec<String>,
+    /// The features that hold text of few levels (categorical features).
+    pub(crate) categorical: Vec<String>,
     /// A text column with a distinct value on every row.
     pub(crate) key: Option<String>,
     pub(crate) left_out: Vec<LeftOut>,
-    /// A column named like a time, offered as the order of a time split.
+    /// A column of ISO dates, else one named like a time, offered as the
+    /// order of a time split.
     pub(crate) order: Option<String>,
     /// Missing cells (empty or a marker) in the target and the features.
     pub(crate) empty_cells: usize,
@@ -100,6 +103,7 @@ struct View<'a> {
     target: &'a str,
     seed: u32,
     features: &'a [String],
+    categorical: &'a [String],
     key: Option<&'a str>,
     left_out: &'a [LeftOut],
     order: Option<&'a str>,
@@ -126,6 +130,7 @@ impl<'a> View<'a> {
             target: &s.target,
             seed: s.seed,
             features: &s.features,
+            categorical: &s.categorical,
             key: s.key.as_deref(),
             left_out: &s.left_out,
             order: s.order.as_deref(),
@@ -158,6 +163,7 @@ mod tests {
             target: "y \"q\"".into(),
             seed: 7,
             features: vec!["x".into()],
+            categorical: Vec::new(),
             key: None,
             left_out: Vec::new(),
             order: None,

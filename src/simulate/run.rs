@@ -185,6 +185,7 @@ impl SimulationPlan {
             digest: digests::simulated_table_digest(&column_digests),
             numeric,
             text: BTreeMap::new(),
+            levels: BTreeMap::new(),
             lines: (2..rows as u64 + 2).collect(),
             row_numbers: (1..=rows as u64).collect(),
             dropped: 0,

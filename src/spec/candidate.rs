@@ -22,7 +22,9 @@ use super::checks::validate_feature_list;
 use super::parse::closest;
 use super::{SpecFile, Task};
 use crate::error::SpecError;
-use crate::models::registry::{self, FamilyDef, KeyKind, KeyValue, SettingProblem, Settings};
+use crate::models::registry::{
+    self, CategoricalUse, FamilyDef, KeyKind, KeyValue, SettingProblem, Settings,
+};
 use crate::models::Family;
 
 /// One `[[candidate]]` table as written.
@@ -34,12 +36,15 @@ pub(crate) struct CandidateSpec {
     pub(crate) label: Option<String>,
     /// Columns this candidate uses instead of `[data] features`.
     pub(crate) features: Option<Vec<String>>,
+    /// Pairs of features whose products enter as extra columns
+    /// (linear-type families; `plan::encode`).
+    pub(crate) interactions: Option<Vec<Vec<String>>>,
     /// The family keys given, in the registry's key order.
     pub(crate) settings: Vec<(&'static str, KeyValue)>,
 }
 
 /// The keys every candidate may hold, whatever its family.
-const COMMON_KEYS: [&str; 3] = ["family", "label", "features"];
+const COMMON_KEYS: [&str; 4] = ["family", "label", "features", "interactions"];
 
 /// Every key a candidate table may hold: the common ones, then every
 /// family's (the list an unknown key's message offers).
@@ -59,6 +64,7 @@ enum CandidateKey {
     Family,
     Label,
     Features,
+    Interactions,
     Setting(&'static str, KeyKind),
 }
 
@@ -99,6 +105,7 @@ impl<'de> Deserialize<'de> for CandidateKey {
                 "family" => Ok(CandidateKey::Family),
                 "label" => Ok(CandidateKey::Label),
                 "features" => Ok(CandidateKey::Features),
+                "interactions" => Ok(CandidateKey::Interactions),
                 other => registry::kind_of(other)
                     .map(|(name, kind)| CandidateKey::Setting(name, kind))
                     .ok_or_else(|| Refusal::Key(other.to_string())),
@@ -135,6 +142,7 @@ impl<'de> Deserialize<'de> for CandidateSpec {
                 let mut family = None;
                 let mut label = None;
                 let mut features = None;
+                let mut interactions = None;
                 let mut settings: Vec<(&'static str, KeyValue)> = Vec::new();
                 while let Some(key) = map.next_key::<CandidateKey>()? {
                     match key {
@@ -155,6 +163,12 @@ impl<'de> Deserialize<'de> for CandidateSpec {
                                 return Err(de::Error::duplicate_field("features"));
                             }
                             features = Some(map.next_value()?);
+                        }
+                        CandidateKey::Interactions => {
+                            if interactions.is_some() {
+                                return Err(de::Error::duplicate_field("interactions"));
+                            }
+                            interactions = Some(map.next_value()?);
                         }
                         CandidateKey::Setting(name, kind) => {
                             if settings.iter().any(|(k, _)| *k == name) {
@@ -178,6 +192,7 @@ impl<'de> Deserialize<'de> for CandidateSpec {
                     family,
                     label,
                     features,
+                    interactions,
                     settings,
                 })
             }
@@ -209,6 +224,9 @@ impl Serialize for CandidateSpec {
         }
         if let Some(features) = &self.features {
             map.serialize_entry("features", features)?;
+        }
+        if let Some(interactions) = &self.interactions {
+            map.serialize_entry("interactions", interactions)?;
         }
         for (key, value) in &self.settings {
             map.serialize_entry(key, value)?;
@@ -250,6 +268,16 @@ impl schemars::JsonSchema for CandidateSpec {
                     features["maxItems"] = count.into();
                 }
                 properties.insert("features".into(), features);
+                if def.categorical == CategoricalUse::Indicators {
+                    properties.insert(
+                        "interactions".into(),
+                        json!({
+                            "description": "Pairs of features whose products enter as extra columns: a numeric feature times each indicator of a categorical one, or two numeric features multiplied.",
+                            "type": "array",
+                            "items": {"type": "array", "items": {"type": "string"}, "minItems": 2, "maxItems": 2}
+                        }),
+                    );
+                }
                 for key in def.keys {
                     let mut schema = match key.kind {
                         KeyKind::Flag => json!({"type": "boolean"}),
@@ -318,6 +346,9 @@ pub(crate) struct FamilySpec {
     pub(crate) label: Option<String>,
     /// The features this candidate uses: its own list or `[data] features`.
     pub(crate) features: Vec<String>,
+    /// Pairs of its features multiplied into extra columns (checked: two
+    /// distinct features each, a linear-type family).
+    pub(crate) interactions: Vec<(String, String)>,
     pub(crate) def: &'static FamilyDef,
     pub(crate) settings: Settings,
     pub(crate) family: Arc<dyn Family>,
@@ -417,9 +448,11 @@ pub(super) fn validate_candidates(
                 ),
             ));
         }
+        let interactions = validate_interactions(raw, def, features, &key, invalid)?;
         let candidate = FamilySpec {
             label: raw.label.clone(),
             features: features.to_vec(),
+            interactions,
             def,
             settings,
             family,
@@ -437,6 +470,71 @@ pub(super) fn validate_candidates(
         families.push(candidate);
     }
     Ok(families)
+}
+
+/// The candidate's `interactions`: each a pair of two distinct names among
+/// its features, listed once, on a family that takes indicator columns.
+fn validate_interactions(
+    raw: &CandidateSpec,
+    def: &FamilyDef,
+    features: &[String],
+    key: &str,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<Vec<(String, String)>, SpecError> {
+    let Some(pairs) = &raw.interactions else {
+        return Ok(Vec::new());
+    };
+    let at = |i: usize| format!("{key}.interactions[{}]", i + 1);
+    if def.categorical != CategoricalUse::Indicators {
+        return Err(invalid(
+            &format!("{key}.interactions"),
+            format!(
+                "family \"{}\" is not linear-type, so it takes no interaction columns \
+                 (linear, polynomial, ridge, lasso, logistic and discriminant do)",
+                def.name
+            ),
+        ));
+    }
+    let mut checked: Vec<(String, String)> = Vec::with_capacity(pairs.len());
+    for (i, pair) in pairs.iter().enumerate() {
+        let [a, b] = pair.as_slice() else {
+            return Err(invalid(
+                &at(i),
+                format!(
+                    "an interaction names exactly two features, as [\"a\", \"b\"]; got {}",
+                    pair.len()
+                ),
+            ));
+        };
+        for name in [a, b] {
+            if !features.contains(name) {
+                return Err(invalid(
+                    &at(i),
+                    format!(
+                        "\"{name}\" is not among the candidate's features ({})",
+                        features.join(", ")
+                    ),
+                ));
+            }
+        }
+        if a == b {
+            return Err(invalid(
+                &at(i),
+                format!("names \"{a}\" twice; an interaction multiplies two different features"),
+            ));
+        }
+        if checked
+            .iter()
+            .any(|(x, y)| (x == a && y == b) || (x == b && y == a))
+        {
+            return Err(invalid(
+                &at(i),
+                format!("[\"{a}\", \"{b}\"] is listed twice"),
+            ));
+        }
+        checked.push((a.clone(), b.clone()));
+    }
+    Ok(checked)
 }
 
 /// Reads one candidate written as TOML lines (`family = "ridge"` and its

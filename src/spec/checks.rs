@@ -25,6 +25,7 @@ pub(super) fn validate_data(
         ));
     }
     validate_format(data, split, invalid)?;
+    validate_categorical(data, invalid)?;
     let ordered = split.method == SplitMethod::Ordered;
     match (&data.order, ordered) {
         (Some(_), false) => {
@@ -106,6 +107,38 @@ fn validate_format(
              shortcuts reuse one fit for every row; use method = \"kfold\", or \
              `missing = \"drop-rows\"`"
                 .into(),
+        ));
+    }
+    Ok(())
+}
+
+/// `categorical` and `min_level_rows`.
+fn validate_categorical(
+    data: &DataSpec,
+    invalid: &impl Fn(&str, String) -> SpecError,
+) -> Result<(), SpecError> {
+    let mut seen = BTreeSet::new();
+    for name in &data.categorical {
+        if !seen.insert(name) {
+            return Err(invalid(
+                "data.categorical",
+                format!("\"{name}\" is listed twice"),
+            ));
+        }
+        if name == &data.target {
+            return Err(invalid(
+                "data.categorical",
+                format!(
+                    "the target \"{name}\" cannot be a categorical feature; a class target \
+                     is declared with `task = \"classification\"`"
+                ),
+            ));
+        }
+    }
+    if data.min_level_rows == Some(0) {
+        return Err(invalid(
+            "data.min_level_rows",
+            "must be at least 1 (1: every level keeps its own column)".into(),
         ));
     }
     Ok(())

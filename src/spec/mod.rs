@@ -88,6 +88,8 @@ pub(crate) fn load(path: &Path) -> Result<LoadedSpec, SpecError> {
         delimiter: None,
         decimal: None,
         missing_markers: None,
+        categorical: Vec::new(),
+        min_level_rows: None,
         task: Some(sim.task.unwrap_or(Task::Regression)),
         positive: None,
     });

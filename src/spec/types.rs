@@ -78,6 +78,15 @@ pub(crate) struct DataSpec {
     /// `"NaN"`, `"nan"`, `"null"`, matched exactly after trimming).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub(crate) missing_markers: Option<Vec<String>>,
+    /// Numeric columns (integer codes) to treat as categorical features; a
+    /// feature column holding text is categorical without being listed
+    /// (docs/spec.md, "Categorical features").
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub(crate) categorical: Vec<String>,
+    /// Levels with fewer training rows than this are pooled into one level,
+    /// "other", inside each fit (default 1: no pooling).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub(crate) min_level_rows: Option<usize>,
     /// `classification` or `regression`; inferred from the target when absent.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub(crate) task: Option<Task>,

@@ -5,6 +5,7 @@
 
 mod bad_input;
 mod cache_command;
+mod categorical;
 mod ci_doc;
 mod classification;
 mod completions;

@@ -144,3 +144,64 @@ fn bad_requests_exit_2_and_keep_existing_files() {
     assert_eq!(missing.status.code(), Some(2));
     assert!(util::stderr_of(&missing).contains("nope.csv: cannot read the data table"));
 }
+
+/// 60 invented rows of a cold store: an ISO date per row (distinct), the
+/// site as text of three levels, the outdoor temperature, the door openings
+/// and the energy used (the target).
+fn cold_store_table() -> String {
+    let mut text = String::from("logged_on,site,outdoor_c,openings,energy_kwh\n");
+    let sites = ["harbour", "airport", "hill"];
+    for row in 0..60 {
+        let site = sites[row * 7 % 3];
+        let outdoor = -4.0 + (row * 11 % 60) as f64 * 0.45;
+        let openings = (row * 5 % 13) as f64;
+        let site_load = [30.0, 12.0, 0.0][row * 7 % 3];
+        let energy = 200.0 + 3.5 * outdoor + 1.5 * openings + site_load + (row * 3 % 7) as f64;
+        text.push_str(&format!(
+            "2026-{:02}-{:02},{site},{outdoor:.2},{openings},{energy:.2}\n",
+            row / 28 + 1,
+            row % 28 + 1
+        ));
+    }
+    text
+}
+
+#[test]
+fn text_of_few_levels_becomes_a_categorical_feature_and_dates_an_order() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("data.csv"), cold_store_table()).unwrap();
+    let output = new_in(
+        dir.path(),
+        &["--target", "energy_kwh", "--output", "first.toml"],
+    );
+    assert_eq!(
+        output.status.code(),
+        Some(0),
+        "{}",
+        util::stderr_of(&output)
+    );
+    let spec = std::fs::read_to_string(dir.path().join("first.toml")).unwrap();
+    for line in [
+        "features = [\"site\", \"outdoor_c\", \"openings\"]",
+        "# Text of few levels, so categorical: site.",
+        // A distinct date on every row is a time, not a row key.
+        "# order = \"logged_on\"",
+        "logged_on (looks like time; add it for a trend)",
+    ] {
+        assert!(spec.contains(line), "the spec lacks {line:?}:\n{spec}");
+    }
+    assert!(!spec.contains("key = "), "{spec}");
+    // The one-feature candidates take a numeric feature.
+    assert!(!spec.contains("features = [\"site\"]"), "{spec}");
+    let run = util::run_in(
+        dir.path(),
+        &["run", "first.toml", "--out", "out", "--quiet"],
+    );
+    assert_eq!(run.status.code(), Some(0), "{}", util::stderr_of(&run));
+    let results = util::read_json(&dir.path().join("out/data/results.json"));
+    assert_eq!(results["data"]["categorical"][0]["column"], "site");
+    assert_eq!(
+        results["data"]["categorical"][0]["levels"],
+        serde_json::json!(["airport", "harbour", "hill"])
+    );
+}
