@@ -15,11 +15,13 @@ use crate::spec::{Metric, Rule, SplitMethod};
 
 mod classification;
 pub(crate) mod intervals;
+pub(crate) mod prediction_sets;
 mod selection;
 pub use classification::{
     AbsentClasses, CalibrationBin, Classification, TestEvidence, CALIBRATION_BINS,
 };
 pub use intervals::{IntervalTest, Intervals};
+pub use prediction_sets::{PredictionSets, SetTest};
 pub use selection::{
     Duplicates, Leakage, Nested, Paired, PairedComparison, SharedGroups, TargetCopy, TestInterval,
 };
@@ -69,6 +71,11 @@ pub struct Results {
     /// their coverage on the locked test set (docs/intervals.md).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub intervals: Option<Intervals>,
+    /// With `[intervals]` and a class target: the kept setting's CV+
+    /// prediction sets and their coverage on the locked test set
+    /// (docs/intervals.md, "Class targets: prediction sets").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prediction_sets: Option<PredictionSets>,
     /// Simulation specs only: `simulation` (the bias–variance decomposition
     /// of every setting) and `simulation_summary` (setup, oracle and
     /// cross-validation's choices), flattened into the top level.
@@ -471,6 +478,7 @@ pub(crate) fn assemble(
         },
         classification,
         intervals: None,
+        prediction_sets: None,
         candidates,
         simulation: None,
     })

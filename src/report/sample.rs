@@ -119,6 +119,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
         nested: None,
         classification: None,
         intervals: None,
+        prediction_sets: None,
         simulation: None,
     }
 }

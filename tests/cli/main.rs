@@ -18,6 +18,7 @@ mod json;
 mod nist;
 mod ordered;
 mod predict;
+mod prediction_sets;
 mod report_command;
 mod reports;
 mod reproducible;
