@@ -89,6 +89,10 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     let mut x_new = DMatrix::from_fn(new.len(), candidate.features.len(), |i, j| {
         new_columns[j][i]
     });
+    // The new rows as read (missing cells NaN under `impute`): each fold fit
+    // behind the intervals and sets fills them with its own training rows'
+    // medians, as it filled the locked test rows for the report.
+    let x_new_as_read = x_new.clone();
     let train = &plan.assignment.train;
     let mut x_train = plan.design(candidate, train);
     if data_spec.missing == MissingPolicy::Impute {
@@ -127,7 +131,7 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
                 setting,
                 &evaluation.fits[c].fold_predictions,
                 spec.level,
-                &x_new,
+                &x_new_as_read,
             )?
             .1,
         ),
@@ -147,7 +151,7 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
                 candidate,
                 setting,
                 &calibration.folds,
-                &x_new,
+                &x_new_as_read,
             )?;
             Some(crate::prediction_sets::sets(
                 spec.level,
@@ -230,7 +234,13 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
 /// One warning per feature with new values outside the range the fit saw.
 fn extrapolation(plan: &ExperimentPlan, candidate: &CandidatePlan, new: &Table) -> Vec<String> {
     let mut warnings = Vec::new();
-    for feature in &candidate.features {
+    // Indicator columns of missing cells (0 or 1) are derived, not read, and
+    // cannot extrapolate.
+    let read = candidate
+        .features
+        .iter()
+        .filter(|f| missing::indicated_feature(f).is_none());
+    for feature in read {
         let seen = plan.table.column(feature);
         let (low, high) = plan
             .assignment

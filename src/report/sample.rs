@@ -102,6 +102,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             test_score: Some(1.0),
             train_score: kept.train_score,
             coefficients: None,
+            model: None,
             predictions: Predictions {
                 feature: Some("x".to_string()),
                 train: set(80),
