@@ -25,7 +25,8 @@ pub struct PredictionSets {
     pub guaranteed: f64,
     /// `cv+`, or `jackknife+` when the split is leave-one-out.
     pub method: String,
-    /// The nonconformity score, [`SET_SCORE`].
+    /// The nonconformity score: `1 - p(y|x)`, one minus the probability
+    /// of the class.
     pub score: String,
     /// Calibration folds (those of the first repeat).
     pub folds: usize,
