@@ -124,9 +124,11 @@ pub(crate) fn calibration(
 }
 
 /// Each of `folds`' fit of `candidate` (its whole grid, on the fold's
-/// training rows, exactly as the fold task fits it) evaluated at the rows of
-/// `x_eval`: per fold, per setting, per point. The fits run in parallel and
-/// are gathered in fold order.
+/// training rows, exactly as the fold task fits it: class targets as
+/// classes, missing cells under `impute` filled with the fold's training
+/// medians, in `x_eval` too) evaluated at the rows of `x_eval`: per fold,
+/// per setting, per point (a class target's points are class rows). The
+/// fits run in parallel and are gathered in fold order.
 pub(crate) fn fold_grids_at(
     plan: &ExperimentPlan,
     candidate: &CandidatePlan,
@@ -134,21 +136,27 @@ pub(crate) fn fold_grids_at(
     x_eval: &DMatrix<f64>,
 ) -> Result<Vec<Vec<Vec<f64>>>, FitFailure> {
     let a = &plan.assignment;
+    let impute = plan.spec.data().missing == crate::spec::MissingPolicy::Impute;
     folds
         .par_iter()
         .map(|&f| {
             let train = a.fold_train(f);
             let mut x_train = plan.design(candidate, &train);
             let mut x_at = x_eval.clone();
-            if plan.spec.data().missing == crate::spec::MissingPolicy::Impute {
-                // As the fold's own task does (`execute::task_data`): the
-                // medians of the fold's training rows fill both.
+            if impute {
+                // As `execute::task_data` fills a fold's validation rows.
                 crate::data::missing::fill_with_training_medians(&mut x_train, &mut x_at)
                     .expect("the plan checked that every training fold has values");
             }
             candidate
                 .family
-                .fit_path(&x_train, &plan.target_of(&train), &x_at, false)
+                .fit_classes(
+                    &x_train,
+                    &plan.target_of(&train),
+                    &x_at,
+                    false,
+                    plan.task.class_count(),
+                )
                 .map(|fits| fits.into_iter().map(|fit| fit.eval_pred).collect())
                 .map_err(|cause| FitFailure {
                     candidate: candidate.stem.clone(),
@@ -173,10 +181,10 @@ pub(crate) fn fold_predictions_at(
     plan: &ExperimentPlan,
     candidate: &CandidatePlan,
     setting: usize,
-    calibration: &Calibration,
+    folds: &[usize],
     x_eval: &DMatrix<f64>,
 ) -> Result<Vec<Vec<f64>>, FitFailure> {
-    Ok(fold_grids_at(plan, candidate, &calibration.folds, x_eval)?
+    Ok(fold_grids_at(plan, candidate, folds, x_eval)?
         .into_iter()
         .map(|mut grid| std::mem::take(&mut grid[setting]))
         .collect())
@@ -230,7 +238,7 @@ pub(crate) fn intervals_at(
     x_eval: &DMatrix<f64>,
 ) -> Result<(Calibration, Vec<(f64, f64)>), FitFailure> {
     let calibration = calibration(plan, fold_predictions, setting);
-    let at = fold_predictions_at(plan, candidate, setting, &calibration, x_eval)?;
+    let at = fold_predictions_at(plan, candidate, setting, &calibration.folds, x_eval)?;
     let bounds = bounds(
         level,
         &calibration.residuals,

@@ -22,6 +22,7 @@ pub(crate) mod metrics;
 pub mod models;
 pub(crate) mod output;
 pub(crate) mod plan;
+pub(crate) mod prediction_sets;
 pub(crate) mod receipt;
 pub(crate) mod report;
 pub mod results;

@@ -16,11 +16,15 @@ use crate::spec::{Metric, Rule, SplitMethod};
 mod categorical;
 mod classification;
 pub(crate) mod intervals;
+pub mod kept_model;
+pub(crate) mod prediction_sets;
 mod selection;
 pub use classification::{
     AbsentClasses, CalibrationBin, Classification, TestEvidence, CALIBRATION_BINS,
 };
 pub use intervals::{IntervalTest, Intervals};
+pub use kept_model::{KeptModel, Term};
+pub use prediction_sets::{PredictionSets, SetTest};
 pub use selection::{
     Duplicates, Leakage, Nested, Paired, PairedComparison, SharedGroups, TargetCopy, TestInterval,
 };
@@ -70,6 +74,11 @@ pub struct Results {
     /// their coverage on the locked test set (docs/intervals.md).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub intervals: Option<Intervals>,
+    /// With `[intervals]` and a class target: the kept setting's CV+
+    /// prediction sets and their coverage on the locked test set
+    /// (docs/intervals.md, "Class targets: prediction sets").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub prediction_sets: Option<PredictionSets>,
     /// Simulation specs only: `simulation` (the bias–variance decomposition
     /// of every setting) and `simulation_summary` (setup, oracle and
     /// cross-validation's choices), flattened into the top level.
@@ -215,6 +224,11 @@ pub struct FinalFit {
         skip_serializing_if = "Option::is_none"
     )]
     pub coefficients: Option<Vec<(String, f64)>>,
+    /// The kept setting as data: its terms (feature, power, coefficient)
+    /// when it is a sum of raw-unit coefficients, or the statement that it
+    /// needs the training rows (docs/predict.md, "The kept model as data").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub model: Option<KeptModel>,
     /// The final fit beside the data, for the report's data figure.
     pub predictions: Predictions,
 }
@@ -475,10 +489,18 @@ pub(crate) fn assemble(
             test_score,
             train_score: scores[chosen].train_score,
             coefficients: chosen_fit.coefficients.clone(),
+            model: plan.full_fit.final_fit.then(|| {
+                kept_model::describe(
+                    plan,
+                    &plan.candidates[c],
+                    chosen_fit.coefficients.as_deref(),
+                )
+            }),
             predictions,
         },
         classification,
         intervals: None,
+        prediction_sets: None,
         candidates,
         simulation: None,
     })

@@ -331,6 +331,7 @@ fn finish(
     let mut results = results::assemble(&plan, fits)?;
     if simulation.is_none() {
         results.intervals = results::intervals::assess(&plan, fits, &results)?;
+        results.prediction_sets = results::prediction_sets::assess(&plan, fits, &results)?;
     }
     results.simulation = simulation;
     let kept_cv = results

@@ -92,6 +92,10 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
     let mut x_new = DMatrix::from_fn(new.len(), candidate.features.len(), |i, j| {
         new_columns[j][i]
     });
+    // The new rows as read (missing cells NaN under `impute`): each fold fit
+    // behind the intervals and sets fills them with its own training rows'
+    // medians, as it filled the locked test rows for the report.
+    let x_new_as_read = x_new.clone();
     let train = &plan.assignment.train;
     let mut x_train = plan.design(candidate, train);
     if data_spec.missing == MissingPolicy::Impute {
@@ -121,19 +125,47 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
 
     // CV+ intervals from the same fold predictions the report's came from
     // (docs/intervals.md), so a locked test row gets the report's interval.
+    let classes = plan.task.class_count();
     let intervals = match plan.spec.spec.intervals {
-        Some(spec) => Some(
+        Some(spec) if classes == 0 => Some(
             crate::intervals::intervals_at(
                 plan,
                 candidate,
                 setting,
                 &evaluation.fits[c].fold_predictions,
                 spec.level,
-                &x_new,
+                &x_new_as_read,
             )?
             .1,
         ),
-        None => None,
+        _ => None,
+    };
+    // A class target's CV+ prediction sets, from the same out-of-fold
+    // scores as the report's (docs/intervals.md).
+    let sets = match plan.spec.spec.intervals {
+        Some(spec) if classes > 0 => {
+            let calibration = crate::prediction_sets::calibration(
+                plan,
+                &evaluation.fits[c].fold_predictions,
+                setting,
+            );
+            let at = crate::intervals::fold_predictions_at(
+                plan,
+                candidate,
+                setting,
+                &calibration.folds,
+                &x_new_as_read,
+            )?;
+            Some(crate::prediction_sets::sets(
+                spec.level,
+                &calibration.scores,
+                &calibration.fold_of,
+                &at,
+                classes,
+                new.len(),
+            ))
+        }
+        _ => None,
     };
 
     if !args.quiet {
@@ -142,6 +174,22 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
         }
     }
     let mut header = provenance(&args.spec, plan, chosen, train.len())?;
+    if let (Some(ps), Some(_)) = (&evaluation.results.prediction_sets, &sets) {
+        header.push(format!(
+            "sets: {} at level {} from the out-of-fold scores {} of the {} non-test rows \
+             ({} folds); labels joined by \"|\"{}",
+            ps.method,
+            ps.level,
+            ps.score,
+            ps.calibration_rows,
+            ps.folds,
+            if ps.bounded {
+                ""
+            } else {
+                "; too few rows for the level, so every set holds every class"
+            }
+        ));
+    }
     if let (Some(iv), Some(_)) = (&evaluation.results.intervals, &intervals) {
         header.push(format!(
             "intervals: {} at level {} from the out-of-fold residuals of the {} non-test rows \
@@ -162,7 +210,14 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
         target: &plan.spec.data().target,
         classes: plan.task.classes.as_ref().map(|c| c.labels.as_slice()),
     };
-    let bytes = write_csv(&header, &columns, &new, predicted, intervals.as_deref())?;
+    let bytes = write_csv(
+        &header,
+        &columns,
+        &new,
+        predicted,
+        intervals.as_deref(),
+        sets.as_deref(),
+    )?;
     match &args.output {
         Some(path) => {
             crate::output::write_atomic(path, &bytes)?;
@@ -183,7 +238,8 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
 fn extrapolation(plan: &ExperimentPlan, candidate: &CandidatePlan, new: &Table) -> Vec<String> {
     let mut warnings = Vec::new();
     // A categorical feature's levels were checked against the training rows;
-    // an indicator of missing cells is 0 or 1 by construction.
+    // an indicator of missing cells is 0 or 1 by construction (derived, not
+    // read), so neither can extrapolate.
     for feature in candidate
         .features
         .iter()
@@ -259,13 +315,16 @@ struct Columns<'a> {
 /// or by its 1-based data row. A number target: the prediction, then the
 /// interval's ends when there are intervals (`inf` / `-inf` when unbounded).
 /// A class target: the predicted class (the most probable), then each
-/// class's probability in class order. Numbers in shortest round-trip form.
+/// class's probability in class order, then with sets the prediction set's
+/// labels in class order joined by `|` (empty for an empty set). Numbers in
+/// shortest round-trip form.
 fn write_csv(
     header: &[String],
     columns: &Columns<'_>,
     new: &Table,
     predicted: &[f64],
     intervals: Option<&[(f64, f64)]>,
+    sets: Option<&[Vec<usize>]>,
 ) -> anyhow::Result<Vec<u8>> {
     let mut bytes = Vec::new();
     for line in header {
@@ -284,6 +343,9 @@ fn write_csv(
     }
     if let Some(labels) = columns.classes {
         names.extend(labels.iter().map(|l| format!("probability_{l}")));
+        if sets.is_some() {
+            names.push(format!("set_{target}"));
+        }
     }
     writer.write_record(&names)?;
     let layout = crate::metrics::ClassPrediction {
@@ -310,6 +372,10 @@ fn write_csv(
                         .iter()
                         .map(|p| format!("{p:?}")),
                 );
+                if let Some(sets) = sets {
+                    let members: Vec<&str> = sets[i].iter().map(|&k| labels[k].as_str()).collect();
+                    record.push(members.join("|"));
+                }
             }
         }
         writer.write_record(&record)?;

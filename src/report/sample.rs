@@ -103,6 +103,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             test_score: Some(1.0),
             train_score: kept.train_score,
             coefficients: None,
+            model: None,
             predictions: Predictions {
                 feature: Some("x".to_string()),
                 train: set(80),
@@ -120,6 +121,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
         nested: None,
         classification: None,
         intervals: None,
+        prediction_sets: None,
         simulation: None,
     }
 }

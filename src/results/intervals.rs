@@ -92,6 +92,10 @@ pub(crate) fn assess(
     let Some(spec) = plan.spec.spec.intervals else {
         return Ok(None);
     };
+    if plan.task.classes.is_some() {
+        // A class target gets prediction sets (results/prediction_sets.rs).
+        return Ok(None);
+    }
     let Some((c, s)) = locate(plan, &results.chosen) else {
         return Ok(None);
     };

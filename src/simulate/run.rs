@@ -292,7 +292,8 @@ pub(crate) struct ReplicateOutcome {
     pub(crate) test_noise: Vec<f64>,
     /// With `[intervals]`, per setting: the share of test points whose test
     /// target lies inside the setting's CV+ interval, and the mean width
-    /// (docs/simulation.md); empty otherwise.
+    /// (class labels: inside its prediction set, and the mean set size;
+    /// docs/simulation.md); empty otherwise.
     pub(crate) interval_coverage: Vec<(f64, f64)>,
     /// Replicate 1 only: its plan and fits, as the ordinary pipeline holds them.
     pub(crate) first: Option<(ExperimentPlan, Vec<CandidateFits>)>,
@@ -390,15 +391,19 @@ pub(crate) fn run_replicate(
         .chosen;
     if let Some(intervals) = plan.spec.spec.intervals {
         for (candidate, fitted) in plan.candidates.iter().zip(&fits) {
-            outcome
-                .interval_coverage
-                .extend(crate::intervals::coverage_by_setting(
-                    &experiment,
-                    candidate,
-                    &fitted.fold_predictions,
-                    intervals.level,
-                    &experiment.assignment.test,
-                )?);
+            // Class labels get prediction sets: coverage and mean set size.
+            let coverage = if plan.setup.classification {
+                crate::prediction_sets::coverage_by_setting
+            } else {
+                crate::intervals::coverage_by_setting
+            };
+            outcome.interval_coverage.extend(coverage(
+                &experiment,
+                candidate,
+                &fitted.fold_predictions,
+                intervals.level,
+                &experiment.assignment.test,
+            )?);
         }
     }
     if replicate.index == 0 {

@@ -93,6 +93,8 @@ pub struct SimulatedSetting {
     /// points whose fresh test target lies inside this setting's CV+
     /// interval, its Monte-Carlo standard error, and the mean width (absent
     /// when the level is too high for the rows, every interval unbounded).
+    /// Class labels: the share whose fresh label lies in the CV+ prediction
+    /// set, and in `interval_width` the mean set size (docs/intervals.md).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub interval_coverage: Option<f64>,
     #[serde(default, skip_serializing_if = "Option::is_none")]

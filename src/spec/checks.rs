@@ -337,13 +337,5 @@ pub(crate) fn check_task(
             ));
         }
     }
-    if task == Task::Classification && spec.intervals.is_some() {
-        return Err((
-            "intervals".into(),
-            "prediction sets for a class target are not built yet; [intervals] applies to a \
-             numeric target (remove it, or predict a number)"
-                .into(),
-        ));
-    }
     Ok(())
 }

@@ -109,18 +109,17 @@ fn a_level_too_high_for_the_rows_gives_infinite_bounds_said_plainly() {
     assert!(last.ends_with(",-inf,inf"), "{stdout}");
 }
 
+/// A class target gets prediction sets (tests/cli/prediction_sets.rs), so
+/// only the ordered split is refused.
 #[test]
-fn ordered_splits_and_class_targets_are_refused_naming_the_key() {
+fn ordered_splits_are_refused_naming_the_key() {
     let dir = tempfile::tempdir().unwrap();
     write_table(dir.path());
-    let cases = [
-        (
-            "holdout = 0.2\nmethod = \"ordered\"\nfolds = 3",
-            "y",
-            "ordered",
-        ),
-        ("holdout = 0.2\nfolds = 3", "label", "class target"),
-    ];
+    let cases = [(
+        "holdout = 0.2\nmethod = \"ordered\"\nfolds = 3",
+        "y",
+        "ordered",
+    )];
     for (split, target, words) in cases {
         write_spec(dir.path(), split, 0.9, target);
         if split.contains("ordered") {

@@ -223,10 +223,16 @@ fn class_targets_get_each_class_probability_equal_to_the_reports_final_fit() {
     let body: Vec<&str> = stdout.lines().filter(|l| !l.starts_with('#')).collect();
     assert_eq!(
         body[0],
-        "inspection_id,predicted_descale,probability_no,probability_yes"
+        "inspection_id,predicted_descale,probability_no,probability_yes,set_descale"
     );
     assert_eq!(body.len(), expected.len() + 1);
-    for (line, want) in body[1..].iter().zip(&expected) {
+    // The demo spec sets [intervals]: each row's prediction set, tallied
+    // like results.json's (covered rows, rows per set size), must give the
+    // report's numbers.
+    let sets = &results["prediction_sets"]["test"];
+    let mut covered = 0;
+    let mut sizes = [0_u64; 3];
+    for ((line, want), &row) in body[1..].iter().zip(&expected).zip(&rows) {
         let fields: Vec<&str> = line.split(',').collect();
         let no: f64 = fields[2].parse().unwrap();
         let yes: f64 = fields[3].parse().unwrap();
@@ -234,5 +240,33 @@ fn class_targets_get_each_class_probability_equal_to_the_reports_final_fit() {
         assert!((no + yes - 1.0).abs() < 1e-12, "{line}");
         let most = if yes > no { "yes" } else { "no" };
         assert_eq!(fields[1], most, "{line}");
+        let members: Vec<&str> = fields[4].split('|').filter(|m| !m.is_empty()).collect();
+        assert!(
+            members == ["no"]
+                || members == ["yes"]
+                || members == ["no", "yes"]
+                || members.is_empty(),
+            "{line}"
+        );
+        sizes[members.len()] += 1;
+        let observed = lines[row].split(',').nth(3).unwrap();
+        if members.contains(&observed) {
+            covered += 1;
+        }
     }
+    assert_eq!(Some(covered), sets["covered"].as_u64());
+    let reported: Vec<u64> = sets["sizes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_u64().unwrap())
+        .collect();
+    assert_eq!(reported, sizes);
+    let comments: Vec<&str> = stdout.lines().filter(|l| l.starts_with('#')).collect();
+    assert!(
+        comments
+            .iter()
+            .any(|c| c.contains("sets: cv+ at level 0.9")),
+        "{comments:?}"
+    );
 }

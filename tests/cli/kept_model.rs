@@ -1,0 +1,241 @@
+//! `final.model` in results.json: the kept setting as data
+//! (docs/predict.md, "The kept model as data"). Applying its terms by hand,
+//! in plain arithmetic here, to the locked test rows must give the report's
+//! test predictions (`final.predictions.test`); fits that are no sum of
+//! raw-unit coefficients must say that they need the training rows.
+
+use std::path::Path;
+
+use serde_json::Value;
+
+use crate::util;
+
+/// An invented table: two features on different scales, a cubic trend in
+/// the first, a slope in the second and a deterministic wobble as noise.
+fn write_table(dir: &Path) -> Vec<(f64, f64)> {
+    let mut text = String::from("id,x1,x2,y\n");
+    let mut rows = Vec::new();
+    for i in 0..150_u32 {
+        let x1 = f64::from((i * 37) % 101) / 10.0 - 5.0;
+        let x2 = f64::from((i * 53) % 89) * 12.5;
+        let y = 10.0 + 0.5 * x1 - 0.2 * x1 * x1
+            + 0.03 * x1 * x1 * x1
+            + 0.002 * x2
+            + 0.3 * (f64::from(i) * 1.7).sin();
+        text.push_str(&format!("r{i},{x1},{x2},{y}\n"));
+        rows.push((x1, x2));
+    }
+    std::fs::write(dir.join("table.csv"), text).unwrap();
+    rows
+}
+
+fn write_spec(dir: &Path, candidate: &str) {
+    let spec = format!(
+        r#"[experiment]
+name = "kept"
+seed = 7
+
+[data]
+table = "table.csv"
+target = "y"
+features = ["x1", "x2"]
+key = "id"
+
+[split]
+holdout = 0.2
+method = "kfold"
+folds = 5
+
+[[candidate]]
+{candidate}
+
+[choose]
+metric = "mse"
+rule = "lowest"
+
+[report]
+formats = []
+"#
+    );
+    std::fs::write(dir.join("spec.toml"), spec).unwrap();
+}
+
+/// Runs the spec; returns results.json and the locked test rows (0-based,
+/// in the order of `final.predictions.test`) from `heldout folds`.
+fn run(dir: &Path) -> (Value, Vec<usize>) {
+    util::assert_success(&util::run_in(dir, &["run", "--quiet", "spec.toml"]));
+    let output = util::run_in(dir, &["folds", "spec.toml"]);
+    util::assert_success(&output);
+    let mut test: Vec<usize> = util::stdout_of(&output)
+        .lines()
+        .skip(1)
+        .filter(|line| line.ends_with(",1,test"))
+        .map(|line| line.split(',').next().unwrap().parse::<usize>().unwrap() - 1)
+        .collect();
+    test.sort_unstable();
+    (util::read_json(&dir.join("out/kept/results.json")), test)
+}
+
+/// The terms' sum at one row, by hand: Σ coefficient × feature^power.
+fn apply(terms: &[Value], x1: f64, x2: f64) -> f64 {
+    terms
+        .iter()
+        .map(|term| {
+            let value = match term["feature"].as_str() {
+                None => 1.0,
+                Some("x1") => x1,
+                Some("x2") => x2,
+                Some(other) => panic!("unexpected feature {other}"),
+            };
+            let power = term["power"].as_u64().unwrap() as i32;
+            term["coefficient"].as_f64().unwrap() * value.powi(power)
+        })
+        .sum()
+}
+
+fn check_by_hand(candidate: &str, family: &str, expected_terms: &[(&str, u64)]) {
+    let dir = tempfile::tempdir().unwrap();
+    let rows = write_table(dir.path());
+    write_spec(dir.path(), candidate);
+    let (results, test) = run(dir.path());
+    let model = &results["final"]["model"];
+    assert_eq!(model["family"], family);
+    assert_eq!(model["form"], "coefficients");
+    let terms = model["terms"].as_array().unwrap();
+    let named: Vec<(&str, u64)> = terms
+        .iter()
+        .map(|t| {
+            (
+                t["feature"].as_str().unwrap_or("intercept"),
+                t["power"].as_u64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(named, expected_terms);
+    // The same numbers as `final.coefficients`, in the same order.
+    let coefficients = results["final"]["coefficients"].as_object().unwrap();
+    for (term, (name, value)) in terms.iter().zip(coefficients) {
+        assert_eq!(term["name"].as_str(), Some(name.as_str()));
+        assert_eq!(term["coefficient"].as_f64(), value.as_f64());
+    }
+    let predicted = results["final"]["predictions"]["test"]["predicted"]
+        .as_array()
+        .unwrap();
+    assert_eq!(predicted.len(), test.len());
+    assert_eq!(test.len(), 30);
+    for (&row, want) in test.iter().zip(predicted) {
+        let want = want.as_f64().unwrap();
+        let (x1, x2) = rows[row];
+        let got = apply(terms, x1, x2);
+        assert!(
+            (got - want).abs() <= 1e-9 * want.abs(),
+            "{family}, row {row}: {got} by hand against the report's {want}"
+        );
+    }
+}
+
+#[test]
+fn polynomial_terms_applied_by_hand_give_the_reports_test_predictions() {
+    check_by_hand(
+        "family = \"polynomial\"\nfeatures = [\"x1\"]\ndegree = [3]",
+        "polynomial",
+        &[("intercept", 0), ("x1", 1), ("x1", 2), ("x1", 3)],
+    );
+}
+
+#[test]
+fn ridge_terms_applied_by_hand_give_the_reports_test_predictions() {
+    check_by_hand(
+        "family = \"ridge\"\npenalty = [2.5]",
+        "ridge",
+        &[("intercept", 0), ("x1", 1), ("x2", 1)],
+    );
+}
+
+#[test]
+fn neighbours_are_stated_to_need_the_training_rows() {
+    let dir = tempfile::tempdir().unwrap();
+    write_table(dir.path());
+    write_spec(dir.path(), "family = \"nearest-neighbors\"\nk = [5]");
+    let (results, _) = run(dir.path());
+    let model = &results["final"]["model"];
+    assert_eq!(model["form"], "training-rows");
+    assert!(model.get("terms").is_none());
+    assert!(results["final"].get("coefficients").is_none());
+    assert!(
+        model["prediction"]
+            .as_str()
+            .unwrap()
+            .contains("needs the training rows"),
+        "{model}"
+    );
+}
+
+/// Logistic regression's terms give each class's score; with two classes
+/// the positive class's probability is 1 / (1 + exp(−score)), which the
+/// report keeps as the test prediction. The demo's class spec.
+#[test]
+fn logistic_terms_give_the_reports_test_probabilities() {
+    let dir = tempfile::tempdir().unwrap();
+    crate::demo::copy_demo(dir.path());
+    let root = util::crate_root();
+    for file in [
+        "specs/substation-descaling.toml",
+        "demo-data/substation-descaling.csv",
+    ] {
+        std::fs::copy(root.join(file), dir.path().join(file)).unwrap();
+    }
+    util::assert_success(&util::run_in(
+        dir.path(),
+        &["run", "--quiet", "specs/substation-descaling.toml"],
+    ));
+    let results = util::read_json(&dir.path().join("out/substation-descaling/results.json"));
+    assert_eq!(results["chosen"], "logistic/degree=1");
+    let model = &results["final"]["model"];
+    assert_eq!(model["form"], "coefficients");
+    let terms = model["terms"].as_array().unwrap();
+    assert!(terms.iter().all(|t| t["class"] == "yes"), "{model}");
+    let output = util::run_in(dir.path(), &["folds", "specs/substation-descaling.toml"]);
+    util::assert_success(&output);
+    let mut test: Vec<usize> = util::stdout_of(&output)
+        .lines()
+        .skip(1)
+        .filter(|line| line.ends_with(",1,test"))
+        .map(|line| line.split(',').next().unwrap().parse().unwrap())
+        .collect();
+    test.sort_unstable();
+    let table =
+        std::fs::read_to_string(dir.path().join("demo-data/substation-descaling.csv")).unwrap();
+    let lines: Vec<&str> = table.lines().collect();
+    // Columns: inspection_id, approach_k, flow_m3h, descale.
+    let predicted = results["final"]["predictions"]["test"]["predicted"]
+        .as_array()
+        .unwrap();
+    assert_eq!(predicted.len(), test.len());
+    for (&row, want) in test.iter().zip(predicted) {
+        let fields: Vec<f64> = lines[row]
+            .split(',')
+            .skip(1)
+            .take(2)
+            .map(|v| v.parse().unwrap())
+            .collect();
+        let score: f64 = terms
+            .iter()
+            .map(|t| {
+                let value = match t["feature"].as_str() {
+                    None => 1.0,
+                    Some("approach_k") => fields[0],
+                    Some("flow_m3h") => fields[1],
+                    Some(other) => panic!("unexpected feature {other}"),
+                };
+                t["coefficient"].as_f64().unwrap() * value.powi(t["power"].as_u64().unwrap() as i32)
+            })
+            .sum();
+        let got = 1.0 / (1.0 + (-score).exp());
+        let want = want.as_f64().unwrap();
+        assert!(
+            (got - want).abs() <= 1e-9 * want,
+            "row {row}: {got} by hand against the report's {want}"
+        );
+    }
+}
