@@ -17,7 +17,7 @@ bin=$PWD/target/release/heldout
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 
-python3 demo-data/make_heat_demand.py --rows "$rows" --out "$work/big.csv"
+python3 demo-data/make_heat_demand.py --rows "$rows" --wind-gaps 0 --out "$work/big.csv"
 cat > "$work/big.toml" <<SPEC
 [experiment]
 name = "bench-cache"

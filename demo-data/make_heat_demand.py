@@ -15,7 +15,8 @@ reading:
     meter_id    the meter read that day ("M0001", ...), unique per row
     substation  the substation that feeds the meter
     outdoor_c   mean outdoor temperature of the day, degrees Celsius
-    wind_ms     mean wind speed of the day, metres per second
+    wind_ms     mean wind speed of the day, metres per second; empty on the
+                days the crew's wind gauge was out of service (about 5 %)
     demand_mwh  heat delivered through the meter that day, MWh (the target)
 
 How the numbers are made
@@ -31,6 +32,12 @@ polynomial degree, very few neighbours) chase the noise; a reading is never
 below 0.05 MWh (a meter does not run backwards). With about 300 rows,
 cross-validated error falls and then rises again as the flexibility grows.
 
+The substation (text, four levels) shifts demand a little (network losses).
+On about one day in twenty the wind gauge was out of service and the wind
+cell is left empty; the demand still felt that day's wind. Which days lost
+their wind reading is drawn from a second random stream, so every other
+value is the same as without the gaps.
+
 The temperature follows a seasonal cycle over the survey days plus day-to-day
 weather and occasional cold snaps, clipped to [-15, 25] degrees C. Severe cold
 days are few and far apart, which is where over-flexible fits go wrong.
@@ -39,8 +46,8 @@ Usage
 -----
     python3 demo-data/make_heat_demand.py            # writes demo-data/heat-demand.csv
 
-Options: ``--rows N`` (default 300), ``--seed S`` (default 20261201) and
-``--out PATH``. Only the Python standard library is used. The output is
+Options: ``--rows N`` (default 300), ``--seed S`` (default 20261201),
+``--wind-gaps F`` (share of empty wind cells, default 0.05) and ``--out PATH``. Only the Python standard library is used. The output is
 byte-for-byte stable: randomness comes from ``random.Random(seed)``, numbers
 are written with fixed decimals via format strings, and lines end in "\\n".
 """
@@ -71,6 +78,7 @@ WEATHER_SPREAD_C = 8.0     # day-to-day weather: triangular within +/- this
 COLD_SNAP_CHANCE = 0.04    # share of days hit by a cold snap ...
 COLD_SNAP_MIN_C = 4.0      # ... which lowers the temperature by 4 to 12 degrees
 COLD_SNAP_MAX_C = 12.0
+GAUGE_OUT_CHANCE = 0.05    # share of days without a wind reading
 
 
 def heating_degrees(outdoor_c):
@@ -128,14 +136,21 @@ def make_rows(n_rows, seed):
     return rows
 
 
-def write_csv(rows, path):
+def gauge_out_days(n_rows, seed, chance):
+    """The days whose wind cell is empty, from a stream of their own."""
+    rng = random.Random(seed + 1)
+    return {day for day in range(1, n_rows + 1) if rng.random() < chance}
+
+
+def write_csv(rows, path, gaps):
     # `week` numbers the survey's weeks (days 1-7 are week 1): days of one
     # week share a weather pattern, so the demo spec keeps them together.
     lines = ["day,week,meter_id,substation,outdoor_c,wind_ms,demand_mwh"]
     for day, meter_id, substation, outdoor_c, wind_ms, demand in rows:
         week = (day - 1) // 7 + 1
+        wind = "" if day in gaps else f"{wind_ms:.1f}"
         lines.append(
-            f"{day},{week},{meter_id},{substation},{outdoor_c:.1f},{wind_ms:.1f},{demand:.3f}"
+            f"{day},{week},{meter_id},{substation},{outdoor_c:.1f},{wind},{demand:.3f}"
         )
     with open(path, "w", encoding="utf-8", newline="\n") as handle:
         handle.write("\n".join(lines) + "\n")
@@ -146,11 +161,13 @@ def main():
     parser = argparse.ArgumentParser(description="Write the invented Nordvik heat-demand table.")
     parser.add_argument("--rows", type=int, default=DEFAULT_ROWS, help="number of rows (default 300)")
     parser.add_argument("--seed", type=int, default=DEFAULT_SEED, help="random seed (default 20261201)")
+    parser.add_argument("--wind-gaps", type=float, default=GAUGE_OUT_CHANCE,
+                        help="share of days without a wind reading (default 0.05; 0 for none)")
     parser.add_argument("--out", default=os.path.join(here, "heat-demand.csv"), help="output CSV path")
     args = parser.parse_args()
     if args.rows < 1:
         parser.error("--rows must be at least 1")
-    write_csv(make_rows(args.rows, args.seed), args.out)
+    write_csv(make_rows(args.rows, args.seed), args.out, gauge_out_days(args.rows, args.seed, args.wind_gaps))
 
 
 if __name__ == "__main__":

@@ -53,7 +53,7 @@ const BUNDLE_ENTRIES: usize = 512;
 /// …or their bytes reach this…
 const BUNDLE_BYTES: usize = 16 << 20;
 /// …or the oldest has waited this long.
-const BUNDLE_AGE: Duration = Duration::from_millis(500);
+const BUNDLE_AGE: Duration = Duration::from_millis(200);
 
 /// The folder of pack files inside a cache folder.
 const PACKS: &str = "packs";

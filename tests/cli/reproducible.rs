@@ -240,6 +240,7 @@ data:
   features: [outdoor_c, wind_ms]
   key: meter_id
   group: week
+  missing: impute
 split:
   holdout: 0.2
   method: kfold
@@ -256,6 +257,7 @@ candidate:
     features: [outdoor_c]
     df: [2.5, 3, 4, 6, 9, 14, 20, 40]
   - family: ridge
+    features: [outdoor_c, wind_ms, substation]
     penalty: [0.1, 10, 100, 1000]
 choose:
   metric: mse
