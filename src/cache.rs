@@ -32,7 +32,8 @@ use crate::error::CacheError;
 /// Version of the entry format and key recipe; bump to orphan old entries.
 /// v2: explicit task identities instead of a debug rendering of the family.
 /// v3: entries carry the key they were written under.
-const FORMAT: &str = "heldout fit cache v3";
+/// v4: a payload holds each setting's fit or why it could not be fitted.
+const FORMAT: &str = "heldout fit cache v4";
 
 /// Bytes before the payload: the digest, then the key.
 const HEADER: usize = 64;

@@ -138,26 +138,32 @@ pub(crate) fn fold_grids_at(
         .par_iter()
         .map(|&f| {
             let train = a.fold_train(f);
-            candidate
-                .family
-                .fit_path(
-                    &plan.design(candidate, &train),
-                    &plan.target_of(&train),
-                    x_eval,
-                    false,
-                )
-                .map(|fits| fits.into_iter().map(|fit| fit.eval_pred).collect())
-                .map_err(|cause| FitFailure {
-                    candidate: candidate.stem.clone(),
-                    fold: match &plan.origin {
-                        Some(origin) => format!(
-                            "{origin}, {} (refitted for the intervals)",
-                            a.describe_fold(f)
-                        ),
-                        None => format!("{} (refitted for the intervals)", a.describe_fold(f)),
-                    },
-                    cause,
-                })
+            let x_train = plan.design(candidate, &train);
+            let y_train = plan.target_of(&train);
+            // A setting infeasible on this fold predicts NaN (it is never
+            // kept, so only a simulation's coverage of every setting sees it).
+            let fits =
+                crate::execute::feasible::fit_tolerant(candidate, &x_train, false, |family| {
+                    family.fit_path(&x_train, &y_train, x_eval, false)
+                });
+            Ok::<_, crate::error::FitError>(
+                fits.into_iter()
+                    .map(|fit| {
+                        fit.map_or_else(|_| vec![f64::NAN; x_eval.nrows()], |fit| fit.eval_pred)
+                    })
+                    .collect(),
+            )
+            .map_err(|cause| FitFailure {
+                candidate: candidate.stem.clone(),
+                fold: match &plan.origin {
+                    Some(origin) => format!(
+                        "{origin}, {} (refitted for the intervals)",
+                        a.describe_fold(f)
+                    ),
+                    None => format!("{} (refitted for the intervals)", a.describe_fold(f)),
+                },
+                cause,
+            })
         })
         .collect::<Vec<_>>()
         .into_iter()

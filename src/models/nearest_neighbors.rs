@@ -24,7 +24,7 @@ use super::kd_tree::{by_distance_then_row, squared_distance, KdTree};
 use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, Targets};
 use super::{
     mean_and_sd, neighbour_vote, require_spread, Family, FitRequest, LeaveOneOut, Setting,
-    SettingFit,
+    SettingFit, TrainingShape,
 };
 use crate::error::FitError;
 
@@ -289,6 +289,16 @@ impl Family for NearestNeighbors {
 
     fn settings(&self) -> Vec<Setting> {
         self.ks.iter().map(|&k| Setting::count("k", k)).collect()
+    }
+
+    fn infeasible(&self, setting: usize, shape: &TrainingShape<'_>) -> Option<String> {
+        let k = self.ks[setting];
+        (k > shape.rows()).then(|| {
+            format!(
+                "k={k} needs at least {k} training rows, the fit has {}",
+                shape.rows()
+            )
+        })
     }
 
     fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {

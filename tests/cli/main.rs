@@ -13,6 +13,7 @@ mod demo;
 mod fuzz;
 mod honest;
 mod hostile;
+mod infeasible;
 mod intervals;
 mod json;
 mod nist;
