@@ -18,6 +18,7 @@ mod intervals;
 mod json;
 mod nist;
 mod ordered;
+mod parquet;
 mod predict;
 mod report_command;
 mod reports;
