@@ -15,7 +15,7 @@ use crate::spec::MissingPolicy;
 
 pub(crate) mod format;
 pub(crate) mod missing;
-mod parquet;
+pub(crate) mod parquet;
 
 pub(crate) use format::TableFormat;
 
@@ -148,7 +148,7 @@ pub(crate) fn load(
             .chain(&request.text)
             .cloned()
             .collect();
-        let rows = parquet::to_csv(bytes, &used).map_err(table_error)?;
+        let rows = parquet::to_csv(bytes, Some(&used)).map_err(table_error)?;
         (&parquet_request, rows, false)
     } else {
         let unterminated = !bytes.is_empty() && !bytes.ends_with(b"\n");

@@ -31,10 +31,10 @@ pub(crate) fn is_parquet(name: &std::path::Path, bytes: &[u8]) -> bool {
 }
 
 /// The rows of the Parquet file `bytes` as comma-separated text with a
-/// header of its top-level column names. Only the columns in `used` are
-/// written out; the others are left empty (their names stay in the header,
-/// so a misspelt name still gets its "did you mean").
-pub(crate) fn to_csv(bytes: Vec<u8>, used: &[String]) -> Result<Vec<u8>, String> {
+/// header of its top-level column names. Only the columns in `used` (all
+/// when `None`) are written out; the others are left empty (their names
+/// stay in the header, so a misspelt name still gets its "did you mean").
+pub(crate) fn to_csv(bytes: Vec<u8>, used: Option<&[String]>) -> Result<Vec<u8>, String> {
     let reader = SerializedFileReader::new(bytes::Bytes::from(bytes))
         .map_err(|e| format!("cannot read the Parquet file: {e}"))?;
     let schema = reader.metadata().file_metadata().schema_descr();
@@ -44,7 +44,10 @@ pub(crate) fn to_csv(bytes: Vec<u8>, used: &[String]) -> Result<Vec<u8>, String>
         .iter()
         .map(|f| f.name().to_string())
         .collect();
-    let wanted: Vec<bool> = names.iter().map(|n| used.contains(n)).collect();
+    let wanted: Vec<bool> = names
+        .iter()
+        .map(|n| used.is_none_or(|used| used.contains(n)))
+        .collect();
     let mut writer = csv::WriterBuilder::new()
         .terminator(csv::Terminator::Any(b'\n'))
         .from_writer(Vec::new());

@@ -126,3 +126,32 @@ fn a_text_column_used_as_a_number_names_the_file_row_and_column() {
         "{err}"
     );
 }
+
+#[test]
+fn the_scaffold_reads_a_parquet_table_and_its_spec_runs() {
+    let dir = tempfile::tempdir().unwrap();
+    copy_fixture(dir.path());
+    let output = util::run_in(
+        dir.path(),
+        &[
+            "new",
+            "--table",
+            "table.parquet",
+            "--target",
+            "yield_kg",
+            "--output",
+            "new.toml",
+        ],
+    );
+    util::assert_success(&output);
+    let spec = std::fs::read_to_string(dir.path().join("new.toml")).unwrap();
+    assert!(spec.contains("table = \"table.parquet\""), "{spec}");
+    assert!(spec.contains("target = \"yield_kg\""), "{spec}");
+    assert!(spec.contains("\"leaf_m2\""), "{spec}");
+    util::assert_success(&util::run_in(
+        dir.path(),
+        &[
+            "run", "new.toml", "--out", "out", "--cache", "cache", "--quiet",
+        ],
+    ));
+}
