@@ -43,7 +43,8 @@ use crate::error::CacheError;
 /// Version of the key recipe; bump to orphan old entries.
 /// v2: explicit task identities instead of a debug rendering of the family.
 /// v3: entries carry the key they were written under.
-const FORMAT: &str = "heldout fit cache v3";
+/// v4: a payload holds each setting's fit or why it could not be fitted.
+const FORMAT: &str = "heldout fit cache v4";
 
 /// Bytes before the payload of a loose (one-file) entry: digest, key.
 const LOOSE_HEADER: usize = 64;

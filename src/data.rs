@@ -16,6 +16,7 @@ use crate::spec::MissingPolicy;
 pub(crate) mod encode;
 pub(crate) mod format;
 pub(crate) mod missing;
+pub(crate) mod parquet;
 
 pub(crate) use format::TableFormat;
 
@@ -134,11 +135,36 @@ pub(crate) fn load(
         ));
     }
     let bytes = std::fs::read(path).map_err(read_error)?;
+    // The digest is always of the file's bytes, whatever its format.
+    let digest = crate::digests::file_digest(&bytes);
+    // A Parquet file is read as the CSV text of its rows, in the default
+    // delimiter and decimal mark (its numbers are typed, not written), with
+    // the spec's missing-value markers (data/parquet.rs).
+    let parquet_request;
+    let (request, bytes, unterminated) = if parquet::is_parquet(path, &bytes) {
+        parquet_request = TableRequest {
+            format: TableFormat {
+                delimiter: b',',
+                decimal_comma: false,
+                markers: request.format.markers.clone(),
+            },
+            ..request.clone()
+        };
+        let used: Vec<String> = request
+            .numeric
+            .iter()
+            .chain(&request.text)
+            .cloned()
+            .collect();
+        let rows = parquet::to_csv(bytes, Some(&used)).map_err(table_error)?;
+        (&parquet_request, rows, false)
+    } else {
+        let unterminated = !bytes.is_empty() && !bytes.ends_with(b"\n");
+        (request, bytes, unterminated)
+    };
     let total = bytes.len() as u64;
     on_read(0, total);
     let mut next_report = REPORT_EVERY;
-    let digest = crate::digests::file_digest(&bytes);
-    let unterminated = !bytes.is_empty() && !bytes.ends_with(b"\n");
 
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)

@@ -175,6 +175,11 @@ pub enum FitError {
     SingularCovariance { setting: String, class: usize },
     #[error("{setting}: the smoothing spline could not be fitted: {detail}")]
     SmootherBreakdown { setting: String, detail: String },
+    #[error(
+        "no setting of any candidate can be fitted on these rows, so there is nothing to \
+         choose from: {reasons}"
+    )]
+    NoFeasibleSetting { reasons: String },
 }
 
 /// A `FitError` with the candidate and fold it happened in.

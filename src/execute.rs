@@ -17,6 +17,9 @@ use crate::error::{CacheError, FitFailure};
 use crate::models::{Family, SettingFit};
 use crate::plan::ExperimentPlan;
 
+pub(crate) mod feasible;
+use feasible::{Infeasible, SettingOutcome};
+
 /// Which rows a task trains on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum TaskRows {
@@ -43,6 +46,10 @@ pub(crate) struct CandidateFits {
     pub(crate) fold_predictions: Vec<Vec<Vec<f64>>>,
     /// Per setting: the fit on all non-test rows, evaluated on the test rows.
     pub(crate) full: Vec<SettingFit>,
+    /// Per setting: where and why it could not be fitted, in task order
+    /// (empty for a feasible setting). An infeasible setting's predictions
+    /// above are NaN placeholders (`feasible::placeholder`).
+    pub(crate) infeasible: Vec<Vec<Infeasible>>,
 }
 
 /// How the cache takes part in a run.
@@ -207,9 +214,10 @@ fn describe_fold(plan: &ExperimentPlan, rows: TaskRows) -> String {
     }
 }
 
-/// Outcome of one task: its fits and whether they came from the cache.
+/// Outcome of one task: its fits (or why a setting could not be fitted)
+/// and whether they came from the cache.
 struct TaskOutcome {
-    fits: Vec<SettingFit>,
+    fits: Vec<SettingOutcome>,
     reused: bool,
     corrupt: Option<String>,
 }
@@ -223,7 +231,7 @@ fn run_task(
     let mut corrupt = None;
     if let (Some(cache), Some(key)) = (policy.read, key) {
         match cache.get(key) {
-            Lookup::Hit(bytes) => match postcard::from_bytes::<Vec<SettingFit>>(&bytes) {
+            Lookup::Hit(bytes) => match postcard::from_bytes::<Vec<SettingOutcome>>(&bytes) {
                 Ok(fits) if fits_match_task(plan, task, &fits) => {
                     return Ok(TaskOutcome {
                         fits,
@@ -248,38 +256,32 @@ fn run_task(
     let data = task_data(plan, task);
     let candidate = &plan.candidates[task.candidate];
     let classes = plan.task.class_count();
-    let fitted = if task.rows == TaskRows::LeaveOneOut {
-        leave_one_out(
-            candidate.family.as_ref(),
-            &data.x_train,
-            &data.y_train,
-            classes,
-        )
-    } else {
-        candidate.family.fit_classes(
-            &data.x_train,
-            &data.y_train,
-            &data.x_eval,
-            task.rows == TaskRows::Full && plan.full_fit.final_fit,
-            classes,
-        )
-    };
-    let mut fits = fitted.map_err(|cause| FitFailure {
-        candidate: candidate.stem.clone(),
-        fold: describe_rows(plan, task.rows),
-        cause,
-    })?;
-    if task.rows != TaskRows::Full {
-        // Only validation predictions of a fold are ever used.
-        for fit in &mut fits {
+    let by_row = task.rows == TaskRows::LeaveOneOut;
+    let final_fit = task.rows == TaskRows::Full && plan.full_fit.final_fit;
+    // A setting that cannot be fitted here is set aside with its reason;
+    // the others are fitted as one grid where they can be.
+    let mut fits = feasible::fit_tolerant(candidate, &data.x_train, by_row, |family| {
+        if by_row {
+            leave_one_out(family, &data.x_train, &data.y_train, classes)
+        } else {
+            family.fit_classes(
+                &data.x_train,
+                &data.y_train,
+                &data.x_eval,
+                final_fit,
+                classes,
+            )
+        }
+    });
+    for fit in fits.iter_mut().flatten() {
+        if task.rows != TaskRows::Full {
+            // Only validation predictions of a fold are ever used.
             fit.train_pred = Vec::new();
             fit.coefficients = None;
-        }
-    } else if plan.full_fit.training_as_evaluation {
-        // The rows after the test rows are the training rows.
-        let tests = plan.assignment.test.len();
-        let width = plan.task.prediction_width();
-        for fit in &mut fits {
+        } else if plan.full_fit.training_as_evaluation {
+            // The rows after the test rows are the training rows.
+            let tests = plan.assignment.test.len();
+            let width = plan.task.prediction_width();
             fit.train_pred = fit.eval_pred.split_off(tests * width);
         }
     }
@@ -299,7 +301,7 @@ fn run_task(
 /// predicts its training rows too, every training row). A cache entry is
 /// checked against its key already; this keeps a read that passes that check
 /// from ever indexing out of bounds.
-fn fits_match_task(plan: &ExperimentPlan, task: Task, fits: &[SettingFit]) -> bool {
+fn fits_match_task(plan: &ExperimentPlan, task: Task, fits: &[SettingOutcome]) -> bool {
     let a = &plan.assignment;
     let (eval, train) = match task.rows {
         TaskRows::Fold(f) => (a.folds[f].valid.len(), None),
@@ -311,7 +313,7 @@ fn fits_match_task(plan: &ExperimentPlan, task: Task, fits: &[SettingFit]) -> bo
     };
     let width = plan.task.prediction_width();
     fits.len() == plan.candidates[task.candidate].settings.len()
-        && fits.iter().all(|fit| {
+        && fits.iter().flatten().all(|fit| {
             fit.eval_pred.len() == eval * width
                 && train.is_none_or(|rows| fit.train_pred.len() == rows * width)
         })
@@ -427,12 +429,16 @@ pub(crate) fn run(
         .collect();
 
     let mut summary = Summary::default();
-    let mut fits: Vec<CandidateFits> = (0..plan.candidates.len())
-        .map(|_| CandidateFits {
+    let mut fits: Vec<CandidateFits> = plan
+        .candidates
+        .iter()
+        .map(|candidate| CandidateFits {
             fold_predictions: Vec::with_capacity(plan.assignment.folds.len()),
             full: Vec::new(),
+            infeasible: vec![Vec::new(); candidate.settings.len()],
         })
         .collect();
+    let width = plan.task.prediction_width();
     for (task, outcome) in selected.iter().zip(outcomes) {
         let outcome = outcome?;
         if outcome.reused {
@@ -445,23 +451,44 @@ pub(crate) fn run(
             continue;
         }
         let target = &mut fits[task.candidate];
+        let a = &plan.assignment;
+        let (eval, train) = match task.rows {
+            TaskRows::Fold(f) => (a.folds[f].valid.len(), 0),
+            TaskRows::LeaveOneOut => (a.train.len(), 0),
+            TaskRows::Full if plan.full_fit.final_fit || plan.full_fit.training_as_evaluation => {
+                (a.test.len(), a.train.len())
+            }
+            TaskRows::Full => (a.test.len(), 0),
+        };
+        let outcome_fits: Vec<SettingFit> = outcome
+            .fits
+            .into_iter()
+            .enumerate()
+            .map(|(s, fit)| {
+                fit.unwrap_or_else(|reason| {
+                    target.infeasible[s].push(Infeasible {
+                        fold: describe_rows(plan, task.rows),
+                        reason,
+                    });
+                    feasible::placeholder(eval, train, width)
+                })
+            })
+            .collect();
         match task.rows {
             TaskRows::Fold(_) => target
                 .fold_predictions
-                .push(outcome.fits.into_iter().map(|fit| fit.eval_pred).collect()),
+                .push(outcome_fits.into_iter().map(|fit| fit.eval_pred).collect()),
             TaskRows::LeaveOneOut => {
                 // Fold i of a single-row split validates on non-test row i.
-                let width = plan.task.prediction_width();
                 for row in 0..plan.assignment.folds.len() {
-                    let grid = outcome
-                        .fits
+                    let grid = outcome_fits
                         .iter()
                         .map(|fit| fit.eval_pred[row * width..(row + 1) * width].to_vec())
                         .collect();
                     target.fold_predictions.push(grid);
                 }
             }
-            TaskRows::Full => target.full = outcome.fits,
+            TaskRows::Full => target.full = outcome_fits,
         }
     }
     Ok((keep.then_some(fits), summary))

@@ -148,27 +148,36 @@ pub(crate) fn fold_grids_at(
                 crate::data::missing::fill_with_training_medians(&mut x_train, &mut x_at)
                     .expect("the plan checked that every training fold has values");
             }
-            candidate
-                .family
-                .fit_classes(
-                    &x_train,
-                    &plan.target_of(&train),
-                    &x_at,
-                    false,
-                    plan.task.class_count(),
-                )
-                .map(|fits| fits.into_iter().map(|fit| fit.eval_pred).collect())
-                .map_err(|cause| FitFailure {
-                    candidate: candidate.stem.clone(),
-                    fold: match &plan.origin {
-                        Some(origin) => format!(
-                            "{origin}, {} (refitted for the intervals)",
-                            a.describe_fold(f)
-                        ),
-                        None => format!("{} (refitted for the intervals)", a.describe_fold(f)),
-                    },
-                    cause,
-                })
+            let y_train = plan.target_of(&train);
+            let classes = plan.task.class_count();
+            let width = plan.task.prediction_width();
+            // A setting infeasible on this fold predicts NaN (it is never
+            // kept, so only a simulation's coverage of every setting sees it).
+            let fits =
+                crate::execute::feasible::fit_tolerant(candidate, &x_train, false, |family| {
+                    family.fit_classes(&x_train, &y_train, &x_at, false, classes)
+                });
+            Ok::<_, crate::error::FitError>(
+                fits.into_iter()
+                    .map(|fit| {
+                        fit.map_or_else(
+                            |_| vec![f64::NAN; x_at.nrows() * width],
+                            |fit| fit.eval_pred,
+                        )
+                    })
+                    .collect(),
+            )
+            .map_err(|cause| FitFailure {
+                candidate: candidate.stem.clone(),
+                fold: match &plan.origin {
+                    Some(origin) => format!(
+                        "{origin}, {} (refitted for the intervals)",
+                        a.describe_fold(f)
+                    ),
+                    None => format!("{} (refitted for the intervals)", a.describe_fold(f)),
+                },
+                cause,
+            })
         })
         .collect::<Vec<_>>()
         .into_iter()

@@ -32,6 +32,10 @@ pub(crate) struct CandidatePlan {
     /// The explicit identity of this candidate's fits (family, algorithm
     /// version, features, every setting as bits): what cache keys name.
     pub(crate) identity: Vec<u8>,
+    /// The family's registry entry and the settings it was built from, so
+    /// that a part of the grid can be rebuilt (`feasible::restricted`).
+    pub(crate) def: &'static crate::models::registry::FamilyDef,
+    pub(crate) grid: crate::models::registry::Settings,
 }
 
 impl CandidatePlan {
@@ -44,6 +48,8 @@ impl CandidatePlan {
             family: Arc::clone(&spec.family),
             settings: spec.family.settings(),
             identity: spec.identity(),
+            def: spec.def,
+            grid: spec.settings.clone(),
         }
     }
 

@@ -192,6 +192,11 @@ pub struct CandidateResult {
         deserialize_with = "lenient::optional_number"
     )]
     pub test_score: Option<f64>,
+    /// Where and why the setting could not be fitted, in task order (absent
+    /// for a feasible setting). An infeasible setting's scores are `null`;
+    /// it takes no part in the choice (docs/spec.md, "Infeasible settings").
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub infeasible: Vec<crate::execute::feasible::Infeasible>,
 }
 
 #[derive(Debug, Clone, Serialize, Deserialize)]
@@ -325,18 +330,24 @@ pub(crate) fn assemble(
         .map(|f| plan.target_of(&f.valid))
         .collect();
 
+    let infeasible: Vec<Vec<Vec<crate::execute::feasible::Infeasible>>> =
+        fits.iter().map(|fit| fit.infeasible.clone()).collect();
+    if crate::execute::feasible::all_infeasible(&infeasible) {
+        return Err(crate::execute::feasible::none_feasible(plan, &infeasible));
+    }
     let mut scores = Vec::new();
     let mut candidates = Vec::new();
     let mut locate = Vec::new();
     for (c, (candidate, fit)) in plan.candidates.iter().zip(fits).enumerate() {
         for (s, setting) in candidate.settings.iter().enumerate() {
             let full = &fit.full[s];
-            let score = SettingScore::new(
+            let mut score = SettingScore::new(
                 candidate.id(setting),
                 full.effective_df,
                 scorer.score(&train_target, &full.train_pred),
                 assess::fold_scores(scorer, &fit.fold_predictions, &fold_targets, s),
             );
+            crate::execute::feasible::set_aside(&mut score, &fit.infeasible[s]);
             let mut setting_map = serde_json::Map::new();
             if let Some((name, value)) = setting.param {
                 setting_map.insert(name.into(), setting_value_json(value));
@@ -352,6 +363,7 @@ pub(crate) fn assemble(
                 cv_se: score.cv_se,
                 fold_scores: score.fold_scores.clone(),
                 test_score: None,
+                infeasible: fit.infeasible[s].clone(),
             });
             scores.push(score);
             locate.push((c, s));
@@ -366,7 +378,7 @@ pub(crate) fn assemble(
     let eligible = match threshold {
         Some(t) => scores
             .iter()
-            .filter(|s| !metric.better(t, s.cv_score))
+            .filter(|s| s.cv_score.is_finite() && !metric.better(t, s.cv_score))
             .count(),
         None => 1,
     };

@@ -5,7 +5,7 @@ use std::io::Write as _;
 
 use anyhow::Context;
 
-use super::summary::{self, FitCounts, PlanCandidate, PlanFolds, PlanRows};
+use super::summary::{self, FitCounts, PlanCandidate, PlanFolds, PlanInfeasible, PlanRows};
 use crate::cache::Cache;
 use crate::cli::{FoldsArgs, PlanArgs};
 use crate::execute::{self, TaskRows};
@@ -55,19 +55,33 @@ fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
         }
     }
     (plan.assignment, plan.full_fit) = main;
+    let foreseen = execute::feasible::before_fitting(&plan);
     let a = &plan.assignment;
     let folds_per_repeat = a.folds.len() / a.repeats;
     let candidates: Vec<PlanCandidate> = plan
         .candidates
         .iter()
         .zip(&counts)
-        .map(|(candidate, &(fits, cached, work))| PlanCandidate {
-            candidate: candidate.stem.clone(),
-            family: candidate.family_name.to_string(),
-            settings: candidate.settings.len(),
-            fits: FitCounts::new(fits, cached),
-            work: Some(work),
-        })
+        .zip(&foreseen)
+        .map(
+            |((candidate, &(fits, cached, work)), foreseen)| PlanCandidate {
+                candidate: candidate.stem.clone(),
+                family: candidate.family_name.to_string(),
+                settings: candidate.settings.len(),
+                fits: FitCounts::new(fits, cached),
+                work: Some(work),
+                infeasible: candidate
+                    .settings
+                    .iter()
+                    .zip(foreseen)
+                    .filter(|(_, found)| !found.is_empty())
+                    .map(|(setting, found)| PlanInfeasible {
+                        setting: candidate.id(setting),
+                        fits: found.clone(),
+                    })
+                    .collect(),
+            },
+        )
         .collect();
     let summary = summary::Plan {
         experiment: plan.spec.spec.experiment.name.clone(),
@@ -122,6 +136,30 @@ fn plan_spec(args: &PlanArgs) -> anyhow::Result<(summary::Plan, String)> {
             c.fits.to_fit,
             c.work.unwrap_or_default()
         );
+    }
+    let infeasible: Vec<&PlanInfeasible> = summary
+        .candidates
+        .iter()
+        .flat_map(|c| &c.infeasible)
+        .collect();
+    if !infeasible.is_empty() {
+        let _ = writeln!(
+            out,
+            "\ninfeasible before fitting ({} setting(s); left out of the choice, the run goes on):",
+            infeasible.len()
+        );
+        for setting in infeasible {
+            let first = &setting.fits[0];
+            let more = match setting.fits.len() {
+                1 => String::new(),
+                n => format!(", and {} more fit(s)", n - 1),
+            };
+            let _ = writeln!(
+                out,
+                "  {}: {} ({}{more})",
+                setting.setting, first.reason, first.fold
+            );
+        }
     }
     let all_work: u64 = summary.candidates.iter().filter_map(|c| c.work).sum();
     let nested = if nested_folds > 0 {

@@ -104,23 +104,25 @@ pub(crate) fn predict(args: &PredictArgs) -> anyhow::Result<()> {
             anyhow::anyhow!("column {} has no training value", candidate.features[j])
         })?;
     }
-    let fits = candidate
-        .family
-        .fit_classes(
+    // Other settings of the grid may be infeasible on these rows; the kept
+    // one was fitted on them before.
+    let y_train = plan.target_of(train);
+    let fits = crate::execute::feasible::fit_tolerant(candidate, &x_train, false, |family| {
+        family.fit_classes(
             &x_train,
-            &plan.target_of(train),
+            &y_train,
             &x_new,
             plan.full_fit.final_fit,
             plan.task.class_count(),
         )
-        .map_err(|cause| crate::error::FitFailure {
-            candidate: candidate.stem.clone(),
-            fold: "the fit on all non-test rows".into(),
-            cause,
-        })?;
+    });
     let predicted = &fits
         .get(setting)
         .ok_or_else(|| anyhow::anyhow!("the refit of {chosen} returned no fit for it"))?
+        .as_ref()
+        .map_err(|reason| {
+            anyhow::anyhow!("the refit of {chosen} on all non-test rows failed: {reason}")
+        })?
         .eval_pred;
 
     // CV+ intervals from the same fold predictions the report's came from

@@ -114,6 +114,13 @@ fn profile(table: &Path) -> Result<(Vec<ColumnProfile>, Written), DataError> {
         path: table.to_path_buf(),
         message,
     };
+    // A Parquet table is profiled through the CSV text of its rows
+    // (docs/spec.md, "Parquet tables").
+    let bytes = if crate::data::parquet::is_parquet(table, &bytes) {
+        crate::data::parquet::to_csv(bytes, None).map_err(table_error)?
+    } else {
+        bytes
+    };
     let delimiter = crate::data::format::guess_delimiter(&bytes, b',').map_or(b',', |(d, _)| d);
     let first_rows: String = String::from_utf8_lossy(&bytes[..bytes.len().min(1 << 16)]).into();
     // A decimal comma: some cell like "3,5" between other delimiters and none

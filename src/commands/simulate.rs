@@ -125,6 +125,7 @@ pub(super) fn plan(loaded: LoadedSpec, cache: &Cache) -> anyhow::Result<(summary
             settings: candidate.settings.len(),
             fits: FitCounts::new(fits[c], cached[c]),
             work: None,
+            infeasible: Vec::new(),
         })
         .collect();
     for c in &candidates {

@@ -408,6 +408,17 @@ pub(crate) struct PlanCandidate {
     pub(super) fits: FitCounts,
     /// Training rows × settings still to fit (a table's plan only).
     pub(super) work: Option<u64>,
+    /// Settings known to be infeasible before fitting, with the fits in
+    /// which they are (a table's plan only; docs/spec.md, "Infeasible settings").
+    pub(super) infeasible: Vec<PlanInfeasible>,
+}
+
+/// One setting that cannot be fitted on some of its training rows.
+#[derive(Debug, Clone, Serialize)]
+pub(crate) struct PlanInfeasible {
+    /// The setting's id (`nearest-neighbors/k=60`).
+    pub(super) setting: String,
+    pub(super) fits: Vec<crate::execute::feasible::Infeasible>,
 }
 
 /// Fits in all, found in the cache, and still to compute.

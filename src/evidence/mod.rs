@@ -95,7 +95,11 @@ fn paired_table(
     for (c, candidate) in plan.candidates.iter().enumerate() {
         let mut least: Option<usize> = None;
         for (i, &(ci, _)) in locate.iter().enumerate() {
-            if ci == c && least.is_none_or(|l| scores[i].effective_df < scores[l].effective_df) {
+            // An infeasible setting (no finite score) is no rival.
+            if ci == c
+                && scores[i].cv_score.is_finite()
+                && least.is_none_or(|l| scores[i].effective_df < scores[l].effective_df)
+            {
                 least = Some(i);
             }
         }

@@ -259,12 +259,14 @@ fn score_settings(
     let mut locate = Vec::new();
     for (c, (candidate, fit)) in plan.candidates.iter().zip(fits).enumerate() {
         for (s, setting) in candidate.settings.iter().enumerate() {
-            scores.push(SettingScore::new(
+            let mut score = SettingScore::new(
                 candidate.id(setting),
                 fit.full[s].effective_df,
                 f64::NAN,
                 assess::fold_scores(plan.scorer(), &fit.fold_predictions, &fold_targets, s),
-            ));
+            );
+            execute::feasible::set_aside(&mut score, &fit.infeasible[s]);
+            scores.push(score);
             locate.push((c, s));
         }
     }

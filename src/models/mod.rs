@@ -13,6 +13,7 @@ pub(crate) mod discriminant;
 mod double_double;
 #[cfg(test)]
 mod effective_df_tests;
+mod feasibility;
 mod kd_tree;
 pub(crate) mod lasso;
 mod least_squares;
@@ -39,6 +40,7 @@ use std::fmt;
 use nalgebra::DMatrix;
 
 use crate::error::FitError;
+pub use crate::models::feasibility::TrainingShape;
 use crate::models::registry::{FamilyDef, SettingProblem, Settings};
 
 /// Every family a spec may name, in the order the schema and the docs list
@@ -176,6 +178,16 @@ pub trait Family: Send + Sync + std::fmt::Debug {
     /// but a line through the origin centre or scale their features).
     fn needs_spread(&self) -> bool {
         true
+    }
+
+    /// Why setting `setting` (an index into [`Family::settings`]) cannot be
+    /// fitted on training rows of this `shape`, when that is known before
+    /// fitting (too few rows, too few distinct values of a feature); `None`
+    /// when it may be fitted. A setting that fails while fitting is caught
+    /// by the executor either way; this lets `heldout plan` list it and
+    /// the grid skip it (docs/spec.md, "Infeasible settings").
+    fn infeasible(&self, _setting: usize, _shape: &TrainingShape<'_>) -> Option<String> {
+        None
     }
 
     /// Fits every setting of the grid on the request's training rows and

@@ -27,7 +27,7 @@ use super::registry::{
 };
 use super::{
     mean_and_sd, neighbour_vote, require_spread, Family, FitRequest, LeaveOneOut, Setting,
-    SettingFit,
+    SettingFit, TrainingShape,
 };
 use crate::error::FitError;
 
@@ -344,6 +344,16 @@ impl Family for NearestNeighbors {
 
     fn settings(&self) -> Vec<Setting> {
         self.ks.iter().map(|&k| Setting::count("k", k)).collect()
+    }
+
+    fn infeasible(&self, setting: usize, shape: &TrainingShape<'_>) -> Option<String> {
+        let k = self.ks[setting];
+        (k > shape.rows()).then(|| {
+            format!(
+                "k={k} needs at least {k} training rows, the fit has {}",
+                shape.rows()
+            )
+        })
     }
 
     fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {

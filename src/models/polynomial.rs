@@ -21,7 +21,7 @@ use super::least_squares::{
 use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT};
 use super::{
     leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
-    Setting, SettingFit,
+    Setting, SettingFit, TrainingShape,
 };
 use crate::error::FitError;
 
@@ -257,6 +257,32 @@ fn unmap_monomial(b: &[f64], centre: f64, half_width: f64) -> Vec<f64> {
 }
 
 impl Family for Polynomial {
+    fn infeasible(&self, setting: usize, shape: &TrainingShape<'_>) -> Option<String> {
+        let degree = self.degrees[setting];
+        let columns = self.columns_for(degree);
+        if columns > shape.rows() {
+            return Some(format!(
+                "degree={degree} needs at least {columns} training rows, the fit has {}",
+                shape.rows()
+            ));
+        }
+        // Powers 0..=degree of a feature with fewer distinct values than
+        // degree + 1 are linearly dependent (a 0/1 feature: x² = x).
+        if !self.intercept {
+            return None;
+        }
+        self.features.iter().enumerate().find_map(|(j, feature)| {
+            let distinct = shape.distinct(j);
+            (degree >= distinct).then(|| {
+                format!(
+                    "degree={degree} needs at least {} distinct values of feature \"{feature}\", \
+                     the training rows have {distinct}",
+                    degree + 1
+                )
+            })
+        })
+    }
+
     fn settings(&self) -> Vec<Setting> {
         self.degrees
             .iter()

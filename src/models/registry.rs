@@ -437,6 +437,51 @@ impl Settings {
         )
     }
 
+    /// These settings with grid key `key` narrowed to `values` (a part of
+    /// the grid, in grid order), to refit only the settings that can be
+    /// fitted (docs/spec.md, "Infeasible settings").
+    pub(crate) fn narrowed(&self, key: &str, values: &[super::SettingValue]) -> Settings {
+        use super::SettingValue;
+        let mut narrowed = self.clone();
+        if let Some((_, value)) = narrowed.values.iter_mut().find(|(k, _)| *k == key) {
+            *value = match &*value {
+                // A grid read as numbers may label its settings as counts
+                // (a spline's whole df), and the other way round.
+                KeyValue::Counts(_) => KeyValue::Counts(
+                    values
+                        .iter()
+                        .filter_map(|v| match v {
+                            SettingValue::Count(n) => Some(*n),
+                            SettingValue::Real(r) => Some(*r as usize),
+                            _ => None,
+                        })
+                        .collect(),
+                ),
+                KeyValue::Reals(_) => KeyValue::Reals(
+                    values
+                        .iter()
+                        .filter_map(|v| match v {
+                            SettingValue::Real(r) => Some(*r),
+                            SettingValue::Count(n) => Some(*n as f64),
+                            _ => None,
+                        })
+                        .collect(),
+                ),
+                KeyValue::Words(_) => KeyValue::Words(
+                    values
+                        .iter()
+                        .filter_map(|v| match v {
+                            SettingValue::Word(w) => Some((*w).to_string()),
+                            _ => None,
+                        })
+                        .collect(),
+                ),
+                other => other.clone(),
+            };
+        }
+        narrowed
+    }
+
     /// A flag (families declare a default for every flag they take).
     pub(crate) fn flag(&self, key: &str) -> bool {
         matches!(self.get(key), Some(KeyValue::Flag(true)))

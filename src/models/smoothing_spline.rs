@@ -55,7 +55,7 @@ use self::hermite::{Factor, HermiteSystem, Singular};
 use super::registry::{FamilyDef, SettingProblem, Settings, PENALTY, SMOOTHER_DF};
 use super::{
     leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
-    Setting, SettingFit, SmootherGrid,
+    Setting, SettingFit, SmootherGrid, TrainingShape,
 };
 use crate::error::FitError;
 
@@ -537,6 +537,22 @@ impl SmoothingSpline {
 impl Family for SmoothingSpline {
     fn settings(&self) -> Vec<Setting> {
         self.grid.settings()
+    }
+
+    fn infeasible(&self, setting: usize, shape: &TrainingShape<'_>) -> Option<String> {
+        // The same bound as the fit's own check (df in [2, distinct values]).
+        let SmootherGrid::Df(values) = &self.grid else {
+            return None;
+        };
+        let df = values[setting];
+        let distinct = shape.distinct(0);
+        (df != 2.0 && df > distinct as f64).then(|| {
+            format!(
+                "df={df} exceeds the {distinct} distinct values of feature \"{}\" in the \
+                 training rows (a smoothing spline's df lies in [2, distinct values])",
+                self.features[0]
+            )
+        })
     }
 
     fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {

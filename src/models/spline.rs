@@ -34,7 +34,7 @@ use super::least_squares::{cumulative_leverages, predict_leading, NestedLeastSqu
 use super::registry::{check_whole_grid, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings};
 use super::{
     leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
-    Setting, SettingFit,
+    Setting, SettingFit, TrainingShape,
 };
 use crate::error::FitError;
 
@@ -300,6 +300,30 @@ impl Spline {
 impl Family for Spline {
     fn settings(&self) -> Vec<Setting> {
         self.dfs.iter().map(|&d| Setting::count("df", d)).collect()
+    }
+
+    fn infeasible(&self, setting: usize, shape: &TrainingShape<'_>) -> Option<String> {
+        let df = self.dfs[setting];
+        let columns = self.columns_for(df);
+        if columns > shape.rows() {
+            return Some(format!(
+                "df={df} needs at least {columns} training rows, the fit has {}",
+                shape.rows()
+            ));
+        }
+        // An intercept and df basis columns of a feature take df + 1
+        // distinct values to be independent (ties among the knots can fail
+        // earlier; the fit itself says so).
+        self.features.iter().enumerate().find_map(|(j, feature)| {
+            let distinct = shape.distinct(j);
+            (df >= distinct).then(|| {
+                format!(
+                    "df={df} needs at least {} distinct values of feature \"{feature}\", the \
+                     training rows have {distinct}",
+                    df + 1
+                )
+            })
+        })
     }
 
     fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {

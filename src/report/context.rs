@@ -93,12 +93,22 @@ pub(crate) fn build(results: &Results, inputs: &ReportInputs<'_>, figures: &[Fig
     }
     let (simulation_figures, figure_views): (Vec<FigureView<'_>>, Vec<FigureView<'_>>) =
         figure_views.into_iter().partition(|f| f.simulation);
-    // The tables list each candidate's settings by effective df.
-    let candidates: Vec<&CandidateResult> =
-        super::table_order(&results.candidates, |c| &c.id, |c| c.effective_df)
-            .into_iter()
-            .map(|i| &results.candidates[i])
-            .collect();
+    // The tables list each candidate's settings by effective df; settings
+    // that could not be fitted somewhere (NaN sorts last) after the others.
+    let candidates: Vec<&CandidateResult> = super::table_order(
+        &results.candidates,
+        |c| &c.id,
+        |c| {
+            if c.infeasible.is_empty() {
+                c.effective_df
+            } else {
+                f64::NAN
+            }
+        },
+    )
+    .into_iter()
+    .map(|i| &results.candidates[i])
+    .collect();
     let (simulation_rows, choice_rows) = match &results.simulation {
         Some(sim) => {
             let order = super::table_order(&sim.simulation, |s| &s.id, |s| s.effective_df);

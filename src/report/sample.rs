@@ -29,6 +29,7 @@ pub(crate) fn results(settings: &[Setting<'_>]) -> Results {
             cv_se: se,
             fold_scores: vec![cv; 5],
             test_score: None,
+            infeasible: Vec::new(),
         })
         .collect();
     let best = candidates

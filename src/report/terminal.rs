@@ -40,6 +40,18 @@ pub(crate) fn render(results: &Results) -> String {
             (false, true) => "  (best cv)",
             (false, false) => "",
         };
+        if let Some(first) = c.infeasible.first() {
+            let more = match c.infeasible.len() {
+                1 => String::new(),
+                n => format!(", and {} more", n - 1),
+            };
+            let _ = writeln!(
+                out,
+                "{:<id_width$}  infeasible: {} ({}{more})",
+                c.id, first.reason, first.fold
+            );
+            continue;
+        }
         let _ = writeln!(
             out,
             "{:<id_width$}  {:>8}  {:>10}  {:>10}  {:>9}{mark}",

@@ -333,7 +333,7 @@ pub(crate) fn run_replicate(
     for (candidate, fitted) in plan.candidates.iter().zip(&fits) {
         for (s, setting) in candidate.settings.iter().enumerate() {
             let fit = &fitted.full[s];
-            let score = SettingScore::new(
+            let mut score = SettingScore::new(
                 candidate.id(setting),
                 fit.effective_df,
                 metric.score(&replicate.y, &fit.train_pred),
@@ -344,6 +344,10 @@ pub(crate) fn run_replicate(
                     s,
                 ),
             );
+            // Infeasible in this replicate: out of its choice; its NaN
+            // predictions make the setting's decomposition undefined
+            // (docs/simulation.md, "Infeasible settings").
+            crate::execute::feasible::set_aside(&mut score, &fitted.infeasible[s]);
             if plan.setup.classification {
                 // Rows hold P(0), P(1) and the predicted class.
                 let positive =
@@ -381,6 +385,15 @@ pub(crate) fn run_replicate(
             outcome.effective_df.push(fit.effective_df);
             scores.push(score);
         }
+    }
+    let infeasible: Vec<_> = fits.iter().map(|fit| fit.infeasible.clone()).collect();
+    if crate::execute::feasible::all_infeasible(&infeasible) {
+        return Err(FitFailure {
+            candidate: "every candidate".into(),
+            fold: format!("replicate {}", replicate.index + 1),
+            cause: crate::execute::feasible::none_feasible(&experiment, &infeasible),
+        }
+        .into());
     }
     outcome.chosen = assess::choose(&scores, metric, plan.spec.spec.choose.rule)
         .map_err(|cause| FitFailure {

@@ -182,3 +182,24 @@ fn an_unknown_family_is_placed_and_the_near_name_offered() {
     assert!(err.starts_with("s.toml:12:10:"), "{err}");
     assert!(err.contains("did you mean `polynomial`"), "{err}");
 }
+
+#[test]
+fn every_default_grid_narrows_to_each_of_its_settings() {
+    // Infeasible settings are left out by rebuilding the family on a part
+    // of its grid (execute/feasible.rs); that must give exactly that part.
+    for def in crate::models::registry::FAMILIES {
+        let families = check(&default_spec(def)).unwrap_or_else(|e| panic!("{}: {e}", def.name));
+        let plan = crate::plan::CandidatePlan::from_spec(&families[0]);
+        let all = plan.settings.clone();
+        for (s, setting) in all.iter().enumerate() {
+            let alone = crate::execute::feasible::restricted(&plan, &[s])
+                .unwrap_or_else(|e| panic!("{} setting {s}: {e}", def.name));
+            assert_eq!(alone.settings(), vec![*setting], "{}", def.name);
+        }
+        if all.len() > 1 {
+            let tail: Vec<usize> = (1..all.len()).collect();
+            let rest = crate::execute::feasible::restricted(&plan, &tail).unwrap();
+            assert_eq!(rest.settings(), all[1..].to_vec(), "{}", def.name);
+        }
+    }
+}

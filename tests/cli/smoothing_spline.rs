@@ -89,7 +89,7 @@ fn df_grid_runs_and_reports_the_requested_df() {
 }
 
 #[test]
-fn df_above_the_distinct_values_names_the_setting() {
+fn df_above_the_distinct_values_is_set_aside_naming_the_setting() {
     let dir = tempfile::tempdir().expect("cannot create a temporary directory");
     write_table(dir.path());
     std::fs::write(
@@ -97,14 +97,25 @@ fn df_above_the_distinct_values_names_the_setting() {
         SPEC.replace("[2.5, 4, 8]", "[4, 60]"),
     )
     .unwrap();
+    // df = 60 is infeasible (docs/spec.md, "Infeasible settings"); df = 4 is kept.
     let output = util::run_spec(dir.path(), "run");
-    assert_eq!(
-        output.status.code(),
-        Some(2),
-        "{}",
-        util::stderr_of(&output)
-    );
+    util::assert_success(&output);
+    let results = util::read_json(&dir.path().join("out/spline-df/results.json"));
+    let high = util::candidate(&results, "smoothing-spline/df=60");
+    assert!(high["cv_score"].is_null());
+    let reason = high["infeasible"][0]["reason"].as_str().unwrap();
+    assert!(reason.contains("df=60"), "{reason}");
+    assert!(reason.contains("distinct values"), "{reason}");
+    assert_eq!(results["chosen"], "smoothing-spline/df=4");
+    // With no feasible df left, the run stops naming the setting.
+    std::fs::write(
+        dir.path().join("spec.toml"),
+        SPEC.replace("[2.5, 4, 8]", "[60]"),
+    )
+    .unwrap();
+    let output = util::run_spec(dir.path(), "run");
     let stderr = util::stderr_of(&output);
+    assert_eq!(output.status.code(), Some(2), "{stderr}");
     assert!(stderr.contains("df=60"), "{stderr}");
     assert!(stderr.contains("distinct values"), "{stderr}");
 }

@@ -835,6 +835,7 @@ mod tests {
             cv_se: 0.0,
             fold_scores: vec![],
             test_score: None,
+            infeasible: Vec::new(),
         };
         let styles = family_styles(&[
             candidate("polynomial/degree=1"),
