@@ -154,6 +154,7 @@ pub(crate) fn load(
             .numeric
             .iter()
             .chain(&request.text)
+            .chain(&request.categorical)
             .cloned()
             .collect();
         let rows = parquet::to_csv(bytes, Some(&used)).map_err(table_error)?;
