@@ -506,6 +506,16 @@ pub(crate) fn assemble(
                     plan,
                     &plan.candidates[c],
                     chosen_fit.coefficients.as_deref(),
+                    categorical::columns(plan)
+                        .into_iter()
+                        .filter(|column| plan.candidates[c].features.contains(&column.column))
+                        .map(|column| kept_model::Encoding {
+                            column: column.column,
+                            levels: column.levels,
+                            reference: column.reference,
+                            pooled: column.pooled,
+                        })
+                        .collect(),
                 )
             }),
             predictions,

@@ -35,11 +35,18 @@ pub struct KeptModel {
     /// target); empty for [`FORM_TRAINING_ROWS`].
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub terms: Vec<Term>,
+    /// The encoding of each categorical feature among `features`.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub encodings: Vec<Encoding>,
     /// How a prediction is made, in words.
     pub prediction: String,
 }
 
-/// One design column and its coefficient in the raw units of its feature.
+/// One design column and its coefficient in the raw units of its feature:
+/// coefficient × value^power, where the value is the feature's number, or
+/// for a categorical feature (`level` given) 1 when the row's label is that
+/// level and 0 otherwise; an interaction multiplies by a second factor
+/// (`times`).
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Term {
     /// The name in `final.coefficients`.
@@ -53,8 +60,36 @@ pub struct Term {
     pub feature: Option<String>,
     /// The power of the feature (0 for the intercept).
     pub power: u32,
+    /// A categorical feature: the level whose indicator this term is
+    /// (`other` stands for the pooled levels listed in `encodings`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub level: Option<String>,
+    /// An interaction: the second factor the term is multiplied by.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub times: Option<Factor>,
     #[serde(deserialize_with = "lenient::number")]
     pub coefficient: f64,
+}
+
+/// The second factor of an interaction term: a numeric feature's value, or
+/// a categorical feature's indicator of `level`.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Factor {
+    pub feature: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub level: Option<String>,
+}
+
+/// How the fit on all non-test rows encoded one categorical feature: its
+/// levels in byte order, the reference level (no term: it scores 0, as does
+/// a level the fit never saw), and the rare levels pooled into `other`.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Encoding {
+    pub column: String,
+    pub levels: Vec<String>,
+    pub reference: String,
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub pooled: Vec<String>,
 }
 
 /// The kept model of `candidate` from its final fit's named coefficients.
@@ -62,6 +97,7 @@ pub(crate) fn describe(
     plan: &ExperimentPlan,
     candidate: &CandidatePlan,
     coefficients: Option<&[(String, f64)]>,
+    encodings: Vec<Encoding>,
 ) -> KeptModel {
     let labels = plan.task.classes.as_ref().map(|c| c.labels.as_slice());
     let terms = coefficients.and_then(|named| {
@@ -74,7 +110,9 @@ pub(crate) fn describe(
         Some(terms) if !terms.is_empty() => {
             let prediction = match labels {
                 None => "the prediction is the sum over the terms of coefficient × feature^power \
-                         (the intercept's power is 0), with the features in their raw units"
+                         (the intercept's power is 0), with the features in their raw units; a \
+                         term with a level counts 1 when the row's label is that level, 0 \
+                         otherwise, and a term with `times` is multiplied by that factor"
                     .to_string(),
                 Some(_) => "each named class's score is the sum over its terms of coefficient × \
                             feature^power (the intercept's power is 0), with the features in \
@@ -109,6 +147,7 @@ pub(crate) fn describe(
         features: candidate.features.clone(),
         form: form.to_string(),
         terms,
+        encodings,
         prediction,
     }
 }
@@ -138,28 +177,58 @@ fn term(
             class,
             feature: None,
             power: 0,
+            level: None,
+            times: None,
             coefficient,
         });
     }
-    // A feature's own name first, so a feature named `x^2` is never taken
-    // for the square of a feature named `x`.
-    let exact = features
-        .iter()
-        .find(|f| f.as_str() == column)
-        .map(|f| (f, 1));
-    let power_of = || {
-        features.iter().find_map(|feature| {
-            let exponent = column.strip_prefix(feature.as_str())?.strip_prefix('^')?;
-            let power: u32 = exponent.parse().ok()?;
-            (exponent == power.to_string() && power >= 2).then_some((feature, power))
-        })
+    let (main, times) = match factor(column, features) {
+        // A whole name first: a feature may itself contain ':'.
+        Some(main) => (main, None),
+        None => {
+            let (left, right) = column.split_once(':')?;
+            let (feature, power, level) = factor(left, features)?;
+            let (second, second_power, second_level) = factor(right, features)?;
+            if second_power != 1 {
+                return None;
+            }
+            (
+                (feature, power, level),
+                Some(Factor {
+                    feature: second.clone(),
+                    level: second_level,
+                }),
+            )
+        }
     };
-    exact.or_else(power_of).map(|(feature, power)| Term {
+    let (feature, power, level) = main;
+    Some(Term {
         name: name.to_string(),
-        class: class.clone(),
+        class,
         feature: Some(feature.clone()),
         power,
+        level,
+        times,
         coefficient,
+    })
+}
+
+/// One factor of a column name: `<feature>`, `<feature>^<power>` or
+/// `<feature>=<level>`, matched exactly against `features`.
+fn factor<'f>(column: &str, features: &'f [String]) -> Option<(&'f String, u32, Option<String>)> {
+    // A feature's own name first, so a feature named `x^2` is never taken
+    // for the square of a feature named `x`.
+    if let Some(feature) = features.iter().find(|f| f.as_str() == column) {
+        return Some((feature, 1, None));
+    }
+    features.iter().find_map(|feature| {
+        let rest = column.strip_prefix(feature.as_str())?;
+        if let Some(level) = rest.strip_prefix('=') {
+            return Some((feature, 1, Some(level.to_string())));
+        }
+        let exponent = rest.strip_prefix('^')?;
+        let power: u32 = exponent.parse().ok()?;
+        (exponent == power.to_string() && power >= 2).then_some((feature, power, None))
     })
 }
 

@@ -10,19 +10,24 @@ use serde_json::Value;
 
 use crate::util;
 
+/// The invented sites of the table's text column.
+const SITES: [&str; 3] = ["north", "south", "west"];
+
 /// An invented table: two features on different scales, a cubic trend in
 /// the first, a slope in the second and a deterministic wobble as noise.
 fn write_table(dir: &Path) -> Vec<(f64, f64)> {
-    let mut text = String::from("id,x1,x2,y\n");
+    let mut text = String::from("id,x1,x2,site,y\n");
     let mut rows = Vec::new();
     for i in 0..150_u32 {
         let x1 = f64::from((i * 37) % 101) / 10.0 - 5.0;
         let x2 = f64::from((i * 53) % 89) * 12.5;
+        let site = SITES[(i % 7 % 3) as usize];
         let y = 10.0 + 0.5 * x1 - 0.2 * x1 * x1
             + 0.03 * x1 * x1 * x1
             + 0.002 * x2
+            + if site == "south" { 0.8 + 0.1 * x1 } else { 0.0 }
             + 0.3 * (f64::from(i) * 1.7).sin();
-        text.push_str(&format!("r{i},{x1},{x2},{y}\n"));
+        text.push_str(&format!("r{i},{x1},{x2},{site},{y}\n"));
         rows.push((x1, x2));
     }
     std::fs::write(dir.join("table.csv"), text).unwrap();
@@ -30,6 +35,10 @@ fn write_table(dir: &Path) -> Vec<(f64, f64)> {
 }
 
 fn write_spec(dir: &Path, candidate: &str) {
+    write_spec_with(dir, candidate, r#"["x1", "x2"]"#);
+}
+
+fn write_spec_with(dir: &Path, candidate: &str, features: &str) {
     let spec = format!(
         r#"[experiment]
 name = "kept"
@@ -38,7 +47,7 @@ seed = 7
 [data]
 table = "table.csv"
 target = "y"
-features = ["x1", "x2"]
+features = {features}
 key = "id"
 
 [split]
@@ -150,6 +159,73 @@ fn ridge_terms_applied_by_hand_give_the_reports_test_predictions() {
         "ridge",
         &[("intercept", 0), ("x1", 1), ("x2", 1)],
     );
+}
+
+#[test]
+fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predictions() {
+    // A level's term counts 1 on rows of that level; the reference level
+    // (the most frequent in the training rows) has no term and scores 0.
+    let dir = tempfile::tempdir().unwrap();
+    write_table(dir.path());
+    let sites: Vec<String> = std::fs::read_to_string(dir.path().join("table.csv"))
+        .unwrap()
+        .lines()
+        .skip(1)
+        .map(|line| line.split(',').nth(3).unwrap().to_string())
+        .collect();
+    let x1: Vec<f64> = std::fs::read_to_string(dir.path().join("table.csv"))
+        .unwrap()
+        .lines()
+        .skip(1)
+        .map(|line| line.split(',').nth(1).unwrap().parse().unwrap())
+        .collect();
+    write_spec_with(
+        dir.path(),
+        "family = \"ridge\"\npenalty = [2.5]\ninteractions = [[\"x1\", \"site\"]]",
+        r#"["x1", "site"]"#,
+    );
+    let (results, test) = run(dir.path());
+    let model = &results["final"]["model"];
+    assert_eq!(model["form"], "coefficients", "{model}");
+    let encoding = &model["encodings"][0];
+    assert_eq!(encoding["column"], "site");
+    assert_eq!(encoding["levels"], serde_json::json!(SITES));
+    let reference = encoding["reference"].as_str().unwrap();
+    let terms = model["terms"].as_array().unwrap();
+    // Intercept, x1, two level indicators, two slopes per level.
+    assert_eq!(terms.len(), 6, "{model}");
+    assert!(terms.iter().all(|t| t["level"] != reference));
+    let factor = |feature: &Value, level: &Value, row: usize| -> f64 {
+        match (feature.as_str(), level.as_str()) {
+            (None, _) => 1.0,
+            (Some("x1"), None) => x1[row],
+            (Some("site"), Some(level)) => f64::from(u8::from(sites[row] == level)),
+            other => panic!("unexpected factor {other:?}"),
+        }
+    };
+    let predicted = results["final"]["predictions"]["test"]["predicted"]
+        .as_array()
+        .unwrap();
+    assert_eq!(predicted.len(), test.len());
+    for (&row, want) in test.iter().zip(predicted) {
+        let want = want.as_f64().unwrap();
+        let got: f64 = terms
+            .iter()
+            .map(|t| {
+                let second = match t.get("times") {
+                    Some(times) => factor(&times["feature"], &times["level"], row),
+                    None => 1.0,
+                };
+                t["coefficient"].as_f64().unwrap()
+                    * factor(&t["feature"], &t["level"], row)
+                    * second
+            })
+            .sum();
+        assert!(
+            (got - want).abs() <= 1e-9 * want.abs(),
+            "row {row}: {got} by hand against the report's {want}"
+        );
+    }
 }
 
 #[test]
