@@ -110,9 +110,7 @@ pub(crate) fn describe(
         Some(terms) if !terms.is_empty() => {
             let prediction = match labels {
                 None => "the prediction is the sum over the terms of coefficient × feature^power \
-                         (the intercept's power is 0), with the features in their raw units; a \
-                         term with a level counts 1 when the row's label is that level, 0 \
-                         otherwise, and a term with `times` is multiplied by that factor"
+                         (the intercept's power is 0), with the features in their raw units"
                     .to_string(),
                 Some(_) => "each named class's score is the sum over its terms of coefficient × \
                             feature^power (the intercept's power is 0), with the features in \
@@ -121,6 +119,15 @@ pub(crate) fn describe(
                             probability is exp(score) divided by the sum of exp(score) over the \
                             classes"
                     .to_string(),
+            };
+            let prediction = if terms.iter().any(|t| t.level.is_some() || t.times.is_some()) {
+                format!(
+                    "{prediction}; a term with a level counts 1 when the row's label is that \
+                     level and 0 otherwise (the reference level and a level the fit never saw \
+                     have no term), and a term with `times` is multiplied by that factor"
+                )
+            } else {
+                prediction
             };
             let prediction = if plan.spec.data().missing == crate::spec::MissingPolicy::Impute {
                 format!(
