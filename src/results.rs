@@ -443,6 +443,9 @@ pub(crate) fn assemble(
         fold_sizes.clone().min().unwrap_or(0),
         fold_sizes.max().unwrap_or(0),
     ];
+    // Counting unseen levels walks every fold: once, for the data section
+    // and the kept model's encodings alike.
+    let categorical_columns = categorical::columns(plan);
     Ok(Results {
         schema: SCHEMA.to_string(),
         experiment: spec.experiment.name.clone(),
@@ -471,7 +474,7 @@ pub(crate) fn assemble(
             order: data.order.clone(),
             unterminated: plan.table.unterminated,
             missing: missing_columns(plan),
-            categorical: categorical::columns(plan),
+            categorical: categorical_columns.clone(),
         },
         split: SplitSummary {
             method: spec.split.method,
@@ -506,7 +509,7 @@ pub(crate) fn assemble(
                     plan,
                     &plan.candidates[c],
                     chosen_fit.coefficients.as_deref(),
-                    categorical::columns(plan)
+                    categorical_columns
                         .into_iter()
                         .filter(|column| plan.candidates[c].features.contains(&column.column))
                         .map(|column| kept_model::Encoding {

@@ -167,18 +167,14 @@ fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predi
     // (the most frequent in the training rows) has no term and scores 0.
     let dir = tempfile::tempdir().unwrap();
     write_table(dir.path());
-    let sites: Vec<String> = std::fs::read_to_string(dir.path().join("table.csv"))
-        .unwrap()
+    let table = std::fs::read_to_string(dir.path().join("table.csv")).unwrap();
+    let cells: Vec<Vec<&str>> = table
         .lines()
         .skip(1)
-        .map(|line| line.split(',').nth(3).unwrap().to_string())
+        .map(|line| line.split(',').collect())
         .collect();
-    let x1: Vec<f64> = std::fs::read_to_string(dir.path().join("table.csv"))
-        .unwrap()
-        .lines()
-        .skip(1)
-        .map(|line| line.split(',').nth(1).unwrap().parse().unwrap())
-        .collect();
+    let x1: Vec<f64> = cells.iter().map(|c| c[1].parse().unwrap()).collect();
+    let sites: Vec<&str> = cells.iter().map(|c| c[3]).collect();
     write_spec_with(
         dir.path(),
         "family = \"ridge\"\npenalty = [2.5]\ninteractions = [[\"x1\", \"site\"]]",
