@@ -17,6 +17,7 @@ pub(crate) mod encode;
 pub(crate) mod format;
 pub(crate) mod missing;
 pub(crate) mod parquet;
+mod rows;
 
 pub(crate) use format::TableFormat;
 
@@ -106,9 +107,6 @@ fn shorten(text: &str) -> String {
     shown
 }
 
-/// How often, in bytes parsed, [`load`] reports its progress.
-const REPORT_EVERY: u64 = 1 << 20;
-
 /// Reads `path` (already resolved against the spec folder); `shown` is the
 /// path as messages should print it. `on_read(parsed, total)` is told the
 /// bytes parsed so far: once with 0 when the file has been read, then about
@@ -165,14 +163,11 @@ pub(crate) fn load(
     };
     let total = bytes.len() as u64;
     on_read(0, total);
-    let mut next_report = REPORT_EVERY;
 
-    let mut reader = csv::ReaderBuilder::new()
+    let header = csv::ReaderBuilder::new()
         .has_headers(true)
         .delimiter(request.format.delimiter)
-        .flexible(false)
-        .from_reader(bytes.as_slice());
-    let header = reader
+        .from_reader(bytes.as_slice())
         .headers()
         .map_err(|e| table_error(format!("cannot read the header: {e}")))?
         .clone();
@@ -247,189 +242,53 @@ pub(crate) fn load(
         .iter()
         .map(|name| Ok((name.clone(), position(name)?)))
         .collect::<Result<_, DataError>>()?;
-    let mut labels: Vec<Vec<String>> = vec![Vec::new(); categorical_at.len()];
-    let mut missing_categorical = vec![0usize; categorical_at.len()];
-
-    let mut numeric: BTreeMap<String, Vec<f64>> = request
-        .numeric
-        .iter()
-        .map(|n| (n.clone(), Vec::new()))
-        .collect();
-    let mut text: BTreeMap<String, Vec<String>> = request
-        .text
-        .iter()
-        .map(|n| (n.clone(), Vec::new()))
-        .collect();
-    let mut lines = Vec::new();
-    let mut row_numbers = Vec::new();
-    let mut dropped = 0;
-    let mut data_rows: u64 = 0;
-    let format = &request.format;
     let impute = request.missing == MissingPolicy::Impute;
-    let imputed: Vec<bool> = numeric_at
+    let columns = rows::Columns {
+        imputed: numeric_at
+            .iter()
+            .map(|(name, _)| impute && request.imputed.contains(name))
+            .collect(),
+        numeric: numeric_at,
+        text: text_at,
+        categorical: categorical_at,
+        header_len: header.len(),
+        request,
+        shown,
+    };
+    let mut progress = |parsed: u64| on_read(parsed, total);
+    let part = match rows::pieces(&bytes, rows::PIECE_BYTES) {
+        Some(ranges) => rows::read_in_pieces(&bytes, &ranges, &columns, &mut progress)?,
+        None => rows::read_rows(&bytes, true, 1, &columns, &mut progress)?,
+    };
+    drop(bytes);
+    let rows::Part {
+        numeric: numeric_columns,
+        text: text_columns,
+        labels,
+        missing_numeric,
+        missing_text,
+        missing_categorical,
+        mut lines,
+        records: mut row_numbers,
+        data_rows,
+        dropped,
+    } = part;
+    let rows::Columns {
+        numeric: numeric_at,
+        text: text_at,
+        categorical: categorical_at,
+        ..
+    } = columns;
+    let mut numeric: BTreeMap<String, Vec<f64>> = numeric_at
         .iter()
-        .map(|(name, _)| impute && request.imputed.contains(name))
+        .map(|(name, _)| name.clone())
+        .zip(numeric_columns)
         .collect();
-    let mut missing_numeric = vec![0usize; numeric_at.len()];
-    let mut missing_text = vec![0usize; text_at.len()];
-
-    // Byte records: only the cells that are used are checked as UTF-8.
-    let mut record = csv::ByteRecord::new();
-    loop {
-        let more = reader
-            .read_byte_record(&mut record)
-            .map_err(|e| match e.kind() {
-                csv::ErrorKind::UnequalLengths {
-                    pos,
-                    expected_len,
-                    len,
-                } => table_error(format!(
-                    "line {}: the row has {len} field{} but the header has {expected_len}",
-                    pos.as_ref().map_or(0, |p| p.line()),
-                    if *len == 1 { "" } else { "s" }
-                )),
-                _ => table_error(format!("cannot read the table: {e}")),
-            })?;
-        if !more {
-            break;
-        }
-        let parsed = reader.position().byte();
-        if parsed >= next_report {
-            on_read(parsed, total);
-            next_report = parsed + REPORT_EVERY;
-        }
-        data_rows += 1;
-        let line = record.position().map_or(data_rows + 1, |p| p.line());
-        let cell_error = |column: &str, message: String| DataError::Cell {
-            path: shown.to_path_buf(),
-            line,
-            column: column.to_string(),
-            message,
-        };
-
-        let mut values = Vec::with_capacity(numeric_at.len());
-        let mut has_missing = false;
-        for (j, (name, at)) in numeric_at.iter().enumerate() {
-            let raw = cell_text(&record, *at).map_err(|m| cell_error(name, m))?;
-            let trimmed = raw.trim();
-            if format.is_missing(trimmed) {
-                missing_numeric[j] += 1;
-                match request.missing {
-                    MissingPolicy::Impute if imputed[j] => values.push(f64::NAN),
-                    MissingPolicy::DropRows | MissingPolicy::Impute => has_missing = true,
-                    MissingPolicy::Error => {
-                        let what = if trimmed.is_empty() {
-                            "the cell is empty".to_string()
-                        } else {
-                            format!(
-                                "the cell holds \"{}\", a missing-value marker",
-                                shorten(raw)
-                            )
-                        };
-                        return Err(cell_error(
-                            name,
-                            format!(
-                                "{what}; fill it, or set `missing = \"drop-rows\"` or \
-                                 `missing = \"impute\"` in [data]"
-                            ),
-                        ));
-                    }
-                }
-                continue;
-            }
-            let value: f64 = format.parse_number(trimmed).ok_or_else(|| {
-                cell_error(
-                    name,
-                    format!(
-                        "cannot read \"{}\" as a number{}",
-                        shorten(raw),
-                        format.decimal_hint(trimmed)
-                    ),
-                )
-            })?;
-            if !value.is_finite() {
-                return Err(cell_error(
-                    name,
-                    format!("\"{}\" is not a finite number", shorten(raw)),
-                ));
-            }
-            if value.abs() > LARGEST_VALUE {
-                return Err(cell_error(
-                    name,
-                    format!(
-                        "\"{}\" is beyond ±{LARGEST_VALUE:e}: squares and sums of squares \
-                         of it overflow; rescale the column",
-                        shorten(raw)
-                    ),
-                ));
-            }
-            values.push(value);
-        }
-        let mut texts = Vec::with_capacity(text_at.len());
-        for (j, (name, at)) in text_at.iter().enumerate() {
-            let raw = cell_text(&record, *at)
-                .map_err(|m| cell_error(name, m))?
-                .trim();
-            // Text columns (labels, keys, groups, folds, times) take their
-            // cells as written: only an empty cell is missing ("NA" may be
-            // a region's name).
-            if raw.is_empty() {
-                missing_text[j] += 1;
-                if request.missing != MissingPolicy::Error {
-                    has_missing = true;
-                    continue;
-                }
-                return Err(cell_error(name, "the cell is empty".into()));
-            }
-            texts.push(raw.to_string());
-        }
-        let mut categories = Vec::with_capacity(categorical_at.len());
-        for (j, (name, at)) in categorical_at.iter().enumerate() {
-            let raw = cell_text(&record, *at)
-                .map_err(|m| cell_error(name, m))?
-                .trim();
-            if !format.is_missing(raw) {
-                categories.push(raw.to_string());
-                continue;
-            }
-            missing_categorical[j] += 1;
-            match request.missing {
-                // A level of its own, the same in every fit.
-                MissingPolicy::Impute => categories.push(encode::MISSING_LEVEL.to_string()),
-                MissingPolicy::DropRows => has_missing = true,
-                MissingPolicy::Error => {
-                    return Err(cell_error(
-                        name,
-                        format!(
-                            "the cell {} a missing-value marker; fill it, or set \
-                             `missing = \"drop-rows\"` or `missing = \"impute\"` (a level \
-                             named \"missing\") in [data]",
-                            if raw.is_empty() {
-                                "is empty,".to_string()
-                            } else {
-                                format!("holds \"{}\",", shorten(raw))
-                            }
-                        ),
-                    ))
-                }
-            }
-        }
-        if has_missing {
-            dropped += 1;
-            continue;
-        }
-        for (column, label) in labels.iter_mut().zip(categories) {
-            column.push(label);
-        }
-        for ((name, _), value) in numeric_at.iter().zip(values) {
-            numeric.get_mut(name).expect("requested column").push(value);
-        }
-        for ((name, _), value) in text_at.iter().zip(texts) {
-            text.get_mut(name).expect("requested column").push(value);
-        }
-        lines.push(line);
-        row_numbers.push(data_rows);
-    }
+    let mut text: BTreeMap<String, Vec<String>> = text_at
+        .iter()
+        .map(|(name, _)| name.clone())
+        .zip(text_columns)
+        .collect();
 
     on_read(total, total);
     // Growing by doubling leaves up to half of each column's capacity unused
@@ -689,7 +548,7 @@ mod tests {
         assert!(
             seen[..3]
                 .windows(2)
-                .all(|w| w[1].0 - w[0].0 >= REPORT_EVERY),
+                .all(|w| w[1].0 - w[0].0 >= rows::REPORT_EVERY),
             "{seen:?}"
         );
         assert!(seen[2].0 < seen[3].0, "{seen:?}");

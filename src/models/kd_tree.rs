@@ -188,6 +188,24 @@ impl KdTree {
         found.sort_unstable_by(by_distance_then_row);
     }
 
+    /// [`Self::nearest`] without the final sort: the same rows, in no
+    /// particular order, for a caller that needs only which rows they are.
+    pub(crate) fn nearest_unordered(&self, query: &[f64], k: usize, found: &mut Vec<(f64, usize)>) {
+        found.clear();
+        if self.nodes.is_empty() || k == 0 {
+            return;
+        }
+        let mut search = Search {
+            k,
+            found: std::mem::take(found),
+            bound: f64::INFINITY,
+        };
+        search.found.reserve(2 * k);
+        self.visit(0, query, None, &mut search);
+        search.keep_nearest();
+        *found = search.found;
+    }
+
     /// Depth-first search of node `index`, nearer child first.
     fn visit(&self, index: usize, query: &[f64], skip: Option<usize>, search: &mut Search) {
         let node = &self.nodes[index];

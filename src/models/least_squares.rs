@@ -90,12 +90,78 @@ impl NestedLeastSquares {
 pub(crate) struct RawRefinement<'a> {
     /// Maps basis coefficients γ to raw coefficients β (linear).
     pub(crate) to_raw: &'a dyn Fn(&[f64]) -> Vec<f64>,
-    /// Writes row `i` of the raw design, in double-double, into the slice
-    /// (one entry per raw coefficient). Rows are formed as they are needed:
-    /// holding the whole raw design would cost 16 bytes per entry.
-    pub(crate) raw_row: &'a dyn Fn(usize, &mut [DoubleDouble]),
-    pub(crate) rows: usize,
-    pub(crate) y: &'a [f64],
+    /// Where g = Xᵀ(y − Xβ) comes from.
+    pub(crate) sums: RawSums<'a>,
+}
+
+/// The two ways to form g = Xᵀ(y − Xβ) in double-double arithmetic: the
+/// same quantity, with rounding errors of the same order (each entry's
+/// error is a few units of 2⁻¹⁰⁶ times Σₖ |XᵀX|ⱼₖ|βₖ| + |Xᵀy|ⱼ either way).
+pub(crate) enum RawSums<'a> {
+    /// A pass over the rows per step: row i's residual, then its share of g.
+    Rows {
+        /// Writes row `i` of the raw design, in double-double, into the
+        /// slice (one entry per raw coefficient). Rows are formed as they are
+        /// needed: holding the whole raw design would cost 16 bytes per entry.
+        raw_row: &'a dyn Fn(usize, &mut [DoubleDouble]),
+        rows: usize,
+        y: &'a [f64],
+    },
+    /// From the moments XᵀX and Xᵀy, formed once in one pass: g = Xᵀy − XᵀXβ,
+    /// O(p²) per step instead of a pass over the rows. `positions[k]` is
+    /// where raw coefficient k sits among the moments' columns, so one set
+    /// of moments of the largest design serves every fit of a grid whose
+    /// raw columns are among its columns.
+    Moments {
+        moments: &'a RawMoments,
+        positions: &'a [usize],
+    },
+}
+
+/// XᵀX (upper triangle, row-major) and Xᵀy of a raw design, summed row by
+/// row in double-double arithmetic.
+pub(crate) struct RawMoments {
+    width: usize,
+    gram: Vec<DoubleDouble>,
+    cross: Vec<DoubleDouble>,
+}
+
+impl RawMoments {
+    /// The moments of the `rows` rows that `raw_row` writes (`width` entries
+    /// each) against `y`.
+    pub(crate) fn of(
+        raw_row: &dyn Fn(usize, &mut [DoubleDouble]),
+        rows: usize,
+        y: &[f64],
+        width: usize,
+    ) -> Self {
+        let mut gram = vec![DoubleDouble::ZERO; width * width];
+        let mut cross = vec![DoubleDouble::ZERO; width];
+        let mut row = vec![DoubleDouble::ZERO; width];
+        for (i, &yi) in y.iter().enumerate().take(rows) {
+            raw_row(i, &mut row);
+            for (j, &entry) in row.iter().enumerate() {
+                cross[j] = cross[j].add(entry.mul_f64(yi));
+                let upper = &mut gram[j * width + j..(j + 1) * width];
+                for (sum, &other) in upper.iter_mut().zip(&row[j..]) {
+                    *sum = sum.add(entry.mul(other));
+                }
+            }
+        }
+        RawMoments { width, gram, cross }
+    }
+
+    fn gram(&self, a: usize, b: usize) -> DoubleDouble {
+        let (a, b) = (a.min(b), a.max(b));
+        self.gram[a * self.width + b]
+    }
+}
+
+/// Whether one set of moments of a `largest`-column raw design costs less
+/// than passes over the rows for fits of `widths` columns: about p²/2
+/// double-double products per row once, against about 3 passes of 2p each.
+pub(crate) fn moments_pay(largest: usize, widths: impl Iterator<Item = usize>) -> bool {
+    largest * largest / 2 < 6 * widths.sum::<usize>()
 }
 
 impl NestedLeastSquares {
@@ -117,18 +183,33 @@ impl NestedLeastSquares {
             })
             .collect();
         for _ in 0..3 {
-            let mut g = vec![DoubleDouble::ZERO; raw_len];
-            let mut row = vec![DoubleDouble::ZERO; raw_len];
-            for i in 0..refine.rows {
-                (refine.raw_row)(i, &mut row);
-                let mut residual = DoubleDouble::from_f64(refine.y[i]);
-                for (entry, b) in row.iter().zip(&beta) {
-                    residual = residual.add(entry.mul_f64(*b).neg());
+            let g = match &refine.sums {
+                RawSums::Rows { raw_row, rows, y } => {
+                    let mut g = vec![DoubleDouble::ZERO; raw_len];
+                    let mut row = vec![DoubleDouble::ZERO; raw_len];
+                    for (i, &yi) in y.iter().enumerate().take(*rows) {
+                        raw_row(i, &mut row);
+                        let mut residual = DoubleDouble::from_f64(yi);
+                        for (entry, b) in row.iter().zip(&beta) {
+                            residual = residual.add(entry.mul_f64(*b).neg());
+                        }
+                        for (gk, entry) in g.iter_mut().zip(&row) {
+                            *gk = gk.add(entry.mul(residual));
+                        }
+                    }
+                    g
                 }
-                for (gk, entry) in g.iter_mut().zip(&row) {
-                    *gk = gk.add(entry.mul(residual));
-                }
-            }
+                RawSums::Moments { moments, positions } => positions
+                    .iter()
+                    .map(|&j| {
+                        let mut gj = moments.cross[j];
+                        for (&k, &b) in positions.iter().zip(&beta) {
+                            gj = gj.add(moments.gram(j, k).mul_f64(b).neg());
+                        }
+                        gj
+                    })
+                    .collect(),
+            };
             // h = Cᵀ g, then R⁻¹ R⁻ᵀ h, then back to raw units.
             let h: Vec<f64> = c_columns
                 .iter()

@@ -9,7 +9,7 @@ use nalgebra::DMatrix;
 
 use super::double_double::DoubleDouble;
 use super::least_squares::{
-    cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
+    cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement, RawSums,
 };
 use super::registry::{CategoricalUse, FamilyDef, SettingProblem, Settings, INTERCEPT};
 use super::{
@@ -183,9 +183,11 @@ impl Family for Linear {
                 gamma.as_slice(),
                 &RawRefinement {
                     to_raw: &to_raw,
-                    raw_row: &raw_row,
-                    rows: x_train.nrows(),
-                    y: y_train,
+                    sums: RawSums::Rows {
+                        raw_row: &raw_row,
+                        rows: x_train.nrows(),
+                        y: y_train,
+                    },
                 },
             );
             self.coefficient_names().into_iter().zip(values).collect()

@@ -204,6 +204,20 @@ impl Standardised {
         scratch.sort_unstable_by(by_distance_then_row);
     }
 
+    /// The `k_max` nearest training rows of `query` in `scratch`, in no
+    /// particular order (the class vote orders only what it needs).
+    fn unordered_neighbours(&self, query: &[f64], k_max: usize, scratch: &mut Vec<(f64, usize)>) {
+        if let Some(tree) = &self.tree {
+            tree.nearest_unordered(query, k_max, scratch);
+            return;
+        }
+        self.gather_candidates(query, k_max, scratch);
+        if k_max < scratch.len() {
+            scratch.select_nth_unstable_by(k_max - 1, by_distance_then_row);
+            scratch.truncate(k_max);
+        }
+    }
+
     /// Prefix sums of the targets of the `k_max` nearest training rows of
     /// `query` (for tests that compare the three searches).
     #[cfg(test)]
@@ -366,12 +380,9 @@ impl Family for NearestNeighbors {
             let width = request.classes + 1;
             let vote_all = |queries: &[f64]| -> Vec<Vec<f64>> {
                 space.answer_all(queries, self.ks.len(), width, |_, q, scratch, out| {
-                    space.ordered_neighbours(q, k_max, None, scratch);
-                    let classes: Vec<usize> = scratch
-                        .iter()
-                        .map(|&(_, row)| y_train[row] as usize)
-                        .collect();
-                    neighbour_vote::vote(&classes, &self.ks, request.classes, out);
+                    space.unordered_neighbours(q, k_max, scratch);
+                    let class_of = |row: usize| y_train[row] as usize;
+                    neighbour_vote::vote(scratch, class_of, &self.ks, request.classes, out);
                 })
             };
             let mut train = if final_fit {

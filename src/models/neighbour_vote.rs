@@ -7,32 +7,61 @@
 //! "nearest-neighbors"). Kept apart from the neighbour search, which only
 //! has to hand over the neighbours' classes in order.
 
+use std::cmp::Ordering;
+
+use super::kd_tree::by_distance_then_row;
 use crate::metrics::ClassPrediction;
 
 /// Appends to `out[s]` the prediction of setting `ks[s]` for one query whose
-/// neighbours' classes are `ordered` (nearest first, at least max k of them),
-/// on a target of `classes` classes.
-pub(crate) fn vote(ordered: &[usize], ks: &[usize], classes: usize, out: &mut [Vec<f64>]) {
+/// nearest training rows are `neighbours` ((squared distance, row), the max k
+/// nearest, in any order; reordered here), on a target of `classes` classes
+/// with `class_of(row)` the class of a training row.
+///
+/// No full sort is needed: a selection inside the first k' of the
+/// neighbours for each next smaller k of the grid leaves the k nearest
+/// first for every k (O(k_max) per grid point, where a sort costs
+/// O(k_max log k_max)), and the counts and each class's nearest member are
+/// then added up stretch by stretch.
+pub(crate) fn vote(
+    neighbours: &mut [(f64, usize)],
+    class_of: impl Fn(usize) -> usize,
+    ks: &[usize],
+    classes: usize,
+    out: &mut [Vec<f64>],
+) {
     let layout = ClassPrediction { classes };
-    // For every k: counts over the first k neighbours, built incrementally.
     let mut order: Vec<(usize, usize)> = ks.iter().copied().zip(0..).collect();
     order.sort_unstable();
+    for pair in order.windows(2).rev() {
+        let (smaller, larger) = (pair[0].0, pair[1].0);
+        if smaller < larger && smaller > 0 {
+            neighbours[..larger].select_nth_unstable_by(smaller - 1, by_distance_then_row);
+        }
+    }
     let mut counts = vec![0usize; classes];
-    // First position at which each class appears among the neighbours.
-    let mut first_seen = vec![usize::MAX; classes];
+    // Each class's nearest member among the neighbours counted so far.
+    let mut nearest: Vec<Option<(f64, usize)>> = vec![None; classes];
+    let nearer = |a: Option<(f64, usize)>, b: Option<(f64, usize)>| match (a, b) {
+        (Some(a), Some(b)) => by_distance_then_row(&a, &b) == Ordering::Less,
+        (Some(_), None) => true,
+        _ => false,
+    };
     let mut taken = 0;
     for (k, s) in order {
         while taken < k {
-            let class = ordered[taken];
+            let found = neighbours[taken];
+            let class = class_of(found.1);
             counts[class] += 1;
-            first_seen[class] = first_seen[class].min(taken);
+            if nearer(Some(found), nearest[class]) {
+                nearest[class] = Some(found);
+            }
             taken += 1;
         }
         let mut winner = 0;
         for class in 1..classes {
             let more = counts[class] > counts[winner];
             let tied_but_nearer =
-                counts[class] == counts[winner] && first_seen[class] < first_seen[winner];
+                counts[class] == counts[winner] && nearer(nearest[class], nearest[winner]);
             if more || tied_but_nearer {
                 winner = class;
             }
@@ -48,9 +77,22 @@ pub(crate) fn vote(ordered: &[usize], ks: &[usize], classes: usize, out: &mut [V
 mod tests {
     use super::*;
 
+    /// Neighbours at distances 0, 1, 2, … whose classes are `ordered`,
+    /// handed over shuffled (reversed, then the halves swapped).
+    fn neighbours(ordered: &[usize]) -> (Vec<(f64, usize)>, impl Fn(usize) -> usize + '_) {
+        let mut found: Vec<(f64, usize)> = (0..ordered.len()).map(|r| (r as f64, r)).collect();
+        found.reverse();
+        let half = found.len() / 2;
+        found.rotate_left(half);
+        (found, move |row: usize| ordered[row])
+    }
+
     fn one(ordered: &[usize], k: usize, classes: usize) -> Vec<f64> {
         let mut out = vec![Vec::new()];
-        vote(ordered, &[k], classes, &mut out);
+        let (mut found, class_of) = neighbours(ordered);
+        // The k nearest only, as the search hands them over.
+        found.retain(|&(_, row)| row < k);
+        vote(&mut found, class_of, &[k], classes, &mut out);
         out.remove(0)
     }
 
@@ -74,7 +116,8 @@ mod tests {
         let ordered = [1, 0, 0, 1, 1, 0, 1];
         let ks = [7, 1, 3];
         let mut together = vec![Vec::new(); 3];
-        vote(&ordered, &ks, 2, &mut together);
+        let (mut found, class_of) = neighbours(&ordered);
+        vote(&mut found, class_of, &ks, 2, &mut together);
         for (s, &k) in ks.iter().enumerate() {
             assert_eq!(together[s], one(&ordered, k, 2), "k = {k}");
         }

@@ -16,7 +16,8 @@ use nalgebra::DMatrix;
 
 use super::double_double::DoubleDouble;
 use super::least_squares::{
-    cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
+    cumulative_leverages, moments_pay, predict_leading, NestedLeastSquares, RawMoments,
+    RawRefinement, RawSums,
 };
 use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT};
 use super::{
@@ -164,7 +165,42 @@ impl Polynomial {
         intercept.into_iter().chain(powers).collect()
     }
 
+    /// Writes row `i` of the raw design of `degree` (the intercept, then
+    /// each feature's powers 1..=degree, formed by repeated double-double
+    /// products) into `row`.
+    fn raw_row(&self, x_train: &DMatrix<f64>, degree: usize, i: usize, row: &mut [DoubleDouble]) {
+        let mut at = 0;
+        if self.intercept {
+            row[0] = DoubleDouble::from_f64(1.0);
+            at = 1;
+        }
+        for f in 0..self.features.len() {
+            let x = DoubleDouble::from_f64(x_train[(i, f)]);
+            let mut power = x;
+            for _ in 0..degree {
+                row[at] = power;
+                at += 1;
+                power = power.mul(x);
+            }
+        }
+    }
+
+    /// The raw design's moments at the largest degree, when one set of them
+    /// costs less than passes over the rows for every degree's refinement
+    /// (`least_squares::moments_pay`).
+    fn raw_moments(&self, x_train: &DMatrix<f64>, y_train: &[f64]) -> Option<RawMoments> {
+        let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
+        let largest = self.columns_for(max_degree);
+        let widths = self.degrees.iter().map(|&d| self.columns_for(d));
+        moments_pay(largest, widths).then(|| {
+            let raw_row =
+                |i: usize, row: &mut [DoubleDouble]| self.raw_row(x_train, max_degree, i, row);
+            RawMoments::of(&raw_row, x_train.nrows(), y_train, largest)
+        })
+    }
+
     /// Raw coefficients of one degree's fit, refined in double-double.
+    #[allow(clippy::too_many_arguments)]
     fn refined_coefficients(
         &self,
         solver: &NestedLeastSquares,
@@ -173,35 +209,38 @@ impl Polynomial {
         degree: usize,
         x_train: &DMatrix<f64>,
         y_train: &[f64],
+        moments: Option<&RawMoments>,
     ) -> Vec<(String, f64)> {
-        // Row i of the raw design: the intercept, then each feature's powers
-        // 1..=degree, formed by repeated double-double products.
-        let raw_row = |i: usize, row: &mut [DoubleDouble]| {
-            let mut at = 0;
-            if self.intercept {
-                row[0] = DoubleDouble::from_f64(1.0);
-                at = 1;
-            }
-            for f in 0..self.features.len() {
-                let x = DoubleDouble::from_f64(x_train[(i, f)]);
-                let mut power = x;
-                for _ in 0..degree {
-                    row[at] = power;
-                    at += 1;
-                    power = power.mul(x);
-                }
-            }
-        };
+        let raw_row = |i: usize, row: &mut [DoubleDouble]| self.raw_row(x_train, degree, i, row);
+        // Where each raw coefficient of this degree sits among the columns
+        // of the largest degree's raw design (the moments' columns).
+        let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
+        let offset = usize::from(self.intercept);
+        let positions: Vec<usize> = (0..offset)
+            .chain(
+                (0..self.features.len())
+                    .flat_map(|f| (0..degree).map(move |power| offset + f * max_degree + power)),
+            )
+            .collect();
         let to_raw = |g: &[f64]| self.raw_coefficients(g, maps, degree);
         let width = usize::from(self.intercept) + degree * self.features.len();
+        let sums = match moments {
+            Some(moments) => RawSums::Moments {
+                moments,
+                positions: &positions,
+            },
+            None => RawSums::Rows {
+                raw_row: &raw_row,
+                rows: x_train.nrows(),
+                y: y_train,
+            },
+        };
         let values = solver.refined_raw(
             width,
             gamma,
             &RawRefinement {
                 to_raw: &to_raw,
-                raw_row: &raw_row,
-                rows: x_train.nrows(),
-                y: y_train,
+                sums,
             },
         );
         self.coefficient_names(degree)
@@ -320,6 +359,9 @@ impl Family for Polynomial {
             (NestedLeastSquares::new(design, y_train), None)
         };
 
+        let moments = final_fit
+            .then(|| self.raw_moments(x_train, y_train))
+            .flatten();
         self.degrees
             .iter()
             .map(|&degree| {
@@ -344,6 +386,7 @@ impl Family for Polynomial {
                             degree,
                             x_train,
                             y_train,
+                            moments.as_ref(),
                         )
                     }),
                 })
