@@ -11,6 +11,13 @@
 //! by power, so every lower degree is a leading block of the highest one and
 //! one QR serves the whole grid. Coefficients are converted back to the raw
 //! power basis only for reporting; predictions use the Chebyshev form.
+//!
+//! Bound to encoded categorical features (`plan::encode`), the trailing
+//! `plain` columns (0/1 indicators and interaction columns) enter once, as
+//! they are, never raised to powers (powers of a 0/1 column repeat it). They
+//! sit right after the intercept, before the power blocks, so every degree
+//! is still a leading block of the design (docs/spec.md, "Categorical
+//! features").
 
 use nalgebra::DMatrix;
 
@@ -18,7 +25,9 @@ use super::double_double::DoubleDouble;
 use super::least_squares::{
     cumulative_leverages, predict_leading, NestedLeastSquares, RawRefinement,
 };
-use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT};
+use super::registry::{
+    CategoricalUse, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT,
+};
 use super::{
     leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
     Setting, SettingFit, TrainingShape,
@@ -31,6 +40,9 @@ pub(crate) struct Polynomial {
     pub(crate) features: Vec<String>,
     pub(crate) intercept: bool,
     pub(crate) degrees: Vec<usize>,
+    /// How many trailing `features` enter once, as they are (indicators and
+    /// interaction columns; `registry::FamilyDef::build_plain`).
+    pub(crate) plain: usize,
 }
 
 /// The registry entry of `polynomial` (see `registry`).
@@ -50,13 +62,25 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
     "Polynomials of one or more features, one Householder QR per fold for the whole degree grid.",
 )
 .grid("degree = [1, 2, 3, 4, 5, 6, 8, 10]")
-.expanding_features();
+.expanding_features()
+.takes_categorical(CategoricalUse::Indicators)
+.plain_columns(build_plain);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    build_plain(settings, features, 0)
+}
+
+/// Binds the grid to `features`, whose last `plain` columns enter once.
+fn build_plain(
+    settings: &Settings,
+    features: Vec<String>,
+    plain: usize,
+) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Polynomial {
         features,
         intercept: settings.flag("intercept"),
         degrees: settings.whole_grid("degree", 1, 30)?,
+        plain,
     }))
 }
 
@@ -68,12 +92,24 @@ struct RangeMap {
 }
 
 impl Polynomial {
-    fn columns_for(&self, degree: usize) -> usize {
-        degree * self.features.len() + usize::from(self.intercept)
+    /// Features expanded into powers: all but the trailing plain ones.
+    fn numeric(&self) -> usize {
+        self.features.len() - self.plain
     }
 
+    /// Columns before the power blocks: the intercept and the plain columns.
+    fn leading(&self) -> usize {
+        usize::from(self.intercept) + self.plain
+    }
+
+    fn columns_for(&self, degree: usize) -> usize {
+        self.leading() + degree * self.numeric()
+    }
+
+    /// The range map of each numeric feature.
     fn range_maps(&self, x_train: &DMatrix<f64>) -> Vec<RangeMap> {
         x_train
+            .columns(0, self.numeric())
             .column_iter()
             .map(|column| {
                 let lo = column.iter().copied().fold(f64::INFINITY, f64::min);
@@ -96,14 +132,19 @@ impl Polynomial {
             .collect()
     }
 
-    /// Design columns: \[1\], then for power 1..=max_degree, one column per feature.
+    /// Design columns: \[1\], the plain columns as they are, then for power
+    /// 1..=max_degree, one column per numeric feature.
     fn design(&self, x: &DMatrix<f64>, maps: &[RangeMap], max_degree: usize) -> DMatrix<f64> {
-        let p = self.features.len();
-        let offset = usize::from(self.intercept);
+        let p = self.numeric();
+        let lead = usize::from(self.intercept);
+        let offset = self.leading();
         let mut design = DMatrix::zeros(x.nrows(), max_degree * p + offset);
         for i in 0..x.nrows() {
             if self.intercept {
                 design[(i, 0)] = 1.0;
+            }
+            for k in 0..self.plain {
+                design[(i, lead + k)] = x[(i, p + k)];
             }
             for (f, map) in maps.iter().enumerate() {
                 let t = (x[(i, f)] - map.centre) / map.half_width;
@@ -125,12 +166,14 @@ impl Polynomial {
         design
     }
 
-    /// Raw-unit coefficients (intercept, then each feature's powers 1..d) from
-    /// basis coefficients; linear in `gamma`.
+    /// Raw-unit coefficients (intercept, then each numeric feature's powers
+    /// 1..d, then the plain columns) from basis coefficients; linear in
+    /// `gamma`.
     fn raw_coefficients(&self, gamma: &[f64], maps: &[RangeMap], degree: usize) -> Vec<f64> {
-        let p = self.features.len();
-        let offset = usize::from(self.intercept);
-        let mut raw = vec![0.0; offset + degree * p];
+        let p = self.numeric();
+        let lead = usize::from(self.intercept);
+        let offset = self.leading();
+        let mut raw = vec![0.0; lead + degree * p + self.plain];
         if self.intercept {
             raw[0] = gamma[0];
         }
@@ -147,21 +190,24 @@ impl Polynomial {
             if self.intercept {
                 raw[0] += in_x[0];
             }
-            raw[offset + f * degree..offset + (f + 1) * degree].copy_from_slice(&in_x[1..]);
+            raw[lead + f * degree..lead + (f + 1) * degree].copy_from_slice(&in_x[1..]);
         }
+        // Plain columns are their own basis.
+        raw[lead + degree * p..].copy_from_slice(&gamma[lead..offset]);
         raw
     }
 
     /// Names of the raw coefficients, in [`Self::raw_coefficients`] order.
     fn coefficient_names(&self, degree: usize) -> Vec<String> {
         let intercept = self.intercept.then(|| "intercept".to_string());
-        let powers = self.features.iter().flat_map(|name| {
+        let powers = self.features[..self.numeric()].iter().flat_map(|name| {
             (1..=degree).map(move |power| match power {
                 1 => name.clone(),
                 _ => format!("{name}^{power}"),
             })
         });
-        intercept.into_iter().chain(powers).collect()
+        let plain = self.features[self.numeric()..].iter().cloned();
+        intercept.into_iter().chain(powers).chain(plain).collect()
     }
 
     /// Raw coefficients of one degree's fit, refined in double-double.
@@ -174,15 +220,17 @@ impl Polynomial {
         x_train: &DMatrix<f64>,
         y_train: &[f64],
     ) -> Vec<(String, f64)> {
-        // Row i of the raw design: the intercept, then each feature's powers
-        // 1..=degree, formed by repeated double-double products.
+        // Row i of the raw design: the intercept, then each numeric
+        // feature's powers 1..=degree, formed by repeated double-double
+        // products, then the plain columns as they are.
+        let p = self.numeric();
         let raw_row = |i: usize, row: &mut [DoubleDouble]| {
             let mut at = 0;
             if self.intercept {
                 row[0] = DoubleDouble::from_f64(1.0);
                 at = 1;
             }
-            for f in 0..self.features.len() {
+            for f in 0..p {
                 let x = DoubleDouble::from_f64(x_train[(i, f)]);
                 let mut power = x;
                 for _ in 0..degree {
@@ -191,9 +239,12 @@ impl Polynomial {
                     power = power.mul(x);
                 }
             }
+            for k in 0..self.plain {
+                row[at + k] = DoubleDouble::from_f64(x_train[(i, p + k)]);
+            }
         };
         let to_raw = |g: &[f64]| self.raw_coefficients(g, maps, degree);
-        let width = usize::from(self.intercept) + degree * self.features.len();
+        let width = usize::from(self.intercept) + degree * p + self.plain;
         let values = solver.refined_raw(
             width,
             gamma,
@@ -267,11 +318,13 @@ impl Family for Polynomial {
             ));
         }
         // Powers 0..=degree of a feature with fewer distinct values than
-        // degree + 1 are linearly dependent (a 0/1 feature: x² = x).
+        // degree + 1 are linearly dependent (a 0/1 feature: x² = x). Plain
+        // columns enter once and are not expanded.
         if !self.intercept {
             return None;
         }
-        self.features.iter().enumerate().find_map(|(j, feature)| {
+        let numeric = &self.features[..self.numeric()];
+        numeric.iter().enumerate().find_map(|(j, feature)| {
             let distinct = shape.distinct(j);
             (degree >= distinct).then(|| {
                 format!(
@@ -302,7 +355,7 @@ impl Family for Polynomial {
             });
         }
         require_spread(
-            &self.features,
+            &self.features[..self.numeric()],
             x_train,
             "a polynomial in it cannot be fitted",
         )?;
@@ -412,6 +465,7 @@ mod tests {
             features: vec!["x".into()],
             intercept: true,
             degrees: vec![3, 1],
+            plain: 0,
         };
         let fits = poly.fit_path(&x, &y, &x, true).unwrap();
         let coefficients = fits[0].coefficients.as_ref().unwrap();
@@ -436,6 +490,7 @@ mod tests {
             features: vec!["a".into(), "b".into()],
             intercept: true,
             degrees: vec![2],
+            plain: 0,
         };
         let fit = &poly.fit_path(&x, &y, &x, true).unwrap()[0];
         let names: Vec<&str> = fit
@@ -460,6 +515,7 @@ mod tests {
             features: vec!["x".into()],
             intercept: true,
             degrees: vec![3],
+            plain: 0,
         };
         let err = poly.fit_path(&x, &y, &x, true).unwrap_err();
         assert!(matches!(err, FitError::RankDeficient { .. }), "{err:?}");
@@ -484,6 +540,7 @@ mod leave_one_out_tests {
             features: vec!["x".into()],
             intercept: true,
             degrees: vec![1, 3, 5],
+            plain: 0,
         };
         for pair in shortcut_beside_refits(&poly, &x, &y) {
             let (a, b) = (pair.shortcut, pair.refit);

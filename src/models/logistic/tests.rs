@@ -8,6 +8,7 @@ fn logistic(grid: Vec<(usize, f64)>, label: Label) -> Logistic {
         features: vec!["x".into()],
         grid,
         label,
+        plain: 0,
     }
 }
 
