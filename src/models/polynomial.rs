@@ -523,6 +523,93 @@ mod tests {
 }
 
 #[cfg(test)]
+mod plain_column_tests {
+    use super::*;
+
+    /// A numeric feature with 7 distinct values, a 0/1 indicator and an
+    /// interaction column (the feature times the indicator).
+    fn with_plain(intercept: bool, degrees: Vec<usize>) -> (Polynomial, DMatrix<f64>) {
+        let x = DMatrix::from_fn(14, 3, |i, j| {
+            let value = 2.0 + (i % 7) as f64 * 0.5;
+            let indicator = f64::from(u8::from(i % 3 == 0));
+            [value, indicator, value * indicator][j]
+        });
+        let poly = Polynomial {
+            features: vec!["x".into(), "g=b".into(), "x:g=b".into()],
+            intercept,
+            degrees,
+            plain: 2,
+        };
+        (poly, x)
+    }
+
+    #[test]
+    fn each_degree_is_a_leading_block_of_the_highest() {
+        for intercept in [true, false] {
+            let (poly, x) = with_plain(intercept, vec![1, 2, 3, 4]);
+            let maps = poly.range_maps(&x);
+            let highest = poly.design(&x, &maps, 4);
+            for degree in 1..4 {
+                let own = poly.design(&x, &maps, degree);
+                assert_eq!(own.ncols(), poly.columns_for(degree));
+                assert_eq!(
+                    highest.columns(0, own.ncols()),
+                    own,
+                    "degree {degree}, intercept {intercept}"
+                );
+            }
+            // The plain columns follow the intercept as they are.
+            let lead = usize::from(intercept);
+            assert_eq!(highest.columns(lead, 2), x.columns(1, 2));
+            assert_eq!(highest.ncols(), lead + 2 + 4);
+        }
+    }
+
+    #[test]
+    fn plain_columns_enter_once_and_are_named_after_the_powers() {
+        let (poly, x) = with_plain(true, vec![3]);
+        let y: Vec<f64> = (0..x.nrows())
+            .map(|i| {
+                let (v, g) = (x[(i, 0)], x[(i, 1)]);
+                1.5 - 0.5 * v + 0.25 * v * v - 0.125 * v * v * v + 4.0 * g - 0.75 * v * g
+            })
+            .collect();
+        let fit = &poly.fit_path(&x, &y, &x, true).unwrap()[0];
+        let coefficients = fit.coefficients.as_ref().unwrap();
+        let names: Vec<&str> = coefficients.iter().map(|(n, _)| n.as_str()).collect();
+        assert_eq!(names, ["intercept", "x", "x^2", "x^3", "g=b", "x:g=b"]);
+        // An exact model: the raw coefficients come back (1e-10 relative).
+        for ((_, got), want) in coefficients
+            .iter()
+            .zip([1.5, -0.5, 0.25, -0.125, 4.0, -0.75])
+        {
+            assert!((got - want).abs() <= 1e-10 * want.abs(), "{got} vs {want}");
+        }
+        assert_eq!(fit.effective_df, 6.0);
+    }
+
+    #[test]
+    fn only_numeric_features_need_degree_plus_one_values() {
+        let (poly, x) = with_plain(true, vec![3, 6, 7]);
+        let shape = TrainingShape::new(&x, false);
+        // The 0/1 columns have 2 values; degree 3 only asks x for 4 of its 7.
+        assert_eq!(poly.infeasible(0, &shape), None);
+        assert_eq!(poly.infeasible(1, &shape), None);
+        let why = poly
+            .infeasible(2, &shape)
+            .expect("degree 7 needs 8 values of x");
+        assert!(why.contains("feature \"x\""), "{why}");
+        // Rows count every column: degree 7 has 1 + 2 plain + 7 powers = 10
+        // columns; degree 6 has 9 and its 7 distinct values of x.
+        let few = x.rows(0, 9).into_owned();
+        let shape = TrainingShape::new(&few, false);
+        assert_eq!(poly.infeasible(1, &shape), None);
+        let why = poly.infeasible(2, &shape).expect("10 columns, 9 rows");
+        assert!(why.contains("needs at least 10 training rows"), "{why}");
+    }
+}
+
+#[cfg(test)]
 mod leave_one_out_tests {
     use super::*;
     use crate::models::test_support::shortcut_beside_refits;

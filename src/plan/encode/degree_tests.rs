@@ -199,3 +199,55 @@ fn the_fixture_folds_have_its_references_and_unseen_shop() {
     }
     assert_eq!(expected["folds"][2]["unseen"], 6);
 }
+
+/// A part of an encoded candidate's grid (what the executor refits when a
+/// setting fails) is rebuilt through the encoding: its fits equal the
+/// whole grid's at the same settings.
+#[test]
+fn a_narrowed_grid_is_fitted_on_the_encoded_columns() {
+    let plan = fixture_plan("spec.toml");
+    let candidate = &plan.candidates[1]; // poly-slopes, degrees 1..3
+    let train = plan.assignment.fold_train(0);
+    let valid = &plan.assignment.folds[0].valid;
+    let (x_train, y_train, x_valid) = (
+        plan.design(candidate, &train),
+        plan.target_of(&train),
+        plan.design(candidate, valid),
+    );
+    let whole = candidate
+        .family
+        .fit_path(&x_train, &y_train, &x_valid, false)
+        .unwrap();
+    let part = crate::execute::feasible::restricted(candidate, &[0, 2]).unwrap();
+    assert_eq!(
+        part.settings(),
+        [candidate.settings[0], candidate.settings[2]]
+    );
+    let fits = part.fit_path(&x_train, &y_train, &x_valid, false).unwrap();
+    assert_eq!(fits[0].eval_pred, whole[0].eval_pred);
+    assert_eq!(fits[1].eval_pred, whole[2].eval_pred);
+}
+
+/// Before fitting, an encoded polynomial asks its numeric feature for
+/// degree + 1 distinct values, never its level codes or indicators.
+#[test]
+fn feasibility_counts_the_numeric_features_values_only() {
+    let plan = fixture_plan("spec.toml");
+    let candidate = &plan.candidates[0]; // polynomial, degrees 1..4
+                                         // 12 rows: sun_h takes 3 values, the shop 2 levels (codes 0 and 1).
+    let x = nalgebra::DMatrix::from_fn(12, 2, |i, j| match j {
+        0 => [1.5, 4.0, 9.5][i % 3],
+        _ => (i % 2) as f64,
+    });
+    let shape = crate::models::TrainingShape::new(&x, false);
+    let why: Vec<Option<String>> = (0..4)
+        .map(|s| candidate.family.infeasible(s, &shape))
+        .collect();
+    assert_eq!(why[..2], [None, None], "{why:?}");
+    for reason in &why[2..] {
+        let reason = reason
+            .as_deref()
+            .expect("degrees 3 and 4 need 4 and 5 values");
+        assert!(reason.contains("feature \"sun_h\""), "{reason}");
+    }
+}
