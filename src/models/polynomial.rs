@@ -566,6 +566,23 @@ mod plain_column_tests {
     }
 
     #[test]
+    fn the_grid_with_plain_columns_equals_each_degree_alone() {
+        let (poly, x) = with_plain(true, vec![1, 2, 3, 4]);
+        let y: Vec<f64> = (0..x.nrows())
+            .map(|i| (x[(i, 0)] * 0.9).sin() + 0.5 * x[(i, 1)] + 0.01 * (i * i) as f64)
+            .collect();
+        let alone = |s: usize| {
+            Box::new(Polynomial {
+                degrees: vec![poly.degrees[s]],
+                ..poly.clone()
+            })
+        };
+        crate::models::test_support::assert_grid_equals_separate_fits(
+            &poly, alone, &x, &y, &x, 1e-10,
+        );
+    }
+
+    #[test]
     fn plain_columns_enter_once_and_are_named_after_the_powers() {
         let (poly, x) = with_plain(true, vec![3]);
         let y: Vec<f64> = (0..x.nrows())
@@ -630,6 +647,33 @@ mod leave_one_out_tests {
             plain: 0,
         };
         for pair in shortcut_beside_refits(&poly, &x, &y) {
+            let (a, b) = (pair.shortcut, pair.refit);
+            assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{pair}");
+        }
+    }
+
+    #[test]
+    fn hat_diagonal_shortcut_equals_refits_with_plain_columns() {
+        // The same identity with an indicator and an interaction column in
+        // the design (the leverages read the plain columns too).
+        let n = 24;
+        let x = DMatrix::from_fn(n, 3, |i, j| {
+            let value = (i as f64 * 0.41).sin() * 3.0 + i as f64 * 0.15;
+            let indicator = f64::from(u8::from(i % 3 == 1));
+            [value, indicator, value * indicator][j]
+        });
+        let y: Vec<f64> = (0..n)
+            .map(|i| (x[(i, 0)] * 0.7).cos() + 0.8 * x[(i, 1)] - 0.3 * x[(i, 2)] + 0.02 * i as f64)
+            .collect();
+        let poly = Polynomial {
+            features: vec!["x".into(), "g=b".into(), "x:g=b".into()],
+            intercept: true,
+            degrees: vec![1, 2, 4],
+            plain: 2,
+        };
+        let pairs = shortcut_beside_refits(&poly, &x, &y);
+        assert_eq!(pairs.len(), 3 * n);
+        for pair in pairs {
             let (a, b) = (pair.shortcut, pair.refit);
             assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{pair}");
         }
