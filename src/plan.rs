@@ -36,6 +36,9 @@ pub(crate) struct CandidatePlan {
     /// that a part of the grid can be rebuilt (`feasible::restricted`).
     pub(crate) def: &'static crate::models::registry::FamilyDef,
     pub(crate) grid: crate::models::registry::Settings,
+    /// The family again, when it is bound to encoded categorical columns
+    /// (`encode::EncodedFamily`): a part of its grid is rebuilt through it.
+    pub(crate) encoded: Option<Arc<encode::EncodedFamily>>,
 }
 
 impl CandidatePlan {
@@ -50,6 +53,7 @@ impl CandidatePlan {
             identity: spec.identity(),
             def: spec.def,
             grid: spec.settings.clone(),
+            encoded: None,
         }
     }
 

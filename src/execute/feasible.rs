@@ -54,9 +54,11 @@ pub(crate) fn restricted(
         .filter_map(|&s| candidate.settings[s].param.map(|p| p.1))
         .collect();
     let settings = candidate.grid.narrowed(key, &values);
-    (candidate.def.build)(&settings, candidate.features.clone())
-        .map(Arc::from)
-        .map_err(|problem| format!("{}: {}", problem.key, problem.message))
+    match &candidate.encoded {
+        Some(encoded) => encoded.narrowed(&settings),
+        None => (candidate.def.build)(&settings, candidate.features.clone()).map(Arc::from),
+    }
+    .map_err(|problem| format!("{}: {}", problem.key, problem.message))
 }
 
 /// Per setting of `candidate`, why it cannot be fitted on `x_train` (the

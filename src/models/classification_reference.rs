@@ -188,6 +188,7 @@ fn check_logistic(kind: &str, file: &str, classes: usize) {
         features: vec!["x1".into(), "x2".into()],
         grid: vec![(1, 0.0)],
         label: Label::None,
+        plain: 0,
     };
     let (x, y) = data.rows(|_| true);
     let fit = model

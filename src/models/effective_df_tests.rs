@@ -67,6 +67,7 @@ fn polynomial_df_grows_with_degree() {
             features: names(1),
             intercept: true,
             degrees: vec![1, 2, 3, 5, 8],
+            plain: 0,
         },
         1,
     );

@@ -29,6 +29,17 @@ impl<'a> TrainingShape<'a> {
         }
     }
 
+    /// The training rows themselves (a family bound to encoded columns
+    /// encodes them to ask the family it fits).
+    pub(crate) fn x_train(&self) -> &'a DMatrix<f64> {
+        self.x_train
+    }
+
+    /// Whether this is the shape of the fits that leave one row out.
+    pub(crate) fn leave_one_out(&self) -> bool {
+        self.leave_one_out
+    }
+
     /// Training rows of a fit.
     pub fn rows(&self) -> usize {
         self.x_train.nrows() - usize::from(self.leave_one_out && self.x_train.nrows() > 0)

@@ -6,7 +6,10 @@
 //!
 //! Features are standardised on the training rows (mean 0, population
 //! standard deviation 1); with a `degree` grid each standardised feature
-//! enters with its powers 1..degree (no interactions). The first class
+//! enters with its powers 1..degree (no interactions); bound to encoded
+//! categorical features (`plan::encode`), the trailing `plain` columns (0/1
+//! indicators and interaction columns) enter once, standardised, never
+//! raised to powers (docs/spec.md, "Categorical features"). The first class
 //! present in the training rows is the reference: the model holds one
 //! intercept and one coefficient per design column for every other class,
 //! P(class k | x) ∝ exp(η_k), η_reference = 0. Classes absent from the
@@ -50,6 +53,9 @@ pub(crate) struct Logistic {
     pub(crate) grid: Vec<(usize, f64)>,
     /// Which key labels the settings.
     pub(crate) label: Label,
+    /// How many trailing `features` enter once whatever the degree
+    /// (indicators and interaction columns; `registry::FamilyDef::build_plain`).
+    pub(crate) plain: usize,
 }
 
 /// The key that varies along the grid, shown in ids.
@@ -79,9 +85,19 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
 )
 .grid("degree = [1, 2, 3]")
 .predicts(Targets::Classes)
-.takes_categorical(CategoricalUse::Indicators);
+.takes_categorical(CategoricalUse::Indicators)
+.plain_columns(build_plain);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    build_plain(settings, features, 0)
+}
+
+/// Binds the grid to `features`, whose last `plain` columns enter once.
+fn build_plain(
+    settings: &Settings,
+    features: Vec<String>,
+    plain: usize,
+) -> Result<Box<dyn Family>, SettingProblem> {
     let given = |key: &str| settings.values().iter().any(|(k, _)| *k == key);
     let degrees = if given("degree") {
         Some(settings.whole_grid("degree", 1, 30)?)
@@ -119,6 +135,7 @@ fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, 
         features,
         grid,
         label,
+        plain,
     }))
 }
 
@@ -133,36 +150,50 @@ impl Logistic {
 }
 
 /// The standardised design of one degree: an intercept column, then each
-/// feature's powers 1..degree, feature-major.
+/// numeric feature's powers 1..degree, feature-major, then each of the last
+/// `plain` features once.
 struct Design {
     means: Vec<f64>,
     sds: Vec<f64>,
     degree: usize,
+    plain: usize,
 }
 
 impl Design {
-    fn fit(x: &DMatrix<f64>, degree: usize) -> Self {
+    fn fit(x: &DMatrix<f64>, degree: usize, plain: usize) -> Self {
         let (means, sds) = x
             .column_iter()
             .map(|c| mean_and_sd(c.iter().copied()))
             .unzip();
-        Design { means, sds, degree }
+        Design {
+            means,
+            sds,
+            degree,
+            plain,
+        }
+    }
+
+    /// Features raised to powers 1..degree.
+    fn numeric(&self) -> usize {
+        self.means.len() - self.plain
     }
 
     fn columns(&self) -> usize {
-        1 + self.means.len() * self.degree
+        1 + self.numeric() * self.degree + self.plain
     }
 
     /// Row-major design of `x`.
     fn rows(&self, x: &DMatrix<f64>) -> Vec<f64> {
         let p = self.columns();
+        let numeric = self.numeric();
         let mut out = Vec::with_capacity(x.nrows() * p);
         for i in 0..x.nrows() {
             out.push(1.0);
             for j in 0..self.means.len() {
                 let z = (x[(i, j)] - self.means[j]) / self.sds[j];
+                let powers = if j < numeric { self.degree } else { 1 };
                 let mut power = 1.0;
-                for _ in 0..self.degree {
+                for _ in 0..powers {
                     power *= z;
                     out.push(power);
                 }
@@ -634,7 +665,7 @@ impl Family for Logistic {
             } else {
                 setting
             };
-            let design = Design::fit(x_train, degree);
+            let design = Design::fit(x_train, degree, self.plain);
             let p = design.columns();
             let train_rows = design.rows(x_train);
             let fitted = if present.len() < 2 {
@@ -725,13 +756,18 @@ impl Logistic {
                 }
             } else {
                 out.push((format!("class {class}: intercept"), beta[0]));
-                for (j, name) in self.features.iter().enumerate() {
+                let (numeric, plain) = self.features.split_at(design.numeric());
+                for (j, name) in numeric.iter().enumerate() {
                     for d in 1..=design.degree {
                         out.push((
                             format!("class {class}: z({name})^{d}"),
                             beta[1 + j * design.degree + d - 1],
                         ));
                     }
+                }
+                let plain_start = 1 + numeric.len() * design.degree;
+                for (k, name) in plain.iter().enumerate() {
+                    out.push((format!("class {class}: z({name})"), beta[plain_start + k]));
                 }
             }
         }

@@ -11,6 +11,13 @@
 //! by power, so every lower degree is a leading block of the highest one and
 //! one QR serves the whole grid. Coefficients are converted back to the raw
 //! power basis only for reporting; predictions use the Chebyshev form.
+//!
+//! Bound to encoded categorical features (`plan::encode`), the trailing
+//! `plain` columns (0/1 indicators and interaction columns) enter once, as
+//! they are, never raised to powers (powers of a 0/1 column repeat it). They
+//! sit right after the intercept, before the power blocks, so every degree
+//! is still a leading block of the design (docs/spec.md, "Categorical
+//! features").
 
 use nalgebra::DMatrix;
 
@@ -19,7 +26,9 @@ use super::least_squares::{
     cumulative_leverages, moments_pay, predict_leading, NestedLeastSquares, RawMoments,
     RawRefinement, RawSums,
 };
-use super::registry::{FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT};
+use super::registry::{
+    CategoricalUse, FamilyDef, KeyDef, KeyKind, SettingProblem, Settings, INTERCEPT,
+};
 use super::{
     leave_one_out_rows, loo_from_leverage, require_spread, Family, FitRequest, LeaveOneOut,
     Setting, SettingFit, TrainingShape,
@@ -32,6 +41,9 @@ pub(crate) struct Polynomial {
     pub(crate) features: Vec<String>,
     pub(crate) intercept: bool,
     pub(crate) degrees: Vec<usize>,
+    /// How many trailing `features` enter once, as they are (indicators and
+    /// interaction columns; `registry::FamilyDef::build_plain`).
+    pub(crate) plain: usize,
 }
 
 /// The registry entry of `polynomial` (see `registry`).
@@ -51,13 +63,25 @@ pub(crate) const FAMILY: FamilyDef = FamilyDef::new(
     "Polynomials of one or more features, one Householder QR per fold for the whole degree grid.",
 )
 .grid("degree = [1, 2, 3, 4, 5, 6, 8, 10]")
-.expanding_features();
+.expanding_features()
+.takes_categorical(CategoricalUse::Indicators)
+.plain_columns(build_plain);
 
 fn build(settings: &Settings, features: Vec<String>) -> Result<Box<dyn Family>, SettingProblem> {
+    build_plain(settings, features, 0)
+}
+
+/// Binds the grid to `features`, whose last `plain` columns enter once.
+fn build_plain(
+    settings: &Settings,
+    features: Vec<String>,
+    plain: usize,
+) -> Result<Box<dyn Family>, SettingProblem> {
     Ok(Box::new(Polynomial {
         features,
         intercept: settings.flag("intercept"),
         degrees: settings.whole_grid("degree", 1, 30)?,
+        plain,
     }))
 }
 
@@ -69,12 +93,24 @@ struct RangeMap {
 }
 
 impl Polynomial {
-    fn columns_for(&self, degree: usize) -> usize {
-        degree * self.features.len() + usize::from(self.intercept)
+    /// Features expanded into powers: all but the trailing plain ones.
+    fn numeric(&self) -> usize {
+        self.features.len() - self.plain
     }
 
+    /// Columns before the power blocks: the intercept and the plain columns.
+    fn leading(&self) -> usize {
+        usize::from(self.intercept) + self.plain
+    }
+
+    fn columns_for(&self, degree: usize) -> usize {
+        self.leading() + degree * self.numeric()
+    }
+
+    /// The range map of each numeric feature.
     fn range_maps(&self, x_train: &DMatrix<f64>) -> Vec<RangeMap> {
         x_train
+            .columns(0, self.numeric())
             .column_iter()
             .map(|column| {
                 let lo = column.iter().copied().fold(f64::INFINITY, f64::min);
@@ -97,14 +133,19 @@ impl Polynomial {
             .collect()
     }
 
-    /// Design columns: \[1\], then for power 1..=max_degree, one column per feature.
+    /// Design columns: \[1\], the plain columns as they are, then for power
+    /// 1..=max_degree, one column per numeric feature.
     fn design(&self, x: &DMatrix<f64>, maps: &[RangeMap], max_degree: usize) -> DMatrix<f64> {
-        let p = self.features.len();
-        let offset = usize::from(self.intercept);
+        let p = self.numeric();
+        let lead = usize::from(self.intercept);
+        let offset = self.leading();
         let mut design = DMatrix::zeros(x.nrows(), max_degree * p + offset);
         for i in 0..x.nrows() {
             if self.intercept {
                 design[(i, 0)] = 1.0;
+            }
+            for k in 0..self.plain {
+                design[(i, lead + k)] = x[(i, p + k)];
             }
             for (f, map) in maps.iter().enumerate() {
                 let t = (x[(i, f)] - map.centre) / map.half_width;
@@ -126,12 +167,14 @@ impl Polynomial {
         design
     }
 
-    /// Raw-unit coefficients (intercept, then each feature's powers 1..d) from
-    /// basis coefficients; linear in `gamma`.
+    /// Raw-unit coefficients (intercept, then each numeric feature's powers
+    /// 1..d, then the plain columns) from basis coefficients; linear in
+    /// `gamma`.
     fn raw_coefficients(&self, gamma: &[f64], maps: &[RangeMap], degree: usize) -> Vec<f64> {
-        let p = self.features.len();
-        let offset = usize::from(self.intercept);
-        let mut raw = vec![0.0; offset + degree * p];
+        let p = self.numeric();
+        let lead = usize::from(self.intercept);
+        let offset = self.leading();
+        let mut raw = vec![0.0; lead + degree * p + self.plain];
         if self.intercept {
             raw[0] = gamma[0];
         }
@@ -148,33 +191,37 @@ impl Polynomial {
             if self.intercept {
                 raw[0] += in_x[0];
             }
-            raw[offset + f * degree..offset + (f + 1) * degree].copy_from_slice(&in_x[1..]);
+            raw[lead + f * degree..lead + (f + 1) * degree].copy_from_slice(&in_x[1..]);
         }
+        // Plain columns are their own basis.
+        raw[lead + degree * p..].copy_from_slice(&gamma[lead..offset]);
         raw
     }
 
     /// Names of the raw coefficients, in [`Self::raw_coefficients`] order.
     fn coefficient_names(&self, degree: usize) -> Vec<String> {
         let intercept = self.intercept.then(|| "intercept".to_string());
-        let powers = self.features.iter().flat_map(|name| {
+        let powers = self.features[..self.numeric()].iter().flat_map(|name| {
             (1..=degree).map(move |power| match power {
                 1 => name.clone(),
                 _ => format!("{name}^{power}"),
             })
         });
-        intercept.into_iter().chain(powers).collect()
+        let plain = self.features[self.numeric()..].iter().cloned();
+        intercept.into_iter().chain(powers).chain(plain).collect()
     }
 
-    /// Writes row `i` of the raw design of `degree` (the intercept, then
-    /// each feature's powers 1..=degree, formed by repeated double-double
-    /// products) into `row`.
+    /// Writes row `i` of the raw design of `degree` into `row`: the
+    /// intercept, then each numeric feature's powers 1..=degree, formed by
+    /// repeated double-double products, then the plain columns as they are.
     fn raw_row(&self, x_train: &DMatrix<f64>, degree: usize, i: usize, row: &mut [DoubleDouble]) {
+        let p = self.numeric();
         let mut at = 0;
         if self.intercept {
             row[0] = DoubleDouble::from_f64(1.0);
             at = 1;
         }
-        for f in 0..self.features.len() {
+        for f in 0..p {
             let x = DoubleDouble::from_f64(x_train[(i, f)]);
             let mut power = x;
             for _ in 0..degree {
@@ -182,6 +229,9 @@ impl Polynomial {
                 at += 1;
                 power = power.mul(x);
             }
+        }
+        for k in 0..self.plain {
+            row[at + k] = DoubleDouble::from_f64(x_train[(i, p + k)]);
         }
     }
 
@@ -214,16 +264,17 @@ impl Polynomial {
         let raw_row = |i: usize, row: &mut [DoubleDouble]| self.raw_row(x_train, degree, i, row);
         // Where each raw coefficient of this degree sits among the columns
         // of the largest degree's raw design (the moments' columns).
+        let p = self.numeric();
         let max_degree = self.degrees.iter().copied().max().unwrap_or(1);
         let offset = usize::from(self.intercept);
         let positions: Vec<usize> = (0..offset)
             .chain(
-                (0..self.features.len())
-                    .flat_map(|f| (0..degree).map(move |power| offset + f * max_degree + power)),
+                (0..p).flat_map(|f| (0..degree).map(move |power| offset + f * max_degree + power)),
             )
+            .chain((0..self.plain).map(|k| offset + p * max_degree + k))
             .collect();
         let to_raw = |g: &[f64]| self.raw_coefficients(g, maps, degree);
-        let width = usize::from(self.intercept) + degree * self.features.len();
+        let width = usize::from(self.intercept) + degree * p + self.plain;
         let sums = match moments {
             Some(moments) => RawSums::Moments {
                 moments,
@@ -306,11 +357,13 @@ impl Family for Polynomial {
             ));
         }
         // Powers 0..=degree of a feature with fewer distinct values than
-        // degree + 1 are linearly dependent (a 0/1 feature: x² = x).
+        // degree + 1 are linearly dependent (a 0/1 feature: x² = x). Plain
+        // columns enter once and are not expanded.
         if !self.intercept {
             return None;
         }
-        self.features.iter().enumerate().find_map(|(j, feature)| {
+        let numeric = &self.features[..self.numeric()];
+        numeric.iter().enumerate().find_map(|(j, feature)| {
             let distinct = shape.distinct(j);
             (degree >= distinct).then(|| {
                 format!(
@@ -341,7 +394,7 @@ impl Family for Polynomial {
             });
         }
         require_spread(
-            &self.features,
+            &self.features[..self.numeric()],
             x_train,
             "a polynomial in it cannot be fitted",
         )?;
@@ -455,6 +508,7 @@ mod tests {
             features: vec!["x".into()],
             intercept: true,
             degrees: vec![3, 1],
+            plain: 0,
         };
         let fits = poly.fit_path(&x, &y, &x, true).unwrap();
         let coefficients = fits[0].coefficients.as_ref().unwrap();
@@ -479,6 +533,7 @@ mod tests {
             features: vec!["a".into(), "b".into()],
             intercept: true,
             degrees: vec![2],
+            plain: 0,
         };
         let fit = &poly.fit_path(&x, &y, &x, true).unwrap()[0];
         let names: Vec<&str> = fit
@@ -503,9 +558,114 @@ mod tests {
             features: vec!["x".into()],
             intercept: true,
             degrees: vec![3],
+            plain: 0,
         };
         let err = poly.fit_path(&x, &y, &x, true).unwrap_err();
         assert!(matches!(err, FitError::RankDeficient { .. }), "{err:?}");
+    }
+}
+
+#[cfg(test)]
+mod plain_column_tests {
+    use super::*;
+
+    /// A numeric feature with 7 distinct values, a 0/1 indicator and an
+    /// interaction column (the feature times the indicator).
+    fn with_plain(intercept: bool, degrees: Vec<usize>) -> (Polynomial, DMatrix<f64>) {
+        let x = DMatrix::from_fn(14, 3, |i, j| {
+            let value = 2.0 + (i % 7) as f64 * 0.5;
+            let indicator = f64::from(u8::from(i % 3 == 0));
+            [value, indicator, value * indicator][j]
+        });
+        let poly = Polynomial {
+            features: vec!["x".into(), "g=b".into(), "x:g=b".into()],
+            intercept,
+            degrees,
+            plain: 2,
+        };
+        (poly, x)
+    }
+
+    #[test]
+    fn each_degree_is_a_leading_block_of_the_highest() {
+        for intercept in [true, false] {
+            let (poly, x) = with_plain(intercept, vec![1, 2, 3, 4]);
+            let maps = poly.range_maps(&x);
+            let highest = poly.design(&x, &maps, 4);
+            for degree in 1..4 {
+                let own = poly.design(&x, &maps, degree);
+                assert_eq!(own.ncols(), poly.columns_for(degree));
+                assert_eq!(
+                    highest.columns(0, own.ncols()),
+                    own,
+                    "degree {degree}, intercept {intercept}"
+                );
+            }
+            // The plain columns follow the intercept as they are.
+            let lead = usize::from(intercept);
+            assert_eq!(highest.columns(lead, 2), x.columns(1, 2));
+            assert_eq!(highest.ncols(), lead + 2 + 4);
+        }
+    }
+
+    #[test]
+    fn the_grid_with_plain_columns_equals_each_degree_alone() {
+        let (poly, x) = with_plain(true, vec![1, 2, 3, 4]);
+        let y: Vec<f64> = (0..x.nrows())
+            .map(|i| (x[(i, 0)] * 0.9).sin() + 0.5 * x[(i, 1)] + 0.01 * (i * i) as f64)
+            .collect();
+        let alone = |s: usize| {
+            Box::new(Polynomial {
+                degrees: vec![poly.degrees[s]],
+                ..poly.clone()
+            })
+        };
+        crate::models::test_support::assert_grid_equals_separate_fits(
+            &poly, alone, &x, &y, &x, 1e-10,
+        );
+    }
+
+    #[test]
+    fn plain_columns_enter_once_and_are_named_after_the_powers() {
+        let (poly, x) = with_plain(true, vec![3]);
+        let y: Vec<f64> = (0..x.nrows())
+            .map(|i| {
+                let (v, g) = (x[(i, 0)], x[(i, 1)]);
+                1.5 - 0.5 * v + 0.25 * v * v - 0.125 * v * v * v + 4.0 * g - 0.75 * v * g
+            })
+            .collect();
+        let fit = &poly.fit_path(&x, &y, &x, true).unwrap()[0];
+        let coefficients = fit.coefficients.as_ref().unwrap();
+        let names: Vec<&str> = coefficients.iter().map(|(n, _)| n.as_str()).collect();
+        assert_eq!(names, ["intercept", "x", "x^2", "x^3", "g=b", "x:g=b"]);
+        // An exact model: the raw coefficients come back (1e-10 relative).
+        for ((_, got), want) in coefficients
+            .iter()
+            .zip([1.5, -0.5, 0.25, -0.125, 4.0, -0.75])
+        {
+            assert!((got - want).abs() <= 1e-10 * want.abs(), "{got} vs {want}");
+        }
+        assert_eq!(fit.effective_df, 6.0);
+    }
+
+    #[test]
+    fn only_numeric_features_need_degree_plus_one_values() {
+        let (poly, x) = with_plain(true, vec![3, 6, 7]);
+        let shape = TrainingShape::new(&x, false);
+        // The 0/1 columns have 2 values; degree 3 only asks x for 4 of its 7.
+        assert_eq!(poly.infeasible(0, &shape), None);
+        assert_eq!(poly.infeasible(1, &shape), None);
+        let why = poly
+            .infeasible(2, &shape)
+            .expect("degree 7 needs 8 values of x");
+        assert!(why.contains("feature \"x\""), "{why}");
+        // Rows count every column: degree 7 has 1 + 2 plain + 7 powers = 10
+        // columns; degree 6 has 9 and its 7 distinct values of x.
+        let few = x.rows(0, 9).into_owned();
+        let shape = TrainingShape::new(&few, false);
+        assert_eq!(poly.infeasible(1, &shape), None);
+        let why = poly.infeasible(2, &shape).expect("10 columns, 9 rows");
+        assert!(why.contains("needs at least 10 training rows"), "{why}");
     }
 }
 
@@ -527,8 +687,36 @@ mod leave_one_out_tests {
             features: vec!["x".into()],
             intercept: true,
             degrees: vec![1, 3, 5],
+            plain: 0,
         };
         for pair in shortcut_beside_refits(&poly, &x, &y) {
+            let (a, b) = (pair.shortcut, pair.refit);
+            assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{pair}");
+        }
+    }
+
+    #[test]
+    fn hat_diagonal_shortcut_equals_refits_with_plain_columns() {
+        // The same identity with an indicator and an interaction column in
+        // the design (the leverages read the plain columns too).
+        let n = 24;
+        let x = DMatrix::from_fn(n, 3, |i, j| {
+            let value = (i as f64 * 0.41).sin() * 3.0 + i as f64 * 0.15;
+            let indicator = f64::from(u8::from(i % 3 == 1));
+            [value, indicator, value * indicator][j]
+        });
+        let y: Vec<f64> = (0..n)
+            .map(|i| (x[(i, 0)] * 0.7).cos() + 0.8 * x[(i, 1)] - 0.3 * x[(i, 2)] + 0.02 * i as f64)
+            .collect();
+        let poly = Polynomial {
+            features: vec!["x".into(), "g=b".into(), "x:g=b".into()],
+            intercept: true,
+            degrees: vec![1, 2, 4],
+            plain: 2,
+        };
+        let pairs = shortcut_beside_refits(&poly, &x, &y);
+        assert_eq!(pairs.len(), 3 * n);
+        for pair in pairs {
             let (a, b) = (pair.shortcut, pair.refit);
             assert!((a - b).abs() <= 1e-9 * b.abs().max(1.0), "{pair}");
         }

@@ -276,6 +276,15 @@ impl FamilyDef {
         }
     }
 
+    /// Binding through `build_plain` when some trailing columns must enter
+    /// once, as they are (see [`FamilyDef::build_plain`]).
+    pub(crate) const fn plain_columns(self, build_plain: PlainBuildFn) -> Self {
+        FamilyDef {
+            build_plain: Some(build_plain),
+            ..self
+        }
+    }
+
     /// Predicting these kinds of target (default: numbers only).
     pub(crate) const fn predicts(self, targets: Targets) -> Self {
         FamilyDef { targets, ..self }

@@ -18,8 +18,8 @@ use super::CandidatePlan;
 use crate::data::encode::LevelEncoding;
 use crate::data::Table;
 use crate::error::FitError;
-use crate::models::registry::{CategoricalUse, FamilyDef, KeyValue, Settings};
-use crate::models::{Family, FitRequest, Setting, SettingFit};
+use crate::models::registry::{CategoricalUse, FamilyDef, KeyValue, SettingProblem, Settings};
+use crate::models::{Family, FitRequest, Setting, SettingFit, TrainingShape};
 use crate::spec::{FamilySpec, LoadedSpec};
 
 /// One raw feature of an encoded candidate.
@@ -42,7 +42,7 @@ impl Feature {
 
 /// A family whose categorical features and interactions are encoded inside
 /// each fit, on its training rows.
-#[derive(Debug)]
+#[derive(Debug, Clone)]
 pub(crate) struct EncodedFamily {
     def: &'static FamilyDef,
     settings: Settings,
@@ -153,6 +153,42 @@ impl EncodedFamily {
     }
 }
 
+impl EncodedFamily {
+    /// This family with its grid narrowed to `settings` (a part of the grid
+    /// it was built from; `execute::feasible::restricted`): the registry's
+    /// `build` on the candidate's features would bind the raw level codes.
+    pub(crate) fn narrowed(&self, settings: &Settings) -> Result<Arc<dyn Family>, SettingProblem> {
+        let names: Vec<String> = self.features.iter().map(|f| f.name().to_string()).collect();
+        let raw = (self.def.build)(settings, names)?;
+        Ok(Arc::new(EncodedFamily {
+            settings: settings.clone(),
+            grid: raw.settings(),
+            ..self.clone()
+        }))
+    }
+
+    /// The family bound to the encoded columns of `encoded`.
+    fn bind_encoded(&self, encoded: &Encoded) -> Result<Box<dyn Family>, FitError> {
+        if encoded.names.is_empty() {
+            return Err(FitError::Encoding {
+                message: "every categorical feature holds a single level in these training \
+                          rows, so no column is left to fit"
+                    .into(),
+            });
+        }
+        let names = encoded.names.clone();
+        let built = match self.def.build_plain {
+            Some(build_plain) if encoded.plain > 0 => {
+                build_plain(&self.settings, names, encoded.plain)
+            }
+            _ => (self.def.build)(&self.settings, names),
+        };
+        built.map_err(|problem| FitError::Encoding {
+            message: format!("{}: {}", problem.key, problem.message),
+        })
+    }
+}
+
 impl Family for EncodedFamily {
     fn settings(&self) -> Vec<Setting> {
         self.grid.clone()
@@ -162,25 +198,24 @@ impl Family for EncodedFamily {
         self.needs_spread
     }
 
+    /// The family's own answer on these training rows, encoded as a fit
+    /// would encode them (a polynomial's degree counts the distinct values
+    /// of its numeric features only, its rows the encoded columns).
+    fn infeasible(&self, setting: usize, shape: &TrainingShape<'_>) -> Option<String> {
+        let x_train = shape.x_train();
+        let encodings = self.fit_levels(x_train);
+        let encoded = self.encode(x_train, &x_train.rows(0, 0).into_owned(), &encodings);
+        let family = self.bind_encoded(&encoded).ok()?;
+        family.infeasible(
+            setting,
+            &TrainingShape::new(&encoded.x_train, shape.leave_one_out()),
+        )
+    }
+
     fn fit_grid(&self, request: &FitRequest<'_>) -> Result<Vec<SettingFit>, FitError> {
         let encodings = self.fit_levels(request.x_train);
         let encoded = self.encode(request.x_train, request.x_eval, &encodings);
-        if encoded.names.is_empty() {
-            return Err(FitError::Encoding {
-                message: "every categorical feature holds a single level in these training \
-                          rows, so no column is left to fit"
-                    .into(),
-            });
-        }
-        let built = match self.def.build_plain {
-            Some(build_plain) if encoded.plain > 0 => {
-                build_plain(&self.settings, encoded.names, encoded.plain)
-            }
-            _ => (self.def.build)(&self.settings, encoded.names),
-        };
-        let family = built.map_err(|problem| FitError::Encoding {
-            message: format!("{}: {}", problem.key, problem.message),
-        })?;
+        let family = self.bind_encoded(&encoded)?;
         family.fit_grid(&FitRequest {
             x_train: &encoded.x_train,
             x_eval: &encoded.x_eval,
@@ -249,8 +284,14 @@ pub(super) fn bind(
             identity.extend_from_slice(&(a as u64).to_le_bytes());
             identity.extend_from_slice(&(b as u64).to_le_bytes());
         }
+        if family_spec.def.build_plain.is_some() {
+            // Indicators and interactions enter once in a degree grid
+            // (version 1 of that design): earlier fits of these families
+            // expanded or refused them.
+            identity.extend_from_slice(b"plain-columns-1");
+        }
         let needs_spread = candidate.family.needs_spread();
-        candidate.family = Arc::new(EncodedFamily {
+        let family = Arc::new(EncodedFamily {
             def: family_spec.def,
             settings: family_spec.settings.clone(),
             features,
@@ -259,6 +300,8 @@ pub(super) fn bind(
             grid: candidate.settings.clone(),
             needs_spread,
         });
+        candidate.family = Arc::clone(&family) as Arc<dyn Family>;
+        candidate.encoded = Some(family);
         candidate.identity = identity;
     }
     Ok(())
@@ -266,7 +309,8 @@ pub(super) fn bind(
 
 /// Whether the family takes categorical features as bound (a family of a
 /// fixed number of features does not; a degree grid would raise
-/// indicators to powers unless the family takes them plainly).
+/// indicators to powers unless the family takes them plainly, through
+/// `FamilyDef::build_plain`, as `polynomial` and `logistic` do).
 fn check_family(
     family_spec: &FamilySpec,
     categorical: &[&String],
@@ -365,5 +409,7 @@ pub(crate) fn unseen_rows(table: &Table, column: &str, train: &[usize], eval: &[
     eval.iter().filter(|&&r| !seen[codes[r] as usize]).count()
 }
 
+#[cfg(test)]
+mod degree_tests;
 #[cfg(test)]
 mod encode_tests;

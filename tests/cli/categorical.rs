@@ -125,12 +125,42 @@ fn families_of_numeric_features_refuse_a_categorical_one() {
         ],
     );
     refused(
-        |spec| format!("{spec}\n[[candidate]]\nfamily = \"polynomial\"\ndegree = [1, 2]\n"),
+        |spec| format!("{spec}\n[[candidate]]\nfamily = \"spline\"\ndf = [4]\n"),
         same,
         &[
-            "candidate[5] (polynomial).features",
+            "candidate[5] (spline).features",
             "column \"weekday\" is categorical",
         ],
+    );
+}
+
+/// A degree grid takes a categorical feature: the indicators enter once
+/// (was refused, since powers of a 0/1 column repeat it). The numbers are
+/// checked against scikit-learn in `src/plan/encode/degree_tests.rs`.
+#[test]
+fn degree_grids_take_a_categorical_feature_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let (spec, _) = copy_fixture(dir.path());
+    std::fs::write(
+        dir.path().join("spec.toml"),
+        format!("{spec}\n[[candidate]]\nfamily = \"polynomial\"\ndegree = [1, 2, 3]\n"),
+    )
+    .unwrap();
+    let results = util::run_results(dir.path(), "categorical-reference");
+    let scored: Vec<(&str, bool)> = results["candidates"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|c| c["family"] == "polynomial")
+        .map(|c| (c["id"].as_str().unwrap(), c["cv_score"].is_f64()))
+        .collect();
+    assert_eq!(
+        scored,
+        [
+            ("polynomial/degree=1", true),
+            ("polynomial/degree=2", true),
+            ("polynomial/degree=3", true)
+        ]
     );
 }
 

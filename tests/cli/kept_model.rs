@@ -163,6 +163,49 @@ fn ridge_terms_applied_by_hand_give_the_reports_test_predictions() {
 
 #[test]
 fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predictions() {
+    // Intercept, x1, two level indicators, two slopes per level.
+    let terms = check_categorical_by_hand(
+        "family = \"ridge\"\npenalty = [2.5]\ninteractions = [[\"x1\", \"site\"]]",
+    );
+    assert_eq!(terms.len(), 6);
+}
+
+#[test]
+fn a_polynomials_powers_levels_and_slopes_applied_by_hand_give_the_reports_test_predictions() {
+    // The indicators and the slopes per level enter once; only x1 is raised
+    // to powers (docs/spec.md, "Categorical features").
+    let terms = check_categorical_by_hand(
+        "family = \"polynomial\"\ndegree = [3]\ninteractions = [[\"x1\", \"site\"]]",
+    );
+    let shape: Vec<(Option<&str>, u64, bool, bool)> = terms
+        .iter()
+        .map(|t| {
+            (
+                t["feature"].as_str(),
+                t["power"].as_u64().unwrap(),
+                t.get("level").is_some(),
+                t.get("times").is_some(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        shape,
+        [
+            (None, 0, false, false),
+            (Some("x1"), 1, false, false),
+            (Some("x1"), 2, false, false),
+            (Some("x1"), 3, false, false),
+            (Some("site"), 1, true, false),
+            (Some("site"), 1, true, false),
+            (Some("x1"), 1, false, true),
+            (Some("x1"), 1, false, true),
+        ]
+    );
+}
+
+/// Runs `candidate` on x1 and the site, checks the kept model's terms by
+/// hand against the report's test predictions (1e-9), returns the terms.
+fn check_categorical_by_hand(candidate: &str) -> Vec<Value> {
     // A level's term counts 1 on rows of that level; the reference level
     // (the most frequent in the training rows) has no term and scores 0.
     let dir = tempfile::tempdir().unwrap();
@@ -175,11 +218,7 @@ fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predi
         .collect();
     let x1: Vec<f64> = cells.iter().map(|c| c[1].parse().unwrap()).collect();
     let sites: Vec<&str> = cells.iter().map(|c| c[3]).collect();
-    write_spec_with(
-        dir.path(),
-        "family = \"ridge\"\npenalty = [2.5]\ninteractions = [[\"x1\", \"site\"]]",
-        r#"["x1", "site"]"#,
-    );
+    write_spec_with(dir.path(), candidate, r#"["x1", "site"]"#);
     let (results, test) = run(dir.path());
     let model = &results["final"]["model"];
     assert_eq!(model["form"], "coefficients", "{model}");
@@ -188,8 +227,6 @@ fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predi
     assert_eq!(encoding["levels"], serde_json::json!(SITES));
     let reference = encoding["reference"].as_str().unwrap();
     let terms = model["terms"].as_array().unwrap();
-    // Intercept, x1, two level indicators, two slopes per level.
-    assert_eq!(terms.len(), 6, "{model}");
     assert!(terms.iter().all(|t| t["level"] != reference));
     let factor = |feature: &Value, level: &Value, row: usize| -> f64 {
         match (feature.as_str(), level.as_str()) {
@@ -212,8 +249,9 @@ fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predi
                     Some(times) => factor(&times["feature"], &times["level"], row),
                     None => 1.0,
                 };
+                let power = t["power"].as_u64().unwrap() as i32;
                 t["coefficient"].as_f64().unwrap()
-                    * factor(&t["feature"], &t["level"], row)
+                    * factor(&t["feature"], &t["level"], row).powi(power)
                     * second
             })
             .sum();
@@ -222,6 +260,7 @@ fn categorical_and_interaction_terms_applied_by_hand_give_the_reports_test_predi
             "row {row}: {got} by hand against the report's {want}"
         );
     }
+    terms.clone()
 }
 
 #[test]

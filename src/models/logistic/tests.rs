@@ -8,6 +8,7 @@ fn logistic(grid: Vec<(usize, f64)>, label: Label) -> Logistic {
         features: vec!["x".into()],
         grid,
         label,
+        plain: 0,
     }
 }
 
@@ -102,4 +103,49 @@ fn a_constant_feature_is_an_error_not_a_panic() {
         .fit_classes(&x, &y, &x, false, 2)
         .unwrap_err();
     assert!(matches!(err, FitError::ConstantFeature { .. }), "{err}");
+}
+
+#[test]
+fn plain_columns_enter_once_in_a_degree_grid() {
+    // A numeric feature and a 0/1 indicator (the last, plain column): at
+    // degree 2 the design is 1, z(x), z(x)², z(g) — four coefficients, the
+    // indicator never squared (its square would repeat it).
+    let n = 40;
+    let x = DMatrix::from_fn(n, 2, |i, j| match j {
+        0 => (i % 10) as f64,
+        _ => f64::from(u8::from(i % 4 == 1)),
+    });
+    // Classes overlap everywhere: no separation.
+    let y: Vec<f64> = (0..n)
+        .map(|i| f64::from(u8::from((i * 7 + i / 3) % 5 < 2)))
+        .collect();
+    let model = Logistic {
+        features: vec!["x".into(), "g=b".into()],
+        grid: vec![(1, 0.0), (2, 0.0)],
+        label: Label::Degree,
+        plain: 1,
+    };
+    let fits = model.fit_classes(&x, &y, &x, true, 2).unwrap();
+    let names = |fit: &SettingFit| -> Vec<String> {
+        fit.coefficients
+            .as_ref()
+            .unwrap()
+            .iter()
+            .map(|(name, _)| name.clone())
+            .collect()
+    };
+    assert_eq!(
+        names(&fits[0]),
+        ["class 2: intercept", "class 2: x", "class 2: g=b"]
+    );
+    assert_eq!(
+        names(&fits[1]),
+        [
+            "class 2: intercept",
+            "class 2: z(x)^1",
+            "class 2: z(x)^2",
+            "class 2: z(g=b)"
+        ]
+    );
+    assert_eq!(fits[1].effective_df, 4.0);
 }
