@@ -16,6 +16,7 @@ use nalgebra::DMatrix;
 
 use super::CandidatePlan;
 use crate::data::encode::LevelEncoding;
+use crate::data::missing::indicated_feature;
 use crate::data::Table;
 use crate::error::FitError;
 use crate::models::registry::{CategoricalUse, FamilyDef, KeyValue, SettingProblem, Settings};
@@ -26,6 +27,9 @@ use crate::spec::{FamilySpec, LoadedSpec};
 #[derive(Debug, Clone)]
 enum Feature {
     Numeric(String),
+    /// A 0/1 column that enters once, as it is: the indicator of a
+    /// feature's missing cells under `missing = "impute"`.
+    Plain(String),
     Categorical {
         name: String,
         levels: Arc<Vec<String>>,
@@ -35,7 +39,9 @@ enum Feature {
 impl Feature {
     fn name(&self) -> &str {
         match self {
-            Feature::Numeric(name) | Feature::Categorical { name, .. } => name,
+            Feature::Numeric(name) | Feature::Plain(name) | Feature::Categorical { name, .. } => {
+                name
+            }
         }
     }
 }
@@ -72,7 +78,7 @@ impl EncodedFamily {
             .iter()
             .enumerate()
             .map(|(j, feature)| match feature {
-                Feature::Numeric(_) => None,
+                Feature::Numeric(_) | Feature::Plain(_) => None,
                 Feature::Categorical { levels, .. } => Some(LevelEncoding::fit(
                     x_train.column(j).iter().copied(),
                     levels.len(),
@@ -83,9 +89,10 @@ impl EncodedFamily {
             .collect()
     }
 
-    /// Numeric features first (in order), then each categorical feature's
-    /// indicators, then the interactions: the indicators and interactions
-    /// trail, so a family that expands its features can take them plainly.
+    /// Numeric features first (in order), then the missing-cell indicators,
+    /// then each categorical feature's indicators, then the interactions: all
+    /// but the numeric features trail, so a family that expands its features
+    /// can take them plainly.
     fn encode(
         &self,
         x_train: &DMatrix<f64>,
@@ -103,6 +110,12 @@ impl EncodedFamily {
             }
         }
         let numeric = names.len();
+        for (j, feature) in self.features.iter().enumerate() {
+            if let Feature::Plain(name) = feature {
+                names.push(name.clone());
+                columns.push(Box::new(move |row| row(j)));
+            }
+        }
         let indicator = |j: usize, column: usize| {
             let encoding = encodings[j].as_ref().expect("a categorical feature");
             move |row: &dyn Fn(usize) -> f64| {
@@ -124,7 +137,7 @@ impl EncodedFamily {
             // refuses two categorical ones).
             let (n, c) = match self.features[a] {
                 Feature::Categorical { .. } => (b, a),
-                Feature::Numeric(_) => (a, b),
+                Feature::Numeric(_) | Feature::Plain(_) => (a, b),
             };
             let n_name = self.features[n].name();
             match (&self.features[c], &encodings[c]) {
@@ -253,6 +266,7 @@ pub(super) fn bind(
                     name: name.clone(),
                     levels: Arc::new(levels.clone()),
                 },
+                None if indicated_feature(name).is_some() => Feature::Plain(name.clone()),
                 None => Feature::Numeric(name.clone()),
             })
             .collect();

@@ -14,8 +14,10 @@ use crate::split::Assignment;
 /// Adds, for each candidate, an indicator column for every feature with a
 /// missing cell among the rows used for fitting, and rebinds the family to
 /// them. A family that takes a fixed number of features (a smoother of one
-/// feature, a surface of two) or expands each feature into a basis
-/// (polynomial, spline) keeps its features and gets the medians only.
+/// feature, a surface of two) or expands each feature into a basis without
+/// taking plain columns (spline) keeps its features and gets the medians
+/// only; one that takes plain columns (polynomial, logistic) gets the
+/// indicators as such, never raised to powers.
 /// Fails, naming the column and the fold, when some training fold holds no
 /// value of a feature to take a median of.
 pub(super) fn bind_indicators(
@@ -48,7 +50,8 @@ pub(super) fn bind_indicators(
         }
     }
     for (candidate, family_spec) in candidates.iter_mut().zip(&spec.families) {
-        if family_spec.def.feature_count.is_some() || family_spec.def.expands_features {
+        let def = family_spec.def;
+        if def.feature_count.is_some() || (def.expands_features && def.build_plain.is_none()) {
             continue;
         }
         let indicators: Vec<String> = candidate
@@ -68,17 +71,25 @@ pub(super) fn bind_indicators(
             }
         }
         let mut features = candidate.features.clone();
+        let plain = indicators.len();
         features.extend(indicators);
-        let family = (family_spec.def.build)(&family_spec.settings, features.clone()).map_err(
-            |problem| {
-                format!(
-                    "candidate {} with the indicator columns of missing cells: {}: {}",
-                    candidate.stem, problem.key, problem.message
-                )
-            },
-        )?;
+        // A family with a basis per feature (powers) takes the indicators
+        // once, as they are: their powers would repeat them.
+        let built = match def.build_plain {
+            Some(build_plain) => build_plain(&family_spec.settings, features.clone(), plain),
+            None => (def.build)(&family_spec.settings, features.clone()),
+        };
+        let family = built.map_err(|problem| {
+            format!(
+                "candidate {} with the indicator columns of missing cells: {}: {}",
+                candidate.stem, problem.key, problem.message
+            )
+        })?;
         candidate.family = Arc::from(family);
-        candidate.identity = family_spec.def.identity(&family_spec.settings, &features);
+        candidate.identity = def.identity(&family_spec.settings, &features);
+        if def.build_plain.is_some() {
+            candidate.identity.extend_from_slice(b"plain-indicators-1");
+        }
         candidate.features = features;
     }
     Ok(())

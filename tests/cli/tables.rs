@@ -46,7 +46,7 @@ fn imputed_fold_scores_match_scikit_learn() {
     let results = util::run_results(dir.path(), "impute-reference");
     let expected = util::read_json(&fixture_dir().join("expected.json"));
     let candidates = expected["candidates"].as_object().unwrap();
-    assert_eq!(candidates.len(), 3);
+    assert_eq!(candidates.len(), 4);
     for (id, want) in candidates {
         let got = fold_scores(&results, id);
         let want: Vec<f64> = want
@@ -64,10 +64,17 @@ fn imputed_fold_scores_match_scikit_learn() {
             assert!(err <= TOL, "{id} fold {}: {g:e} against {w:e}", f + 1);
         }
     }
-    // Each candidate is bound to the indicator columns too.
+    // Each candidate is bound to the indicator columns too; the polynomial
+    // takes them once (2 + 2 squares + 2 indicators + intercept).
+    for id in ["linear", "polynomial/degree=2"] {
+        assert_eq!(
+            util::candidate(&results, id)["features"],
+            serde_json::json!(["sun_h", "leaf_m2", "missing(sun_h)", "missing(leaf_m2)"])
+        );
+    }
     assert_eq!(
-        util::candidate(&results, "linear")["features"],
-        serde_json::json!(["sun_h", "leaf_m2", "missing(sun_h)", "missing(leaf_m2)"])
+        util::candidate(&results, "polynomial/degree=2")["effective_df"],
+        7.0
     );
     // The report's facts: per column, the count and what was done.
     assert_eq!(
@@ -179,4 +186,48 @@ fn the_scaffold_leaves_out_row_numbers_and_leaks_imputes_and_runs() {
     let results = util::run_results(dir.path(), "bakery");
     assert_eq!(results["data"]["missing"][0]["column"], "outdoor_c");
     assert_eq!(results["data"]["missing"][0]["handling"], "impute");
+}
+
+/// A logistic degree grid under `missing = "impute"` takes the indicator of
+/// a feature's missing cells once: raised to powers, a standardised 0/1
+/// column repeats itself (z² is a line in z), which made every degree above
+/// 1 rank-deficient.
+#[test]
+fn a_logistic_degree_grid_takes_imputed_indicators_once() {
+    let dir = tempfile::tempdir().unwrap();
+    // Invented: valves that stick (label) by supply temperature and flow,
+    // temperature missing on every ninth row; deterministic, no generator.
+    let mut table = String::from("temp_c,flow,valve\n");
+    for i in 0..160u32 {
+        let temp = 14.0 + f64::from((i * 37) % 23) * 0.7;
+        let flow = 1.0 + f64::from((i * 11) % 17) * 0.25;
+        let score = 0.45 * (temp - 21.0) + 1.3 * (flow - 3.0) + f64::from((i * 7) % 5) - 2.0;
+        let label = if score > 0.0 { "sticks" } else { "moves" };
+        let cell = if i % 9 == 4 {
+            String::new()
+        } else {
+            format!("{temp:.1}")
+        };
+        table.push_str(&format!("{cell},{flow:.2},{label}\n"));
+    }
+    std::fs::write(dir.path().join("valves.csv"), table).unwrap();
+    std::fs::write(
+        dir.path().join("spec.toml"),
+        "[experiment]\nname = \"valves\"\nseed = 3\n\n[data]\ntable = \"valves.csv\"\n\
+         target = \"valve\"\nfeatures = [\"temp_c\", \"flow\"]\nmissing = \"impute\"\n\n\
+         [split]\nfolds = 4\nholdout = 0\n\n[[candidate]]\nfamily = \"logistic\"\n\
+         degree = [1, 2, 3]\n",
+    )
+    .unwrap();
+    let results = util::run_results(dir.path(), "valves");
+    for (degree, columns) in [(1, 4.0), (2, 6.0), (3, 8.0)] {
+        let id = format!("logistic/degree={degree}");
+        let candidate = util::candidate(&results, &id);
+        // intercept + 2 features × degree powers + 1 indicator, once.
+        assert_eq!(candidate["effective_df"], columns, "{id}");
+        assert!(
+            candidate["cv_score"].as_f64().is_some(),
+            "{id}: {candidate}"
+        );
+    }
 }
