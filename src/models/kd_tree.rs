@@ -172,38 +172,35 @@ impl KdTree {
         skip: Option<usize>,
         found: &mut Vec<(f64, usize)>,
     ) {
-        found.clear();
-        if self.nodes.is_empty() || k == 0 {
-            return;
-        }
-        let mut search = Search {
-            k,
-            found: std::mem::take(found),
-            bound: f64::INFINITY,
-        };
-        search.found.reserve(2 * k);
-        self.visit(0, query, skip, &mut search);
-        search.keep_nearest();
-        *found = search.found;
+        self.nearest_unordered_skipping(query, k, skip, found);
         found.sort_unstable_by(by_distance_then_row);
     }
 
     /// [`Self::nearest`] without the final sort: the same rows, in no
     /// particular order, for a caller that needs only which rows they are.
     pub(crate) fn nearest_unordered(&self, query: &[f64], k: usize, found: &mut Vec<(f64, usize)>) {
+        self.nearest_unordered_skipping(query, k, None, found);
+    }
+
+    fn nearest_unordered_skipping(
+        &self,
+        query: &[f64],
+        k: usize,
+        skip: Option<usize>,
+        found: &mut Vec<(f64, usize)>,
+    ) {
         found.clear();
         if self.nodes.is_empty() || k == 0 {
             return;
         }
         let mut search = Search {
             k,
-            found: std::mem::take(found),
+            found: Vec::with_capacity(2 * k),
             bound: f64::INFINITY,
         };
-        search.found.reserve(2 * k);
-        self.visit(0, query, None, &mut search);
+        self.visit(0, query, skip, &mut search);
         search.keep_nearest();
-        *found = search.found;
+        found.extend(search.found.iter().map(|&key| unpack(key)));
     }
 
     /// Depth-first search of node `index`, nearer child first.
@@ -246,11 +243,25 @@ impl KdTree {
 /// the k-th smallest distance at the last thinning (infinite before k
 /// rows are found): a row farther than it cannot be among the k nearest,
 /// while a row at exactly that distance may still win the tie by its row
-/// number and is kept.
+/// number and is kept. Candidates are kept as [`pack`]ed keys, whose integer
+/// order is the (distance, row) order, so the selection compares integers.
 struct Search {
     k: usize,
-    found: Vec<(f64, usize)>,
+    found: Vec<u128>,
     bound: f64,
+}
+
+/// (squared distance, row) as one integer with the same order: the bits of
+/// a non-negative double (a sum of squares is never −0 or NaN) order as the
+/// numbers do, and the row breaks ties below them.
+#[inline]
+fn pack(distance: f64, row: usize) -> u128 {
+    (u128::from(distance.to_bits()) << 64) | row as u128
+}
+
+#[inline]
+fn unpack(key: u128) -> (f64, usize) {
+    (f64::from_bits((key >> 64) as u64), key as u64 as usize)
 }
 
 impl Search {
@@ -259,13 +270,9 @@ impl Search {
         if distance > self.bound {
             return;
         }
-        self.found.push((distance, row));
+        self.found.push(pack(distance, row));
         if self.found.len() == self.k && self.bound == f64::INFINITY {
-            self.bound = self
-                .found
-                .iter()
-                .map(|c| c.0)
-                .fold(f64::NEG_INFINITY, f64::max);
+            self.bound = unpack(self.found.iter().copied().max().unwrap_or(0)).0;
         } else if self.found.len() >= 2 * self.k {
             self.keep_nearest();
         }
@@ -274,10 +281,9 @@ impl Search {
     /// Keeps the k nearest by (distance, row) and tightens the bound.
     fn keep_nearest(&mut self) {
         if self.found.len() > self.k {
-            self.found
-                .select_nth_unstable_by(self.k - 1, by_distance_then_row);
+            self.found.select_nth_unstable(self.k - 1);
             self.found.truncate(self.k);
-            self.bound = self.found[self.k - 1].0;
+            self.bound = unpack(self.found[self.k - 1]).0;
         }
     }
 }

@@ -21,7 +21,12 @@
 //! M = I − 11ᵀ/K, which equals the squared norm of the symmetric (sum-to-zero)
 //! class coefficients. Newton steps solve with the Cholesky factor of the
 //! Hessian, sums in row order; a step that does not lower the objective is
-//! halved up to 50 times. At most 100 iterations.
+//! halved up to 50 times. At most 100 iterations. The iteration stops when a
+//! whole step moves no coefficient by more than 10⁻¹⁰ (1 + the largest); that
+//! last step is taken without evaluating the objective. Once a whole step is
+//! below 10⁻⁵ of that size the next one reuses the Hessian's factor (a chord
+//! step: near the optimum it converges as fast as the tolerance needs, and
+//! saves forming the Hessian again).
 //!
 //! Without a penalty the maximum-likelihood estimate does not exist when the
 //! classes are (quasi-)separated by the features: the fit then fails, naming
@@ -41,6 +46,9 @@ use crate::metrics::ClassPrediction;
 const MAX_ITERATIONS: usize = 100;
 /// Halvings of one Newton step before it is declared not to descend.
 const MAX_HALVINGS: usize = 50;
+/// A Newton step reuses the Hessian factor of the step before once whole
+/// steps are below this size (relative to 1 + the largest coefficient).
+const CHORD_BELOW: f64 = 1e-5;
 /// A linear predictor this large (a fitted probability within e⁻³⁰ ≈ 10⁻¹³
 /// of 0 or 1) on a training row marks separation in an unpenalised fit.
 pub(crate) const SEPARATION_ETA: f64 = 30.0;
@@ -283,13 +291,22 @@ impl Problem<'_> {
             .design
             .chunks(p * LOG_RUN)
             .zip(prob.chunks_mut(LOG_RUN).zip(self.class.chunks(LOG_RUN)));
+        let mut etas = [0.0; LOG_RUN];
+        let mut exps = [0.0; LOG_RUN];
         for (rows, (probs, classes)) in runs {
+            let count = classes.len();
+            for (eta, row) in etas.iter_mut().zip(rows.chunks_exact(p)) {
+                *eta = row.iter().zip(beta).map(|(x, c)| x * c).sum();
+            }
+            // The exponentials in a loop of their own: no iteration waits
+            // for another, so their long multiply-add chains overlap.
+            for (t, eta) in exps.iter_mut().zip(&etas).take(count) {
+                *t = exp_of_nonpositive(-eta.abs());
+            }
             let mut product = 1.0;
             let mut linear = 0.0;
-            for ((row, out), &class) in rows.chunks_exact(p).zip(probs).zip(classes) {
-                let eta: f64 = row.iter().zip(beta).map(|(x, c)| x * c).sum();
+            for (((out, &class), &eta), &t) in probs.iter_mut().zip(classes).zip(&etas).zip(&exps) {
                 // log(1 + e^η) = max(η, 0) + log(1 + e^−|η|).
-                let t = libm::exp(-eta.abs());
                 if eta > 0.0 {
                     *out = 1.0 / (1.0 + t);
                     linear += eta;
@@ -465,11 +482,24 @@ impl Problem<'_> {
         let m = self.present - 1;
         let mut beta = vec![vec![0.0; self.p]; m];
         let (mut value, mut probabilities) = self.at_zero();
+        // The Cholesky factor of the last Hessian formed, and whether the
+        // next step may reuse it (a chord step).
+        let mut factor = None;
+        let mut reuse = false;
+        let mut last_step = f64::INFINITY;
         for _ in 0..MAX_ITERATIONS {
-            let (gradient, likelihood, hessian) = self.derivatives(&beta, &probabilities);
-            let Some(cholesky) = hessian.clone().cholesky() else {
-                return Err(self.breakdown(setting, &beta));
+            let fresh = !reuse || factor.is_none();
+            let gradient = if fresh {
+                let (gradient, _, hessian) = self.derivatives(&beta, &probabilities);
+                let Some(cholesky) = hessian.cholesky() else {
+                    return Err(self.breakdown(setting, &beta));
+                };
+                factor = Some(cholesky);
+                gradient
+            } else {
+                self.gradient(&beta, &probabilities)
             };
+            let cholesky = factor.as_ref().expect("formed above");
             let step = cholesky.solve(&gradient);
             let largest_step = step.iter().fold(0.0f64, |a, s| a.max(s.abs()));
             let moved = |scale: f64| -> Vec<Vec<f64>> {
@@ -481,13 +511,14 @@ impl Problem<'_> {
                     })
                     .collect()
             };
-            let tolerance = 1e-10 * (1.0 + max_abs(&beta));
+            let size = 1.0 + max_abs(&beta);
+            let tolerance = 1e-10 * size;
             if largest_step <= tolerance {
                 // Converged: the whole step moves no coefficient by more than
                 // the tolerance, and the objective's change is below its own
                 // rounding, so it is taken without another evaluation (the
                 // Hessian one step back serves the effective df).
-                return self.finish(setting, moved(1.0), &likelihood, &hessian);
+                return self.finish(setting, moved(1.0), &beta, &probabilities);
             }
             let mut scale = 1.0;
             let mut accepted = None;
@@ -500,18 +531,25 @@ impl Problem<'_> {
                 }
                 scale /= 2.0;
             }
-            match accepted {
-                Some((trial, trial_value, trial_probabilities)) => {
-                    beta = trial;
-                    value = trial_value;
-                    probabilities = trial_probabilities;
-                }
+            let Some((trial, trial_value, trial_probabilities)) = accepted else {
                 // No halving lowers the objective: at the optimum to rounding.
-                None => return self.finish(setting, beta, &likelihood, &hessian),
-            }
+                return self.finish(setting, beta.clone(), &beta, &probabilities);
+            };
+            // The next step reuses this factor while whole steps are small
+            // and each at most a tenth of the one before: near the optimum
+            // the Hessian hardly moves, and a chord step still converges
+            // (linearly, at a rate of about the relative change since the
+            // factor was formed).
+            reuse = scale == 1.0
+                && largest_step <= CHORD_BELOW * size
+                && (fresh || largest_step <= last_step / 10.0);
+            last_step = largest_step;
+            beta = trial;
+            value = trial_value;
+            probabilities = trial_probabilities;
             if largest_step * scale <= tolerance {
                 // A halved step this small: at the optimum to rounding.
-                return self.finish(setting, beta, &likelihood, &hessian);
+                return self.finish(setting, beta.clone(), &beta, &probabilities);
             }
         }
         if self.penalty == 0.0 && self.separated(&beta) {
@@ -525,12 +563,15 @@ impl Problem<'_> {
         })
     }
 
+    /// The fit at `beta`; the effective df of a penalised fit comes from the
+    /// Hessians at `at` (where `probabilities` were computed: the last point
+    /// evaluated, at most one converged step from `beta`).
     fn finish(
         &self,
         setting: &str,
         beta: Vec<Vec<f64>>,
-        likelihood: &DMatrix<f64>,
-        hessian: &DMatrix<f64>,
+        at: &[Vec<f64>],
+        probabilities: &[f64],
     ) -> Result<Fitted, FitError> {
         if self.penalty == 0.0 && self.separated(&beta) {
             return Err(separation(setting));
@@ -540,12 +581,42 @@ impl Problem<'_> {
         let effective_df = if self.penalty == 0.0 {
             ((self.present - 1) * self.p) as f64
         } else {
-            match hessian.clone().cholesky() {
-                Some(c) => c.solve(likelihood).trace(),
+            let (_, likelihood, hessian) = self.derivatives(at, probabilities);
+            match hessian.cholesky() {
+                Some(c) => c.solve(&likelihood).trace(),
                 None => f64::NAN,
             }
         };
         Ok(Fitted { beta, effective_df })
+    }
+
+    /// The gradient of the objective alone (for a chord step).
+    fn gradient(&self, beta: &[Vec<f64>], probabilities: &[f64]) -> DVector<f64> {
+        let m = self.present - 1;
+        let p = self.p;
+        let mut gradient = DVector::zeros(m * p);
+        for (i, prob) in probabilities.chunks_exact(m).enumerate() {
+            let row = &self.design[i * p..(i + 1) * p];
+            for (a, &pa) in prob.iter().enumerate() {
+                let observed = if self.class[i] == a + 1 { 1.0 } else { 0.0 };
+                let residual = pa - observed;
+                let block = &mut gradient.as_mut_slice()[a * p..(a + 1) * p];
+                for (g, &x) in block.iter_mut().zip(row) {
+                    *g += residual * x;
+                }
+            }
+        }
+        if self.penalty > 0.0 {
+            for a in 0..m {
+                for (b, beta_b) in beta.iter().enumerate() {
+                    let w = self.penalty * self.penalty_weight(a, b);
+                    for j in 1..p {
+                        gradient[a * p + j] += w * beta_b[j];
+                    }
+                }
+            }
+        }
+        gradient
     }
 
     fn separated(&self, beta: &[Vec<f64>]) -> bool {
@@ -606,6 +677,52 @@ fn gram_tile(columns: &[f64], weighted: &[f64]) -> [[f64; TILE_WEIGHTED]; TILE_C
         }
     }
     lanes.map(|row| row.map(|[even, odd]| even + odd))
+}
+
+/// e^x for x ≤ 0, within about one unit in the last place, for the Newton
+/// iterations' probabilities (their exponentials are most of a fit's
+/// arithmetic after the Hessian sums). Branch-free, integer-only scaling:
+/// x = k·ln 2 + r with k the nearest integer to x/ln 2 (by adding 1.5·2⁵²,
+/// which leaves k in the low bits) and |r| ≤ ln 2 / 2, split as fdlibm splits
+/// ln 2 so that k·ln2_hi is exact (Tang 1989, "Table-driven implementation
+/// of the exponential function in IEEE floating-point arithmetic", ACM
+/// TOMS 15(2), without the table); e^r by its Taylor polynomial of degree
+/// 13, whose truncation error (r¹⁴/14! ≤ 5·10⁻¹⁸) lies below half a unit;
+/// then 2^k set in the exponent bits. Below −708 it returns e^−708 (a
+/// probability of 3·10⁻³⁰⁸ instead of a smaller one, which no score can
+/// tell apart). Only + and × in a fixed order: the same bits everywhere.
+#[inline]
+fn exp_of_nonpositive(x: f64) -> f64 {
+    const SHIFTER: f64 = 6_755_399_441_055_744.0; // 1.5 · 2⁵²
+    // fdlibm's split of ln 2: the high part has 32 trailing zero bits.
+    const LN2_HI: f64 = f64::from_bits(0x3fe6_2e42_fee0_0000);
+    const LN2_LO: f64 = f64::from_bits(0x3dea_39ef_3579_3c76);
+    let x = x.max(-708.0);
+    let shifted = x * std::f64::consts::LOG2_E + SHIFTER;
+    let k = shifted - SHIFTER;
+    let r = (x - k * LN2_HI) - k * LN2_LO;
+    // Horner from 1/13! down to 1/1!, then 1 (reciprocals rounded once).
+    const INVERSE_FACTORIALS: [f64; 12] = [
+        1.0 / 479_001_600.0,
+        1.0 / 39_916_800.0,
+        1.0 / 3_628_800.0,
+        1.0 / 362_880.0,
+        1.0 / 40_320.0,
+        1.0 / 5_040.0,
+        1.0 / 720.0,
+        1.0 / 120.0,
+        1.0 / 24.0,
+        1.0 / 6.0,
+        1.0 / 2.0,
+        1.0,
+    ];
+    let mut p = 1.0 / 6_227_020_800.0;
+    for inverse in INVERSE_FACTORIALS {
+        p = p * r + inverse;
+    }
+    let e_r = p * r + 1.0;
+    let k_bits = (shifted.to_bits() as i64) - (SHIFTER.to_bits() as i64);
+    e_r * f64::from_bits(((k_bits + 1023) as u64) << 52)
 }
 
 /// log(1 + Σ exp(η_k)), with the probabilities of the non-reference classes
