@@ -693,7 +693,8 @@ fn gram_tile(columns: &[f64], weighted: &[f64]) -> [[f64; TILE_WEIGHTED]; TILE_C
 /// tell apart). Only + and × in a fixed order: the same bits everywhere.
 #[inline]
 fn exp_of_nonpositive(x: f64) -> f64 {
-    const SHIFTER: f64 = 6_755_399_441_055_744.0; // 1.5 · 2⁵²
+    // 1.5 · 2⁵²: adding it rounds to an integer kept in the low bits.
+    const SHIFTER: f64 = 6_755_399_441_055_744.0;
     // fdlibm's split of ln 2: the high part has 32 trailing zero bits.
     const LN2_HI: f64 = f64::from_bits(0x3fe6_2e42_fee0_0000);
     const LN2_LO: f64 = f64::from_bits(0x3dea_39ef_3579_3c76);
