@@ -658,7 +658,7 @@ const LOG_RUN: usize = 64;
 const TILE_COLUMNS: usize = 4;
 const TILE_WEIGHTED: usize = 2;
 
-/// The 4 × 2 tile Σᵣ columns[a][r] · weighted[b][r] of a block's Gram
+/// The 4 × 2 tile Σᵣ `columns[a][r] · weighted[b][r]` of a block's Gram
 /// matrix, a = 0..4, b = 0..2, each column [`BLOCK`] long and the next one
 /// [`BLOCK`] further on. Eight sums, each in two lanes (even and odd rows)
 /// added at the end, stay in registers; each loaded value serves two or four
