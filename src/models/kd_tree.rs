@@ -165,21 +165,33 @@ impl KdTree {
     /// The `k` nearest rows of `query` by (squared distance, row), nearest
     /// first, into `found` (fewer when the tree holds fewer rows); the row
     /// `skip`, if given, is passed over (leave-one-out).
+    ///
+    /// `bound`, when finite, is a squared distance that the k-th nearest row
+    /// is known not to exceed (the farthest of k rows measured from the
+    /// query): the search then prunes from the start instead of after its
+    /// first k rows. It changes how much is searched, never what is found.
     pub(crate) fn nearest(
         &self,
         query: &[f64],
         k: usize,
         skip: Option<usize>,
+        bound: f64,
         found: &mut Vec<(f64, usize)>,
     ) {
-        self.nearest_unordered_skipping(query, k, skip, found);
+        self.nearest_unordered_skipping(query, k, skip, bound, found);
         found.sort_unstable_by(by_distance_then_row);
     }
 
     /// [`Self::nearest`] without the final sort: the same rows, in no
     /// particular order, for a caller that needs only which rows they are.
-    pub(crate) fn nearest_unordered(&self, query: &[f64], k: usize, found: &mut Vec<(f64, usize)>) {
-        self.nearest_unordered_skipping(query, k, None, found);
+    pub(crate) fn nearest_unordered(
+        &self,
+        query: &[f64],
+        k: usize,
+        bound: f64,
+        found: &mut Vec<(f64, usize)>,
+    ) {
+        self.nearest_unordered_skipping(query, k, None, bound, found);
     }
 
     fn nearest_unordered_skipping(
@@ -187,6 +199,7 @@ impl KdTree {
         query: &[f64],
         k: usize,
         skip: Option<usize>,
+        bound: f64,
         found: &mut Vec<(f64, usize)>,
     ) {
         found.clear();
@@ -196,7 +209,7 @@ impl KdTree {
         let mut search = Search {
             k,
             found: Vec::with_capacity(2 * k),
-            bound: f64::INFINITY,
+            bound,
         };
         self.visit(0, query, skip, &mut search);
         search.keep_nearest();
@@ -271,8 +284,12 @@ impl Search {
             return;
         }
         self.found.push(pack(distance, row));
-        if self.found.len() == self.k && self.bound == f64::INFINITY {
-            self.bound = unpack(self.found.iter().copied().max().unwrap_or(0)).0;
+        if self.found.len() == self.k {
+            // The first k rows found (the buffer reaches k only once: after
+            // a thinning it holds k and grows past it): the farthest of them
+            // bounds the k-th nearest, unless a given bound is tighter.
+            let farthest = unpack(self.found.iter().copied().max().unwrap_or(0)).0;
+            self.bound = self.bound.min(farthest);
         } else if self.found.len() >= 2 * self.k {
             self.keep_nearest();
         }
@@ -321,12 +338,24 @@ mod tests {
                 for q in (0..rows).step_by(7) {
                     let query = &points[q * dims..(q + 1) * dims];
                     for k in [1, 2, 5, 17, 60, rows] {
-                        tree.nearest(query, k, None, &mut found);
-                        assert_eq!(
-                            found,
-                            scan(&points, dims, query, k),
-                            "dims {dims} k {k} leaf {leaf_size}"
-                        );
+                        let expected = scan(&points, dims, query, k);
+                        // A bound changes the work, never the answer: none,
+                        // exactly the k-th distance (rows tied with it must
+                        // still compete), and the farthest of k other rows
+                        // (the neighbours of the query before).
+                        let exact = expected.last().map_or(f64::INFINITY, |n| n.0);
+                        let previous = &points[((q + 1) % rows) * dims..][..dims];
+                        let loose = scan(&points, dims, previous, k)
+                            .iter()
+                            .map(|&(_, r)| squared_distance(&points[r * dims..][..dims], query))
+                            .fold(0.0, f64::max);
+                        for bound in [f64::INFINITY, exact, loose] {
+                            tree.nearest(query, k, None, bound, &mut found);
+                            assert_eq!(
+                                found, expected,
+                                "dims {dims} k {k} leaf {leaf_size} bound {bound}"
+                            );
+                        }
                     }
                 }
             }
@@ -339,7 +368,7 @@ mod tests {
         let points = [0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 2.0, 2.0];
         let tree = KdTree::build(&points, 2, 1);
         let mut found = Vec::new();
-        tree.nearest(&[0.0, 0.0], 3, Some(0), &mut found);
+        tree.nearest(&[0.0, 0.0], 3, Some(0), f64::INFINITY, &mut found);
         assert_eq!(found, vec![(0.0, 2), (1.0, 1), (8.0, 3)]);
     }
 }

@@ -188,8 +188,14 @@ impl Standardised {
         scratch: &mut Vec<(f64, usize)>,
     ) {
         if let Some(tree) = &self.tree {
-            // Already the k_max nearest, nearest first.
-            tree.nearest(query, k_max, skip, scratch);
+            // Already the k_max nearest, nearest first. Without a row to
+            // skip, the last query's neighbours (in `scratch`) bound this
+            // one's search.
+            let bound = match skip {
+                None => self.bound_from(scratch, k_max, query),
+                Some(_) => f64::INFINITY,
+            };
+            tree.nearest(query, k_max, skip, bound, scratch);
             return;
         }
         let wanted = k_max + usize::from(skip.is_some());
@@ -204,11 +210,29 @@ impl Standardised {
         scratch.sort_unstable_by(by_distance_then_row);
     }
 
+    /// An upper bound on the squared distance from `query` to its k-th
+    /// nearest training row: the farthest of the k rows in `previous` (the
+    /// neighbours of the query before, which [`Self::answer_all`] takes in
+    /// an order that keeps consecutive queries close), measured from `query`
+    /// exactly as the search measures. Infinite when `previous` holds fewer
+    /// than k rows.
+    fn bound_from(&self, previous: &[(f64, usize)], k: usize, query: &[f64]) -> f64 {
+        if previous.len() < k {
+            return f64::INFINITY;
+        }
+        let dims = self.dims;
+        previous
+            .iter()
+            .map(|&(_, row)| squared_distance(&self.points[row * dims..(row + 1) * dims], query))
+            .fold(0.0, f64::max)
+    }
+
     /// The `k_max` nearest training rows of `query` in `scratch`, in no
     /// particular order (the class vote orders only what it needs).
     fn unordered_neighbours(&self, query: &[f64], k_max: usize, scratch: &mut Vec<(f64, usize)>) {
         if let Some(tree) = &self.tree {
-            tree.nearest_unordered(query, k_max, scratch);
+            let bound = self.bound_from(scratch, k_max, query);
+            tree.nearest_unordered(query, k_max, bound, scratch);
             return;
         }
         self.gather_candidates(query, k_max, scratch);
